@@ -1,0 +1,504 @@
+"""numba kernels: the only place with hot loops.
+
+Kernels trust their inputs: the public modules validate shapes, dtypes and
+ranges before calling them.  Everything here is fully normalised ("ortho",
+no Condon-Shortley phase); other conventions are per-(l, m) factors applied by
+the callers.
+
+Extended range
+--------------
+The sectoral start value ``P_mm = c_m sin^m(theta)`` underflows double
+precision for large ``m`` away from the equator (``sin^m`` with m = 10800 and
+sin = 0.5 is 2^-10800).  It is carried as ``mantissa * 2^(600 k)`` with an
+integer ``k <= 0`` while the recursion in degree grows it; each time the
+mantissa exceeds ``2^300`` it is rescaled by ``2^-600`` and ``k`` increases.
+Once ``k`` reaches 0 the values are ordinary doubles (at least ``2^-330``) and
+the recursion continues in plain arithmetic.  While ``k < 0`` the true values
+are below ``2^-300`` (about 5e-91) relative to the O(1) values of the same
+order, far under double-precision resolution, so they contribute nothing to a
+transform; :func:`legendre_order` still returns them scaled back (which
+underflows to zero or to a subnormal, as the exact value would).
+
+Latitudes are processed from the equator toward the poles.  For a fixed order
+the functions are monotonically smaller toward the pole in the range where
+they are negligible, so once one latitude stays below the range for every
+degree up to ``lmax`` all more polar latitudes are skipped.
+"""
+from __future__ import annotations
+
+import math
+
+import numba as nb
+import numpy as np
+
+_JIT = dict(nogil=True, cache=True)
+_FM = {"contract", "reassoc", "nsz", "arcp"}
+
+SCALE_EXP = 600
+BIG = 2.0 ** 300
+INV_SCALE = 2.0 ** -SCALE_EXP
+PLAIN_MIN_EXP = -330
+BLOCK = 16  # latitude pairs processed together
+DD_NODES = 128  # Gauss nodes nearest each pole polished in double-double
+
+
+# ---------------------------------------------------------------------------
+# Gauss-Legendre nodes
+# ---------------------------------------------------------------------------
+@nb.njit(inline="always", **_JIT)
+def _legendre_pair(n, t):
+    """(P_n, P_{n-1}) at cos(t), by the recursion written in u = 1 - cos t =
+    2 sin^2(t/2), which keeps full relative precision in t near the poles."""
+    h = math.sin(0.5 * t)
+    u = 2.0 * h * h
+    p0 = 1.0
+    p1 = 1.0 - u
+    for j in range(2, n + 1):
+        p2 = ((2.0 * j - 1.0) * (p1 - u * p1) - (j - 1.0) * p0) / j
+        p0 = p1
+        p1 = p2
+    return p1, p0, u
+
+
+# double-double helpers (error-free transformations; never under fastmath)
+@nb.njit(inline="always", **_JIT)
+def _two_sum(a, b):
+    s = a + b
+    bb = s - a
+    return s, (a - (s - bb)) + (b - bb)
+
+
+@nb.njit(inline="always", **_JIT)
+def _fast_two_sum(a, b):
+    s = a + b
+    return s, b - (s - a)
+
+
+@nb.njit(inline="always", **_JIT)
+def _two_prod(a, b):
+    p = a * b
+    c = 134217729.0 * a
+    ah = c - (c - a)
+    al = a - ah
+    c = 134217729.0 * b
+    bh = c - (c - b)
+    bl = b - bh
+    return p, ((ah * bh - p) + ah * bl + al * bh) + al * bl
+
+
+@nb.njit(inline="always", **_JIT)
+def _dd_mul_d(ah, al, b):
+    p, e = _two_prod(ah, b)
+    return _fast_two_sum(p, e + al * b)
+
+
+@nb.njit(inline="always", **_JIT)
+def _dd_sub(ah, al, bh, bl):
+    s, e = _two_sum(ah, -bh)
+    return _fast_two_sum(s, e + (al - bl))
+
+
+@nb.njit(inline="always", **_JIT)
+def _dd_div_d(ah, al, b):
+    q = ah / b
+    p, e = _two_prod(q, b)
+    return _fast_two_sum(q, ((ah - p) - e + al) / b)
+
+
+@nb.njit(**_JIT)
+def _legendre_pair_dd(n, t):
+    """(P_n, P_{n-1}, u) at cos(t) in double-double arithmetic, rounded."""
+    h = math.sin(0.5 * t)
+    u = 2.0 * h * h
+    p0h, p0l = 1.0, 0.0
+    p1h, p1l = _dd_sub(1.0, 0.0, u, 0.0)
+    for j in range(2, n + 1):
+        th, tl = _dd_mul_d(p1h, p1l, u)
+        th, tl = _dd_sub(p1h, p1l, th, tl)
+        th, tl = _dd_mul_d(th, tl, 2.0 * j - 1.0)
+        qh, ql = _dd_mul_d(p0h, p0l, j - 1.0)
+        th, tl = _dd_sub(th, tl, qh, ql)
+        th, tl = _dd_div_d(th, tl, float(j))
+        p0h, p0l = p1h, p1l
+        p1h, p1l = th, tl
+    return p1h + p1l, p0h + p0l, u
+
+
+@nb.njit(parallel=True, **_JIT)
+def _gauss_half(n, theta, weights):
+    half = (n + 1) // 2
+    for i in nb.prange(half):
+        k = i + 1
+        t = math.pi * (4.0 * k - 1.0) / (4.0 * n + 2.0)
+        # Tricomi's estimate, refined by Newton's method in theta:
+        # dP_n/dtheta = n (x P_n - P_{n-1}) / sin(theta)
+        t = math.acos((1.0 - (n - 1.0) / (8.0 * n * n * n)) * math.cos(t))
+        for _ in range(30):
+            pn, pn1, u = _legendre_pair(n, t)
+            dt = pn / (n * ((pn - u * pn) - pn1) / math.sin(t))
+            t = t - dt
+            if abs(dt) <= 1e-13 * t:
+                break
+        if k <= DD_NODES:
+            # polish in double-double: near the poles plain doubles leave ~n ulp
+            # of noise in P_n, i.e. relative errors up to 1e-12 in the node
+            for _ in range(2):
+                pn, pn1, u = _legendre_pair_dd(n, t)
+                t = t - pn / (n * ((pn - u * pn) - pn1) / math.sin(t))
+            pn, pn1, u = _legendre_pair_dd(n, t)
+        else:
+            pn, pn1, u = _legendre_pair(n, t)
+        theta[i] = t
+        s = math.sin(t)
+        weights[i] = 2.0 * s * s / (n * n * pn1 * pn1)
+
+
+def gauss_legendre(n: int):
+    """Colatitudes (ascending, radians) and weights in x of the n-point Gauss rule."""
+    half = (n + 1) // 2
+    theta = np.empty(half)
+    w = np.empty(half)
+    _gauss_half(n, theta, w)
+    colat = np.empty(n)
+    weights = np.empty(n)
+    colat[:half] = theta
+    weights[:half] = w
+    colat[n - half:] = (np.pi - theta)[::-1]
+    weights[n - half:] = w[::-1]
+    if n % 2 == 1:
+        colat[half - 1] = np.pi / 2
+    return colat, weights
+
+
+# ---------------------------------------------------------------------------
+# Recursion pieces
+# ---------------------------------------------------------------------------
+@nb.njit(inline="always", **_JIT)
+def _recursion_coeffs(m, lmax, a, c):
+    """P_l = a_l x P_{l-1} - c_l P_{l-2} for l >= m + 2 (fully normalised)."""
+    a[m] = 0.0
+    c[m] = 0.0
+    if m + 1 <= lmax:
+        a[m + 1] = math.sqrt(2.0 * m + 3.0)
+        c[m + 1] = 0.0
+    for l in range(m + 2, lmax + 1):
+        lf = float(l)
+        den = (lf - m) * (lf + m)
+        a[l] = math.sqrt((4.0 * lf * lf - 1.0) / den)
+        c[l] = a[l] * math.sqrt(((lf - 1.0) * (lf - 1.0) - m * m) / (4.0 * (lf - 1.0) * (lf - 1.0) - 1.0))
+
+
+@nb.njit(inline="always", **_JIT)
+def _sin_power(s, m):
+    """s**m as (mantissa, binary exponent) without underflow; s > 0."""
+    r = 1.0
+    er = 0
+    b, eb = math.frexp(s)
+    k = m
+    while k > 0:
+        if k & 1:
+            r = r * b
+            r, t = math.frexp(r)
+            er += eb + t
+        k >>= 1
+        if k > 0:
+            b = b * b
+            eb = 2 * eb
+            b, t = math.frexp(b)
+            eb += t
+    return r, er
+
+
+@nb.njit(inline="always", **_JIT)
+def _start(cm, m, s, shift):
+    """P_mm * sin^-shift as (mantissa, k): value = mantissa * 2^(600 k)."""
+    if m - shift == 0:
+        return cm, 0
+    if s == 0.0:
+        return 0.0, 0
+    r, e = _sin_power(s, m - shift)
+    v = cm * r
+    k = 0
+    while e < PLAIN_MIN_EXP:
+        e += SCALE_EXP
+        k -= 1
+    return math.ldexp(v, e), k
+
+
+# ---------------------------------------------------------------------------
+# Legendre functions of one order at arbitrary points (public legendre module)
+# ---------------------------------------------------------------------------
+@nb.njit(parallel=True, **_JIT)
+def legendre_order(m, lmax, x, s, cm, out, dout, want_deriv):
+    """Fully normalised Lambda_lm (no phase) for l = m..lmax at points (x, s).
+
+    out[l - m, j]; with want_deriv also d/dtheta into dout (coupled recursion
+    obtained by differentiating the three-term recursion).
+    """
+    n = x.size
+    a = np.empty(lmax + 1)
+    c = np.empty(lmax + 1)
+    _recursion_coeffs(m, lmax, a, c)
+    for j in nb.prange(n):
+        xj = x[j]
+        sj = s[j]
+        # base q = c_m sin^(m-1): P_mm = s q, dP_mm = m x q
+        if m == 0:
+            p1 = cm
+            d1 = 0.0
+            k = 0
+        else:
+            q, k = _start(cm, m, sj, 1)
+            p1 = sj * q
+            d1 = m * xj * q
+        p0 = 0.0
+        d0 = 0.0
+        for l in range(m, lmax + 1):
+            if l > m:
+                if l == m + 1:
+                    p2 = a[l] * xj * p1
+                    d2 = a[l] * (xj * d1 - sj * p1)
+                else:
+                    p2 = a[l] * xj * p1 - c[l] * p0
+                    d2 = a[l] * (xj * d1 - sj * p1) - c[l] * d0
+                p0 = p1
+                p1 = p2
+                d0 = d1
+                d1 = d2
+                if k < 0 and (abs(p1) > BIG or abs(d1) > BIG * (l + 1.0)):
+                    p0 *= INV_SCALE
+                    p1 *= INV_SCALE
+                    d0 *= INV_SCALE
+                    d1 *= INV_SCALE
+                    k += 1
+            if k == 0:
+                out[l - m, j] = p1
+                if want_deriv:
+                    dout[l - m, j] = d1
+            else:
+                out[l - m, j] = math.ldexp(p1, SCALE_EXP * k)
+                if want_deriv:
+                    dout[l - m, j] = math.ldexp(d1, SCALE_EXP * k)
+
+
+# ---------------------------------------------------------------------------
+# Transform kernels
+# ---------------------------------------------------------------------------
+@nb.njit(inline="always", **_JIT)
+def _order_of(i, nm, lo):
+    """Balanced order sequence: lo, top, lo+1, top-1, ... (pairs costly and cheap)."""
+    h = i // 2
+    if i % 2 == 0:
+        return lo + h
+    return lo + nm - 1 - h
+
+
+@nb.njit(inline="always", **_JIT)
+def _scaled_phase(m, lmax, xj, sj, cmm, shift, a, c):
+    """Run one latitude through the scaled range.
+
+    Returns (l, v0, v1): the first degree l at which the value is in plain
+    range, with v1 = P_l and v0 = P_{l-1}; l = lmax + 1 when it never gets
+    there (the latitude is negligible for this order)."""
+    q, k = _start(cmm, m, sj, shift)
+    v0 = 0.0
+    v1 = q
+    l = m
+    while k < 0:
+        if l == lmax:
+            return lmax + 1, 0.0, 0.0
+        l += 1
+        v2 = a[l] * xj * v1 - c[l] * v0
+        v0 = v1
+        v1 = v2
+        if abs(v1) > BIG:
+            v0 *= INV_SCALE
+            v1 *= INV_SCALE
+            k += 1
+    return l, v0, v1
+
+
+@nb.njit(inline="always", **_JIT)
+def _prepare_block(m, lmax, j0, nbk, x, s, cmm, shift, a, c, xb, p0, p1, ls):
+    """Start a latitude block.  Fills xb, p0, p1 (state at degree ls[jj]) and
+    ls; returns the largest start degree among live latitudes (lmax + 1 when
+    the whole block is negligible).  Dead or padding lanes get zeros."""
+    lcommon = -1
+    for jj in range(BLOCK):
+        if jj < nbk:
+            j = j0 + jj
+            l, v0, v1 = _scaled_phase(m, lmax, x[j], s[j], cmm, shift, a, c)
+            xb[jj] = x[j]
+        else:
+            l, v0, v1 = lmax + 1, 0.0, 0.0
+            xb[jj] = 0.0
+        ls[jj] = l
+        p0[jj] = v0
+        p1[jj] = v1
+        if l <= lmax and l > lcommon:
+            lcommon = l
+    if lcommon < 0:
+        return lmax + 1
+    return lcommon
+
+
+@nb.njit(parallel=True, fastmath=_FM, **_JIT)
+def analysis_kernel(lmax, mlo, mhi, x, s, cm, Er, Ei, Or, Oi, outr, outi, shift):
+    """Accumulate ortho, phase-free a_lm from even/odd Fourier sums.
+
+    x, s: (J,) cos and sin of the northern colatitude of each latitude pair,
+    ordered from the equator toward the pole.  Er, Ei, Or, Oi: (M, K, J),
+    M = mhi - mlo + 1: quadrature-weighted north + south (E) and north - south
+    (O) sums of the Fourier coefficient of order m.  outr, outi:
+    (K, M, lmax + 1), added to.  shift = 1 evaluates Lambda / sin(theta).
+    """
+    J = x.size
+    K = Er.shape[1]
+    nm = mhi - mlo + 1
+    for i in nb.prange(nm):
+        m = _order_of(i, nm, mlo)
+        mi = m - mlo
+        a = np.empty(lmax + 1)
+        c = np.empty(lmax + 1)
+        _recursion_coeffs(m, lmax, a, c)
+        xb = np.empty(BLOCK)
+        p0 = np.empty(BLOCK)
+        p1 = np.empty(BLOCK)
+        ls = np.empty(BLOCK, dtype=np.int64)
+        fe = np.zeros((K, 4, BLOCK))
+        for j0 in range(0, J, BLOCK):
+            nbk = min(BLOCK, J - j0)
+            lc = _prepare_block(m, lmax, j0, nbk, x, s, cm[m], shift, a, c, xb, p0, p1, ls)
+            if lc > lmax:
+                break  # this and every more polar latitude is negligible
+            for kk in range(K):
+                for jj in range(BLOCK):
+                    if jj < nbk and ls[jj] <= lmax:
+                        j = j0 + jj
+                        fe[kk, 0, jj] = Er[mi, kk, j]
+                        fe[kk, 1, jj] = Ei[mi, kk, j]
+                        fe[kk, 2, jj] = Or[mi, kk, j]
+                        fe[kk, 3, jj] = Oi[mi, kk, j]
+                    else:
+                        fe[kk, 0, jj] = 0.0
+                        fe[kk, 1, jj] = 0.0
+                        fe[kk, 2, jj] = 0.0
+                        fe[kk, 3, jj] = 0.0
+            # bring lagging latitudes to the common degree, one at a time
+            for jj in range(nbk):
+                l = ls[jj]
+                if l >= lc:
+                    continue
+                v0 = p0[jj]
+                v1 = p1[jj]
+                xj = xb[jj]
+                while l < lc:
+                    par = 2 * ((l - m) & 1)
+                    for kk in range(K):
+                        outr[kk, mi, l] += v1 * fe[kk, par, jj]
+                        outi[kk, mi, l] += v1 * fe[kk, par + 1, jj]
+                    l += 1
+                    v2 = a[l] * xj * v1 - c[l] * v0
+                    v0 = v1
+                    v1 = v2
+                p0[jj] = v0
+                p1[jj] = v1
+            # ---- vectorised plain phase
+            l = lc
+            while True:
+                par = 2 * ((l - m) & 1)
+                for kk in range(K):
+                    sr = 0.0
+                    si = 0.0
+                    for jj in range(BLOCK):
+                        sr += p1[jj] * fe[kk, par, jj]
+                        si += p1[jj] * fe[kk, par + 1, jj]
+                    outr[kk, mi, l] += sr
+                    outi[kk, mi, l] += si
+                if l == lmax:
+                    break
+                l += 1
+                al = a[l]
+                cl = c[l]
+                for jj in range(BLOCK):
+                    t = al * xb[jj] * p1[jj] - cl * p0[jj]
+                    p0[jj] = p1[jj]
+                    p1[jj] = t
+
+
+@nb.njit(parallel=True, fastmath=_FM, **_JIT)
+def synthesis_kernel(lmax, mlo, mhi, x, s, cm, Ar, Ai, FNr, FNi, FSr, FSi, shift):
+    """Fourier coefficients on latitude pairs from ortho, phase-free a_lm.
+
+    Ar, Ai: (K, M, lmax + 1).  FNr, FNi, FSr, FSi: (M, K, J), overwritten with
+    sum_l a_lm Lambda_lm at the northern and southern latitude of each pair.
+    """
+    J = x.size
+    K = Ar.shape[0]
+    nm = mhi - mlo + 1
+    for i in nb.prange(nm):
+        m = _order_of(i, nm, mlo)
+        mi = m - mlo
+        a = np.empty(lmax + 1)
+        c = np.empty(lmax + 1)
+        _recursion_coeffs(m, lmax, a, c)
+        xb = np.empty(BLOCK)
+        p0 = np.empty(BLOCK)
+        p1 = np.empty(BLOCK)
+        ls = np.empty(BLOCK, dtype=np.int64)
+        g = np.empty((K, 4, BLOCK))  # even re, even im, odd re, odd im
+        for j0 in range(0, J, BLOCK):
+            nbk = min(BLOCK, J - j0)
+            lc = _prepare_block(m, lmax, j0, nbk, x, s, cm[m], shift, a, c, xb, p0, p1, ls)
+            if lc > lmax:
+                for j in range(j0, J):
+                    for kk in range(K):
+                        FNr[mi, kk, j] = 0.0
+                        FNi[mi, kk, j] = 0.0
+                        FSr[mi, kk, j] = 0.0
+                        FSi[mi, kk, j] = 0.0
+                break
+            g[:] = 0.0
+            for jj in range(nbk):
+                l = ls[jj]
+                if l >= lc:
+                    continue
+                v0 = p0[jj]
+                v1 = p1[jj]
+                xj = xb[jj]
+                while l < lc:
+                    par = 2 * ((l - m) & 1)
+                    for kk in range(K):
+                        g[kk, par, jj] += Ar[kk, mi, l] * v1
+                        g[kk, par + 1, jj] += Ai[kk, mi, l] * v1
+                    l += 1
+                    v2 = a[l] * xj * v1 - c[l] * v0
+                    v0 = v1
+                    v1 = v2
+                p0[jj] = v0
+                p1[jj] = v1
+            l = lc
+            while True:
+                par = 2 * ((l - m) & 1)
+                for kk in range(K):
+                    ar = Ar[kk, mi, l]
+                    ai = Ai[kk, mi, l]
+                    for jj in range(BLOCK):
+                        g[kk, par, jj] += ar * p1[jj]
+                        g[kk, par + 1, jj] += ai * p1[jj]
+                if l == lmax:
+                    break
+                l += 1
+                al = a[l]
+                cl = c[l]
+                for jj in range(BLOCK):
+                    t = al * xb[jj] * p1[jj] - cl * p0[jj]
+                    p0[jj] = p1[jj]
+                    p1[jj] = t
+            for kk in range(K):
+                for jj in range(nbk):
+                    j = j0 + jj
+                    FNr[mi, kk, j] = g[kk, 0, jj] + g[kk, 2, jj]
+                    FNi[mi, kk, j] = g[kk, 1, jj] + g[kk, 3, jj]
+                    FSr[mi, kk, j] = g[kk, 0, jj] - g[kk, 2, jj]
+                    FSi[mi, kk, j] = g[kk, 1, jj] - g[kk, 3, jj]

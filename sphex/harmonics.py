@@ -1,0 +1,233 @@
+"""The :class:`Harmonics` container and conversion between conventions.
+
+A real field is ``f = sum_{l, m=-l..l} a_lm Y_lm`` with the complex functions
+of :mod:`sphex.legendre` (``Y_lm = Lambda_lm exp(i m phi)``).  Only ``m >= 0``
+is stored; negative orders follow from reality,
+``a_{l,-m} = s_m conj(a_lm)`` with ``s_m = (-1)^m`` under the Condon-Shortley
+phase and 1 without it (``Y_{l,-m} = s_m conj(Y_lm)``).
+
+The real (cosine/sine) form is
+
+    f = sum_l sum_{m=0..l} (C_lm cos m phi + S_lm sin m phi) r_m Lambda_lm
+
+with ``r_0 = 1``, ``r_m = sqrt(2)`` for m > 0 in the normalised conventions
+(so each real basis function has the same mean square as the complex one) and
+``r_m = 1`` for ``"unnorm"``.  Hence ``C_lm = (2/r_m) Re a_lm`` and
+``S_lm = -(2/r_m) Im a_lm`` for m > 0, and ``C_l0 = a_l0``, ``S_l0 = 0``.
+"""
+from __future__ import annotations
+
+import numbers
+
+import numpy as np
+
+from sphex.legendre import check_norm, norm_scale
+
+__all__ = ["Harmonics", "convert_factor"]
+
+
+def convert_factor(lmax: int, norm_from: str, cs_from: bool, norm_to: str, cs_to: bool) -> np.ndarray:
+    """Factor G[l, m] with a^to_lm = G[l, m] a^from_lm for the same field.
+
+    Since ``a Lambda`` is invariant, ``G = F_from / F_to`` where
+    ``Lambda^norm = F * Lambda^ortho`` (:func:`sphex.legendre.norm_scale`),
+    times ``(-1)^m`` when the phase convention changes.
+    """
+    g = norm_scale(lmax, norm_from) / norm_scale(lmax, norm_to)
+    if bool(cs_from) != bool(cs_to):
+        g[:, 1::2] *= -1.0
+    return g
+
+
+def _real_form_factor(lmax: int, norm: str) -> np.ndarray:
+    r = np.full(lmax + 1, 1.0 if norm == "unnorm" else np.sqrt(2.0))
+    r[0] = 1.0
+    return r
+
+
+class Harmonics:
+    """Spherical-harmonic coefficients of one real field or a batch of them.
+
+    Parameters
+    ----------
+    coef : array_like, complex
+        ``(..., lmax + 1, lmax + 1)`` indexed ``[..., l, m]`` for ``m >= 0``;
+        entries with ``m > l`` must be zero and ``a_l0`` real.
+    norm : {"ortho", "4pi", "schmidt", "unnorm"}
+    condon_shortley : bool
+        Whether the functions include the phase ``(-1)^m``.
+    radius : float, optional
+        Reference radius (metres) of the expansion, used by operators.
+    units : str, optional
+        Units of the field (the coefficients carry the same units).
+
+    Examples
+    --------
+    >>> import numpy as np
+    >>> c = np.zeros((3, 3), complex); c[1, 0] = 1.0
+    >>> h = Harmonics(c)
+    >>> h.lmax, h[1, 0], h.to("4pi")[1, 0]
+    (2, (1+0j), (0.28209479177387814+0j))
+    """
+
+    __array_priority__ = 1000
+
+    def __init__(self, coef, norm: str = "ortho", condon_shortley: bool = True,
+                 radius: float | None = None, units: str | None = None):
+        coef = np.asarray(coef)
+        if coef.ndim < 2 or coef.shape[-1] != coef.shape[-2]:
+            raise ValueError(f"coef must have shape (..., lmax+1, lmax+1), got {coef.shape}")
+        self.coef = coef.astype(np.complex128, copy=False)
+        self.norm = check_norm(norm)
+        self.condon_shortley = bool(condon_shortley)
+        if radius is not None:
+            radius = float(radius)
+            if not np.isfinite(radius) or radius <= 0:
+                raise ValueError(f"radius must be a positive number of metres, got {radius!r}")
+        self.radius = radius
+        self.units = None if units is None else str(units)
+
+    # -- basic properties ---------------------------------------------------
+    @property
+    def lmax(self) -> int:
+        return self.coef.shape[-1] - 1
+
+    @property
+    def batch_shape(self) -> tuple[int, ...]:
+        return self.coef.shape[:-2]
+
+    def degrees(self) -> np.ndarray:
+        return np.arange(self.lmax + 1)
+
+    def replace(self, **changes) -> "Harmonics":
+        """A copy with some of coef, norm, condon_shortley, radius, units changed."""
+        fields = dict(coef=self.coef, norm=self.norm, condon_shortley=self.condon_shortley,
+                      radius=self.radius, units=self.units)
+        unknown = set(changes) - set(fields)
+        if unknown:
+            raise ValueError(f"unknown field(s) {sorted(unknown)}; valid: {sorted(fields)}")
+        fields.update(changes)
+        return Harmonics(**fields)
+
+    def __repr__(self):
+        extra = "".join(f", {k}={v!r}" for k, v in (("radius", self.radius), ("units", self.units))
+                        if v is not None)
+        batch = f", batch_shape={self.batch_shape}" if self.batch_shape else ""
+        return (f"Harmonics(lmax={self.lmax}, norm={self.norm!r}, "
+                f"condon_shortley={self.condon_shortley}{batch}{extra})")
+
+    def __getitem__(self, index):
+        if not (isinstance(index, tuple) and len(index) == 2):
+            raise IndexError("index Harmonics as h[l, m] (use h.coef for array slicing)")
+        l, m = index
+        if not all(isinstance(v, (numbers.Integral, np.integer)) for v in (l, m)):
+            raise IndexError("h[l, m] takes integer degree and order; use h.coef[..., l, m] to slice")
+        if not 0 <= l <= self.lmax or abs(m) > l:
+            raise IndexError(f"degree {l}, order {m} is outside 0 <= |m| <= l <= lmax={self.lmax}")
+        value = self.coef[..., l, abs(m)]
+        if m < 0:
+            sign = -1.0 if (self.condon_shortley and m % 2) else 1.0
+            value = sign * np.conj(value)
+        return value[()] if np.ndim(value) == 0 else value
+
+    # -- conventions ----------------------------------------------------------
+    def to(self, norm: str | None = None, condon_shortley: bool | None = None) -> "Harmonics":
+        """The same field in another normalisation and/or phase convention."""
+        norm = self.norm if norm is None else check_norm(norm)
+        cs = self.condon_shortley if condon_shortley is None else bool(condon_shortley)
+        if norm == self.norm and cs == self.condon_shortley:
+            return self.replace(coef=self.coef.copy())
+        g = convert_factor(self.lmax, self.norm, self.condon_shortley, norm, cs)
+        tri = np.tril(np.ones((self.lmax + 1, self.lmax + 1), dtype=bool))
+        if not np.all(np.isfinite(g[tri])) or np.any(g[tri] == 0):
+            raise ValueError(f"converting lmax={self.lmax} coefficients to {norm!r} leaves double range "
+                             "(unnormalised functions overflow above degree ~150): truncate first "
+                             "(h.truncate(...)) or keep a normalised convention")
+        return self.replace(coef=np.where(tri, self.coef * g, 0), norm=norm, condon_shortley=cs)
+
+    def cos_sin(self) -> tuple[np.ndarray, np.ndarray]:
+        """Real-form coefficients ``(C, S)``, each ``(..., lmax+1, lmax+1)`` indexed [l, m]."""
+        r = _real_form_factor(self.lmax, self.norm)
+        scale = np.where(np.arange(self.lmax + 1) == 0, 1.0, 2.0 / r)
+        C = self.coef.real * scale
+        S = -self.coef.imag * scale
+        S[..., :, 0] = 0.0
+        return C, S
+
+    @classmethod
+    def from_cos_sin(cls, C, S, norm: str = "ortho", condon_shortley: bool = True,
+                     radius: float | None = None, units: str | None = None) -> "Harmonics":
+        """Build from real-form coefficients (see the module docstring for the definition)."""
+        C = np.asarray(C, dtype=np.float64)
+        S = np.asarray(S, dtype=np.float64)
+        if C.shape != S.shape or C.ndim < 2 or C.shape[-1] != C.shape[-2]:
+            raise ValueError(f"C and S must share a shape (..., lmax+1, lmax+1), got {C.shape} and {S.shape}")
+        check_norm(norm)
+        lmax = C.shape[-1] - 1
+        r = _real_form_factor(lmax, norm)
+        scale = np.where(np.arange(lmax + 1) == 0, 1.0, r / 2.0)
+        coef = (C - 1j * S) * scale
+        coef[..., :, 0] = C[..., :, 0]
+        coef = np.where(np.tril(np.ones((lmax + 1, lmax + 1), dtype=bool)), coef, 0)
+        return cls(coef, norm=norm, condon_shortley=condon_shortley, radius=radius, units=units)
+
+    # -- arithmetic -----------------------------------------------------------
+    def _aligned(self, other: "Harmonics") -> np.ndarray:
+        if not isinstance(other, Harmonics):
+            raise TypeError("Harmonics can only be added to or subtracted from Harmonics")
+        if other.lmax != self.lmax:
+            raise ValueError(f"lmax differs ({self.lmax} and {other.lmax}): truncate one first "
+                             "with h.truncate(lmax)")
+        return other.to(self.norm, self.condon_shortley).coef
+
+    def __add__(self, other):
+        return self.replace(coef=self.coef + self._aligned(other))
+
+    def __sub__(self, other):
+        return self.replace(coef=self.coef - self._aligned(other))
+
+    def __neg__(self):
+        return self.replace(coef=-self.coef)
+
+    def __mul__(self, scalar):
+        if not isinstance(scalar, numbers.Real) or isinstance(scalar, bool):
+            return NotImplemented
+        return self.replace(coef=self.coef * float(scalar))
+
+    __rmul__ = __mul__
+
+    def __truediv__(self, scalar):
+        if not isinstance(scalar, numbers.Real) or isinstance(scalar, bool):
+            return NotImplemented
+        return self.replace(coef=self.coef / float(scalar))
+
+    def truncate(self, lmax: int) -> "Harmonics":
+        """Coefficients up to degree ``lmax`` (zero-padded when larger than self.lmax)."""
+        if int(lmax) != lmax or lmax < 0:
+            raise ValueError(f"lmax must be a non-negative integer, got {lmax!r}")
+        lmax = int(lmax)
+        n = min(lmax, self.lmax) + 1
+        coef = np.zeros(self.batch_shape + (lmax + 1, lmax + 1), dtype=np.complex128)
+        coef[..., :n, :n] = self.coef[..., :n, :n]
+        return self.replace(coef=coef)
+
+    def filter(self, weights) -> "Harmonics":
+        """Multiply degree l by ``weights[l]`` (an isotropic filter).
+
+        ``weights`` is 1-D with at least lmax + 1 entries (extra ones ignored),
+        or broadcastable to ``batch_shape + (lmax + 1,)``.
+        """
+        w = np.asarray(weights, dtype=np.float64)
+        if w.ndim == 0 or w.shape[-1] < self.lmax + 1:
+            raise ValueError(f"need one weight per degree 0..{self.lmax} ({self.lmax + 1} values), "
+                             f"got shape {w.shape}")
+        if not np.all(np.isfinite(w)):
+            raise ValueError("filter weights contain NaN or inf")
+        w = w[..., : self.lmax + 1]
+        return self.replace(coef=self.coef * w[..., :, None])
+
+    def to_netcdf(self, path, **kwargs):
+        """Write to a netCDF file (see :func:`sphex.xr.write_harmonics`)."""
+        from sphex import xr as _xr
+
+        return _xr.write_harmonics(self, path, **kwargs)

@@ -1,0 +1,186 @@
+"""Normalised associated Legendre functions to very high degree.
+
+``Lambda_lm(theta)`` is the colatitude part of the complex spherical harmonic
+``Y_lm = Lambda_lm(theta) exp(i m phi)`` for ``m >= 0``:
+
+    Lambda_lm = K(l, m) * cs^m * P_l^m(cos theta),
+    P_l^m(x) = (1 - x^2)^(m/2) d^m/dx^m P_l(x)        (no phase in P_l^m),
+
+with ``cs = -1`` when ``condon_shortley`` is true and ``+1`` otherwise, and
+
+    ``"ortho"``    K = sqrt((2l+1)/(4 pi) (l-m)!/(l+m)!)   (integral of |Y|^2 = 1)
+    ``"4pi"``      K = sqrt((2l+1) (l-m)!/(l+m)!)          (integral = 4 pi)
+    ``"schmidt"``  K = sqrt((l-m)!/(l+m)!)                  (integral = 4 pi/(2l+1))
+    ``"unnorm"``   K = 1                                    (plain P_l^m)
+
+The real-form functions used with cosine/sine coefficients carry an extra
+factor sqrt(2) for m > 0 in the three normalised conventions (see
+``docs/conventions.md``); the functions here are the complex-form ones.
+
+Values come from the standard three-term recursion in degree, fully
+normalised, started from ``P_mm = c_m sin^m(theta)`` kept in extended range
+(see :mod:`sphex._kernels`), so nothing underflows or overflows to degree
+10800 and beyond at any colatitude.  The colatitude derivative comes from the
+same recursion differentiated term by term.
+"""
+from __future__ import annotations
+
+import functools
+
+import numpy as np
+
+from sphex import _kernels
+
+__all__ = ["for_order", "all_orders", "derivative_for_order", "NORMS", "norm_scale",
+           "check_norm"]
+
+NORMS = ("ortho", "4pi", "schmidt", "unnorm")
+
+
+def check_norm(norm) -> str:
+    """Validate a normalisation name and return it."""
+    if norm not in NORMS:
+        raise ValueError(f"unknown normalisation {norm!r}; valid: {', '.join(repr(n) for n in NORMS)}")
+    return norm
+
+
+@functools.lru_cache(maxsize=8)
+def _sectoral_table(lmax: int) -> np.ndarray:
+    """c_m = sqrt(1/(4 pi) prod_{k<=m} (2k+1)/(2k)): P_mm = c_m sin^m (ortho, no phase).
+
+    Accumulated in extended precision (long double) and rounded once.
+    """
+    k = np.arange(1, lmax + 1, dtype=np.longdouble)
+    ratio = (2 * k + 1) / (2 * k)
+    prod = np.concatenate([[np.longdouble(1)], np.cumprod(ratio)])
+    four_pi = 4 * np.longdouble(np.pi)
+    table = np.sqrt(prod / four_pi).astype(np.float64)
+    table.setflags(write=False)
+    return table
+
+
+def sectoral_table(lmax: int) -> np.ndarray:
+    """The start values ``c_m`` for m = 0..lmax (see :func:`_sectoral_table`)."""
+    return _sectoral_table(_round_up(lmax))[: lmax + 1]
+
+
+def _round_up(n: int) -> int:
+    return max(64, 1 << int(np.ceil(np.log2(n + 1))))
+
+
+def norm_scale(lmax: int, norm: str) -> np.ndarray:
+    """Factor F[l, m] with Lambda^norm_lm = F[l, m] * Lambda^ortho_lm (no phase).
+
+    ``(lmax+1, lmax+1)``; entries with m > l are 1.  For ``"unnorm"`` the
+    factor is 1/K_ortho, which leaves double range above degree ~150; callers
+    check for that.
+    """
+    check_norm(norm)
+    l = np.arange(lmax + 1, dtype=np.float64)[:, None]
+    m = np.arange(lmax + 1, dtype=np.float64)[None, :]
+    if norm == "ortho":
+        f = np.ones((lmax + 1, lmax + 1))
+    elif norm == "4pi":
+        f = np.full((lmax + 1, lmax + 1), np.sqrt(4 * np.pi))
+    elif norm == "schmidt":
+        f = np.broadcast_to(np.sqrt(4 * np.pi / (2 * l + 1)), (lmax + 1, lmax + 1)).copy()
+    else:
+        from scipy.special import gammaln
+
+        with np.errstate(over="ignore", invalid="ignore"):
+            logk = 0.5 * (np.log(2 * l + 1) - np.log(4 * np.pi)
+                          + gammaln(np.maximum(l - m, 0) + 1) - gammaln(l + m + 1))
+            f = np.exp(-logk)
+    f[np.broadcast_to(m > l, f.shape)] = 1.0
+    return f
+
+
+def _prepare_colat(colat):
+    colat = np.asarray(colat, dtype=np.float64)
+    if colat.ndim == 0:
+        colat = colat[None]
+    if colat.ndim != 1:
+        raise ValueError(f"colat must be a 1-D array of colatitudes in radians, got shape {colat.shape}")
+    if not np.all(np.isfinite(colat)) or np.any(colat < 0) or np.any(colat > np.pi):
+        raise ValueError("colatitudes must be finite and lie in [0, pi] radians "
+                         "(convert latitudes with colat = pi/2 - radians(lat))")
+    x = np.cos(colat)
+    s = np.sin(colat)
+    s[colat == 0] = 0.0
+    s[colat == np.pi] = 0.0
+    x[colat == np.pi / 2] = 0.0
+    return x, s
+
+
+def _check_m_lmax(m, lmax):
+    if int(lmax) != lmax or lmax < 0:
+        raise ValueError(f"lmax must be a non-negative integer, got {lmax!r}")
+    if int(m) != m or m < 0 or m > lmax:
+        raise ValueError(f"order m must be an integer with 0 <= m <= lmax={lmax}, got {m!r}")
+    return int(m), int(lmax)
+
+
+def _order_values(m, lmax, colat, norm, condon_shortley, want_deriv):
+    check_norm(norm)
+    m, lmax = _check_m_lmax(m, lmax)
+    x, s = _prepare_colat(colat)
+    out = np.empty((lmax + 1 - m, x.size))
+    dout = np.empty((lmax + 1 - m, x.size)) if want_deriv else np.empty((1, 1))
+    _kernels.legendre_order(m, lmax, x, s, sectoral_table(lmax)[m], out, dout, want_deriv)
+    res = dout if want_deriv else out
+    scale = norm_scale(lmax, norm)[m:, m]
+    if norm == "unnorm" and not np.all(np.isfinite(scale)):
+        raise ValueError(f"unnormalised functions of order {m} overflow double precision below degree "
+                         f"{lmax}: use norm='ortho', '4pi' or 'schmidt' at this degree")
+    sign = -1.0 if (condon_shortley and m % 2 == 1) else 1.0
+    return res * (sign * scale)[:, None]
+
+
+def for_order(m: int, lmax: int, colat, norm: str = "ortho", condon_shortley: bool = True) -> np.ndarray:
+    """Lambda_lm(colat) for one order m and degrees l = m..lmax.
+
+    Parameters
+    ----------
+    m, lmax : int
+        Order and highest degree, ``0 <= m <= lmax``.
+    colat : array_like
+        Colatitudes in radians, 1-D, within [0, pi].
+    norm : {"ortho", "4pi", "schmidt", "unnorm"}
+    condon_shortley : bool
+        Include the phase ``(-1)^m``.
+
+    Returns
+    -------
+    ndarray, shape ``(lmax + 1 - m, len(colat))``
+        Row ``l - m`` holds degree ``l``.
+
+    Examples
+    --------
+    >>> import numpy as np
+    >>> v = for_order(0, 2, [0.0], norm="unnorm")
+    >>> np.allclose(v[:, 0], [1, 1, 1])
+    True
+    """
+    return _order_values(m, lmax, colat, norm, condon_shortley, False)
+
+
+def derivative_for_order(m: int, lmax: int, colat, norm: str = "ortho",
+                         condon_shortley: bool = True) -> np.ndarray:
+    """d Lambda_lm / d theta (colatitude), same layout as :func:`for_order`."""
+    return _order_values(m, lmax, colat, norm, condon_shortley, True)
+
+
+def all_orders(lmax: int, colat, norm: str = "ortho", condon_shortley: bool = True) -> np.ndarray:
+    """Lambda_lm(colat) for every degree and order up to lmax.
+
+    Returns
+    -------
+    ndarray, shape ``(lmax + 1, lmax + 1, len(colat))``
+        Indexed ``[l, m]``; zero where ``m > l``.  Memory grows as lmax^2 times
+        the number of points: use :func:`for_order` order by order at high degree.
+    """
+    x, _ = _prepare_colat(colat)
+    out = np.zeros((lmax + 1, lmax + 1, x.size))
+    for m in range(lmax + 1):
+        out[m:, m, :] = for_order(m, lmax, colat, norm, condon_shortley)
+    return out

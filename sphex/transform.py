@@ -1,0 +1,399 @@
+"""Analysis and synthesis of real scalar fields on latitude-longitude grids.
+
+The transform is a real FFT in longitude (``scipy.fft`` with workers) followed
+by a Legendre stage per order ``m`` (:mod:`sphex._kernels`) that uses the
+north/south symmetry ``Lambda_lm(pi - theta) = (-1)^(l-m) Lambda_lm(theta)``:
+each pair of mirrored latitudes is handled in one pass, with the even and odd
+degrees taking the sum and the difference of the two rings.  The Legendre
+functions are generated on the fly by the three-term recursion, so memory is
+O(lmax^2) whatever the degree; orders whose functions are negligible near the
+poles skip that range.
+
+Analysis computes ``a_lm = integral f conj(Y_lm) dOmega`` with the grid's
+quadrature, exact for fields band-limited to ``grid.lmax_exact``:
+
+    a_lm = 2 pi sum_j w_j Lambda_lm(theta_j) G_m(theta_j),
+    G_m(theta_j) = (1/nlon) sum_k f_jk exp(-i m phi_k).
+
+Synthesis evaluates ``f = sum_{l,m} a_lm Y_lm`` exactly at the grid's nodes
+(any grid, any degree).  Longitude is measured from 0 whatever the grid's
+first longitude.
+"""
+from __future__ import annotations
+
+import functools
+import os
+
+import numpy as np
+import scipy.fft
+
+from sphex import _kernels
+from sphex.grids import Grid
+from sphex.harmonics import Harmonics, convert_factor
+from sphex.legendre import check_norm, sectoral_table
+
+__all__ = ["analyze", "synthesize", "synthesize_gradient", "regrid"]
+
+
+def _workers() -> int:
+    return os.cpu_count() or 1
+
+
+# ---------------------------------------------------------------------------
+# validation
+# ---------------------------------------------------------------------------
+def _check_grid(grid) -> Grid:
+    if not isinstance(grid, Grid):
+        raise ValueError(f"grid must be a sphex.Grid (Grid.gauss, Grid.equiangular or Grid.from_coords), "
+                         f"got {type(grid).__name__}")
+    return grid
+
+
+def _check_values(values, grid: Grid) -> np.ndarray:
+    arr = np.asarray(values)
+    if arr.dtype.kind not in "fiu":
+        raise ValueError(f"values must be real numbers (float or integer), got dtype {arr.dtype}; "
+                         "for complex data analyse the real and imaginary parts separately")
+    if arr.ndim < 2 or arr.shape[-2:] != grid.shape:
+        raise ValueError(f"values have shape {arr.shape} but the grid is (nlat, nlon) = {grid.shape}: "
+                         "the last two axes must be latitude then longitude "
+                         "(transpose with np.moveaxis if they are swapped)")
+    if arr.dtype.kind == "f" and not np.all(np.isfinite(arr)):
+        bad = int(np.size(arr) - np.count_nonzero(np.isfinite(arr)))
+        raise ValueError(f"values contain {bad} NaN or inf entries: fill or mask them first "
+                         "(a spherical-harmonic analysis needs every grid point)")
+    return arr
+
+
+def _check_lmax(lmax, grid: Grid, allow_aliasing: bool) -> int:
+    if lmax is None:
+        return grid.lmax_exact
+    if isinstance(lmax, bool) or int(lmax) != lmax or lmax < 0:
+        raise ValueError(f"lmax must be a non-negative integer, got {lmax!r}")
+    lmax = int(lmax)
+    if lmax > grid.lmax_exact and not allow_aliasing:
+        raise ValueError(f"lmax={lmax} is above this grid's exact degree limit {grid.lmax_exact} "
+                         f"({grid!r}): use lmax <= {grid.lmax_exact}, a finer grid, or "
+                         "allow_aliasing=True to accept an aliased result")
+    return lmax
+
+
+# ---------------------------------------------------------------------------
+# latitude pairs
+# ---------------------------------------------------------------------------
+class _Pairs:
+    """Latitude rings grouped in mirrored pairs, ordered from the equator to the poles."""
+
+    def __init__(self, grid: Grid):
+        colat = grid.colat
+        order = np.argsort(colat, kind="stable")
+        n = colat.size
+        used = np.zeros(n, dtype=bool)
+        north, south = [], []
+        # match each northern ring with its mirror
+        sorted_c = colat[order]
+        for idx in order:
+            if used[idx] or colat[idx] > np.pi / 2 + 1e-14:
+                continue
+            used[idx] = True
+            target = np.pi - colat[idx]
+            if abs(colat[idx] - np.pi / 2) <= 1e-14:
+                north.append(idx)
+                south.append(idx)
+                continue
+            k = int(np.searchsorted(sorted_c, target - 1e-12))
+            mate = -1
+            if k < n and abs(sorted_c[k] - target) <= 1e-12 and not used[order[k]]:
+                mate = int(order[k])
+                used[mate] = True
+            north.append(idx)
+            south.append(mate)
+        for idx in order:  # southern rings without a northern mirror
+            if not used[idx]:
+                used[idx] = True
+                north.append(-1)
+                south.append(int(idx))
+        self.north = np.array(north, dtype=np.int64)
+        self.south = np.array(south, dtype=np.int64)
+        ref = np.where(self.north >= 0, self.north, self.south)
+        theta = colat[ref]
+        theta = np.where(self.north >= 0, theta, np.pi - theta)  # northern colatitude of the pair
+        x = np.cos(theta)
+        s = np.sin(theta)
+        x[np.abs(theta - np.pi / 2) <= 1e-14] = 0.0
+        s[theta == 0] = 0.0
+        # equator first, poles last
+        perm = np.argsort(-theta, kind="stable")
+        self.north, self.south = self.north[perm], self.south[perm]
+        self.x, self.s = x[perm], s[perm]
+        w = grid.weights
+        same = self.north == self.south
+        self.wn = np.where(self.north >= 0, w[np.maximum(self.north, 0)], 0.0)
+        self.ws = np.where(self.south >= 0, w[np.maximum(self.south, 0)], 0.0)
+        self.wn = np.where(same, self.wn / 2, self.wn)
+        self.ws = np.where(same, self.ws / 2, self.ws)
+        self.n = self.x.size
+
+
+@functools.lru_cache(maxsize=32)
+def _pairs(grid: Grid) -> _Pairs:
+    return _Pairs(grid)
+
+
+def _phase(m_count: int, grid: Grid) -> np.ndarray:
+    """exp(i m lon0) for m = 0..m_count-1."""
+    return np.exp(1j * np.arange(m_count) * np.radians(grid.lon0))
+
+
+# ---------------------------------------------------------------------------
+# Legendre stage drivers (ortho, no phase)
+# ---------------------------------------------------------------------------
+def _legendre_analysis(F: np.ndarray, grid: Grid, lmax: int) -> np.ndarray:
+    """F: (K, nlat, M) Fourier coefficients G_m; returns (K, lmax+1, lmax+1) ortho no-phase."""
+    pairs = _pairs(grid)
+    K, _, M = F.shape
+    zero = np.zeros((K, 1, M), dtype=F.dtype)
+    Fz = np.concatenate([F, zero], axis=1)  # index -1 -> zero ring
+    fn = Fz[:, pairs.north, :] * (2 * np.pi * pairs.wn)[None, :, None]
+    fs = Fz[:, pairs.south, :] * (2 * np.pi * pairs.ws)[None, :, None]
+    E = np.ascontiguousarray((fn + fs).transpose(2, 0, 1))
+    O = np.ascontiguousarray((fn - fs).transpose(2, 0, 1))
+    outr = np.zeros((K, M, lmax + 1))
+    outi = np.zeros((K, M, lmax + 1))
+    cm = sectoral_table(lmax)
+    _kernels.analysis_kernel(lmax, 0, M - 1, pairs.x, pairs.s, cm,
+                             np.ascontiguousarray(E.real), np.ascontiguousarray(E.imag),
+                             np.ascontiguousarray(O.real), np.ascontiguousarray(O.imag),
+                             outr, outi, 0)
+    coef = np.zeros((K, lmax + 1, lmax + 1), dtype=np.complex128)
+    coef[:, :, :M] = (outr + 1j * outi).transpose(0, 2, 1)
+    coef[:, :, 0] = coef[:, :, 0].real
+    return coef
+
+
+def _legendre_synthesis(A: np.ndarray, grid: Grid, mlo: int, shift: int = 0) -> np.ndarray:
+    """A: (K, M, lmax+1) coefficients by [order - mlo, degree] (ortho, no phase).
+
+    Returns (K, nlat, M) sums sum_l A Lambda_lm (divided by sin theta when shift=1).
+    """
+    pairs = _pairs(grid)
+    K, M, L1 = A.shape
+    lmax = L1 - 1
+    J = pairs.n
+    FNr = np.empty((M, K, J))
+    FNi = np.empty((M, K, J))
+    FSr = np.empty((M, K, J))
+    FSi = np.empty((M, K, J))
+    cm = sectoral_table(lmax)
+    _kernels.synthesis_kernel(lmax, mlo, mlo + M - 1, pairs.x, pairs.s, cm,
+                              np.ascontiguousarray(A.real), np.ascontiguousarray(A.imag),
+                              FNr, FNi, FSr, FSi, shift)
+    out = np.zeros((K, grid.nlat + 1, M), dtype=np.complex128)
+    north = np.where(pairs.north >= 0, pairs.north, grid.nlat)
+    south = np.where(pairs.south >= 0, pairs.south, grid.nlat)
+    out[:, south, :] = (FSr + 1j * FSi).transpose(1, 2, 0)
+    out[:, north, :] = (FNr + 1j * FNi).transpose(1, 2, 0)
+    return out[:, :-1, :]
+
+
+def _fourier_synthesis(G: np.ndarray, grid: Grid) -> np.ndarray:
+    """G: (K, nlat, M) with orders 0..M-1 -> real values (K, nlat, nlon)."""
+    K, nlat, M = G.shape
+    N = grid.nlon
+    G = G * _phase(M, grid)[None, None, :] * N
+    if M - 1 < (N + 1) // 2:  # no folding needed (Nyquist excluded for even N)
+        X = np.zeros((K, nlat, N // 2 + 1), dtype=np.complex128)
+        X[..., :M] = G
+        X[..., 0] = X[..., 0].real
+        return scipy.fft.irfft(X, n=N, axis=-1, workers=_workers())
+    # coarse target: fold orders beyond the Nyquist frequency (exact evaluation)
+    X = np.zeros((K, nlat, N), dtype=np.complex128)
+    m = np.arange(M)
+    np.add.at(X, (slice(None), slice(None), m % N), G)
+    np.add.at(X, (slice(None), slice(None), (-m[1:]) % N), np.conj(G[..., 1:]))
+    X[..., 0] -= 1j * G[..., 0].imag  # the m = 0 term is real
+    return scipy.fft.ifft(X, axis=-1, workers=_workers()).real
+
+
+# ---------------------------------------------------------------------------
+# public functions
+# ---------------------------------------------------------------------------
+def analyze(values, grid: Grid, lmax: int | None = None, norm: str = "ortho",
+            condon_shortley: bool = True, *, radius: float | None = None,
+            units: str | None = None, allow_aliasing: bool = False) -> Harmonics:
+    """Spherical-harmonic coefficients of real fields sampled on a grid.
+
+    Parameters
+    ----------
+    values : array_like, shape ``(..., nlat, nlon)``
+        Real field(s); leading axes are a batch (time, level, member) done in
+        one call.  Integer and float32 input is computed in float64; any memory
+        layout is accepted.
+    grid : Grid
+        The grid the values are sampled on (rows in ``grid.lat`` order).
+    lmax : int, optional
+        Highest degree; default ``grid.lmax_exact``.  Larger values raise
+        unless ``allow_aliasing=True``.
+    norm : {"ortho", "4pi", "schmidt", "unnorm"}
+    condon_shortley : bool
+        Whether the functions carry the phase ``(-1)^m``.
+    radius, units : optional
+        Stored on the result (reference radius in metres, units of the field).
+    allow_aliasing : bool
+        Accept ``lmax > grid.lmax_exact`` (the result is then aliased, not exact).
+
+    Returns
+    -------
+    Harmonics
+        Coefficients with ``coef.shape == values.shape[:-2] + (lmax+1, lmax+1)``.
+
+    Raises
+    ------
+    ValueError
+        NaN or inf in ``values``, a shape that does not match the grid, ``lmax``
+        above the grid's exact limit, an unknown normalisation.
+
+    Notes
+    -----
+    ``a_lm = 2 pi sum_j w_j Lambda_lm(theta_j) (1/nlon) sum_k f_jk exp(-i m phi_k)``,
+    exact for fields band-limited to ``grid.lmax_exact``.
+
+    Examples
+    --------
+    >>> import numpy as np
+    >>> g = Grid.gauss(7)
+    >>> x = np.cos(g.colat)[:, None] * np.ones(g.nlon)       # f = cos(theta)
+    >>> h = analyze(x, g)
+    >>> round(float(h[1, 0].real), 12) == round(float(np.sqrt(4 * np.pi / 3)), 12)
+    True
+    """
+    grid = _check_grid(grid)
+    check_norm(norm)
+    arr = _check_values(values, grid)
+    lmax = _check_lmax(lmax, grid, allow_aliasing)
+    batch = arr.shape[:-2]
+    v = np.asarray(arr.reshape((-1,) + grid.shape), dtype=np.float64)
+    G = scipy.fft.rfft(v, axis=-1, workers=_workers())
+    M = min(lmax, grid.nlon // 2) + 1
+    G = G[..., :M] * (np.conj(_phase(M, grid)) / grid.nlon)[None, None, :]
+    coef = _legendre_analysis(G, grid, lmax)
+    g = convert_factor(lmax, "ortho", False, norm, condon_shortley)
+    tri = np.tril(np.ones((lmax + 1, lmax + 1), dtype=bool))
+    if not np.all(np.isfinite(g[tri])) or np.any(g[tri] == 0):
+        raise ValueError(f"unnormalised coefficients to lmax={lmax} leave double range: use "
+                         "norm='ortho', '4pi' or 'schmidt' (or a lower lmax)")
+    coef = np.where(tri, coef * g, 0).reshape(batch + (lmax + 1, lmax + 1))
+    return Harmonics(coef, norm=norm, condon_shortley=condon_shortley, radius=radius, units=units)
+
+
+def _ortho_coef(h: Harmonics) -> np.ndarray:
+    if not isinstance(h, Harmonics):
+        raise ValueError(f"expected a sphex.Harmonics, got {type(h).__name__}")
+    g = convert_factor(h.lmax, h.norm, h.condon_shortley, "ortho", False)
+    tri = np.tril(np.ones((h.lmax + 1, h.lmax + 1), dtype=bool))
+    with np.errstate(invalid="ignore", over="ignore"):
+        c = np.where(tri, h.coef * g, 0)
+    if not np.all(np.isfinite(c)):
+        raise ValueError("coefficients are not finite (or overflow when converted from "
+                         f"{h.norm!r}): check the input")
+    return c.reshape((-1, h.lmax + 1, h.lmax + 1))
+
+
+def synthesize(h: Harmonics, grid: Grid) -> np.ndarray:
+    """Values of the field(s) ``h`` at the nodes of ``grid``.
+
+    Parameters
+    ----------
+    h : Harmonics
+        Any degree, normalisation and phase convention; a batch is kept.
+    grid : Grid
+        Target grid (any kind; coarser than the degree is fine: the values
+        are exact point evaluations).
+
+    Returns
+    -------
+    ndarray, shape ``h.batch_shape + grid.shape``, float64
+
+    Examples
+    --------
+    >>> import numpy as np
+    >>> g = Grid.gauss(7)
+    >>> c = np.zeros((8, 8), complex); c[0, 0] = np.sqrt(4 * np.pi)
+    >>> float(np.ptp(synthesize(Harmonics(c), g) - 1.0)) < 1e-14
+    True
+    """
+    grid = _check_grid(grid)
+    c = _ortho_coef(h)
+    A = np.ascontiguousarray(c.transpose(0, 2, 1))  # (K, m, l)
+    G = _legendre_synthesis(A, grid, 0)
+    out = _fourier_synthesis(G, grid)
+    return out.reshape(h.batch_shape + grid.shape)
+
+
+def synthesize_gradient(h: Harmonics, grid: Grid) -> tuple[np.ndarray, np.ndarray]:
+    """Horizontal gradient of ``h`` on the unit sphere at the nodes of ``grid``.
+
+    Returns
+    -------
+    east, north : ndarray, each ``h.batch_shape + grid.shape``
+        ``east = (1 / sin theta) df/dphi`` and ``north = df/dlat = -df/dtheta``.
+
+    Notes
+    -----
+    Exact: the colatitude derivative uses, for the fully normalised functions,
+
+        dLambda_lm/dtheta = (sqrt((l+m)(l-m+1)) Lambda_l,m-1
+                             - sqrt((l-m)(l+m+1)) Lambda_l,m+1) / 2   (m >= 1),
+        dLambda_l0/dtheta = -sqrt(l(l+1)) Lambda_l1,
+
+    and the longitude term ``i m Lambda_lm / sin theta`` is evaluated with the
+    recursion started from ``c_m sin^(m-1) theta``, so nothing is divided by
+    ``sin theta`` near the poles.
+    """
+    grid = _check_grid(grid)
+    c = _ortho_coef(h)  # (K, l, m)
+    K, L1, _ = c.shape
+    lmax = L1 - 1
+    l = np.arange(L1, dtype=np.float64)[:, None]
+    m = np.arange(L1, dtype=np.float64)[None, :]
+    A = c.transpose(0, 2, 1)  # (K, m, l)
+    shape = h.batch_shape + grid.shape
+    if lmax == 0:
+        z = np.zeros(shape)
+        return z, z.copy()
+    # d/dtheta: contributions to Fourier order m from function orders m-1 and m+1
+    up = 0.5 * np.sqrt(np.maximum((l + m) * (l - m + 1), 0.0))           # [l, m], m >= 1
+    dn = 0.5 * np.sqrt(np.maximum((l - m) * (l + m + 1), 0.0))           # [l, m]
+    dn[:, 0] = np.sqrt(l[:, 0] * (l[:, 0] + 1))
+    # pass 1: function order mu = m - 1 (mu = 0..lmax-1), coefficient up[l, m] a_lm
+    B = (c[:, :, 1:] * up[None, :, 1:]).transpose(0, 2, 1)               # (K, mu, l)
+    H1 = _legendre_synthesis(np.ascontiguousarray(B), grid, 0)            # orders mu -> m = mu + 1
+    # pass 2: function order mu = m + 1 (mu = 1..lmax), coefficient -dn[l, m] a_lm
+    C = (-c[:, :, :-1] * dn[None, :, :-1]).transpose(0, 2, 1)            # (K, m, l) with mu = m+1
+    H2 = _legendre_synthesis(np.ascontiguousarray(C), grid, 1)           # orders mu -> m = mu - 1
+    D = np.zeros((K, grid.nlat, L1), dtype=np.complex128)
+    D[:, :, 1:] += H1
+    D[:, :, :-1] += H2
+    north = -_fourier_synthesis(D, grid)
+    # longitude term for m >= 1
+    Ae = np.ascontiguousarray(A[:, 1:, :])
+    Ks = _legendre_synthesis(Ae, grid, 1, shift=1)
+    Eq = np.zeros((K, grid.nlat, L1), dtype=np.complex128)
+    Eq[:, :, 1:] = 1j * np.arange(1, L1)[None, None, :] * Ks
+    east = _fourier_synthesis(Eq, grid)
+    return east.reshape(shape), north.reshape(shape)
+
+
+def regrid(values, source: Grid, target: Grid, lmax: int | None = None) -> np.ndarray:
+    """Spectral regridding: analysis on ``source``, synthesis on ``target``.
+
+    The field is band-limited to ``lmax`` (default: the smaller of the two
+    grids' exact limits), so a field band-limited to that degree is reproduced
+    exactly on the target grid.
+    """
+    source = _check_grid(source)
+    target = _check_grid(target)
+    if lmax is None:
+        lmax = min(source.lmax_exact, target.lmax_exact)
+    h = analyze(values, source, lmax=lmax)
+    return synthesize(h, target)
