@@ -1,0 +1,258 @@
+"""Degree power spectra, cross spectra, correlation and power-law slopes.
+
+All spectra here are physical quantities: they are computed from the
+coefficients converted to the ``"ortho"`` normalisation with the
+Condon-Shortley phase, so the same field gives the same spectrum whatever
+convention its :class:`~sphex.harmonics.Harmonics` carries.
+
+Units: a spectrum of a field in units ``u`` (``h.units``) is in ``u**2``
+(for example ``m**2`` for topography in metres); correlations are
+dimensionless; degree RMS amplitudes are in ``u``.
+
+The functions take a :class:`~sphex.harmonics.Harmonics` (or, for
+:func:`spectral_slope`, a spectrum array) and return plain numpy arrays whose
+last axis is the degree ``l = 0..lmax``; leading batch axes are kept.
+"""
+from __future__ import annotations
+
+import numpy as np
+
+from sphex.harmonics import Harmonics
+
+__all__ = [
+    "degree_power",
+    "power_per_coefficient",
+    "degree_rms",
+    "coefficient_rms",
+    "cumulative_power",
+    "cross_power",
+    "correlation",
+    "spectral_slope",
+]
+
+_FOUR_PI = 4.0 * np.pi
+
+
+def _check_harmonics(h: object, name: str = "h") -> Harmonics:
+    if not isinstance(h, Harmonics):
+        raise ValueError(
+            f"{name} must be a sphex.Harmonics (got {type(h).__name__}); "
+            "make one with sphex.analyze(values, grid)"
+        )
+    return h
+
+
+def _ortho_coef(h: Harmonics) -> np.ndarray:
+    """Coefficients of the same field in the 'ortho', Condon-Shortley convention."""
+    if h.norm == "ortho" and h.condon_shortley:
+        return h.coef
+    return h.to(norm="ortho", condon_shortley=True).coef
+
+
+def _degree_sum(prod: np.ndarray) -> np.ndarray:
+    """Per-degree sum over orders of a [l, m] product: m = 0 once, m > 0 twice."""
+    return (prod[..., :, 0] + 2.0 * prod[..., :, 1:].sum(axis=-1)) / _FOUR_PI
+
+
+def degree_power(h: Harmonics) -> np.ndarray:
+    r"""Contribution of each degree to the mean square of the field over the sphere.
+
+    Parameters
+    ----------
+    h : Harmonics
+        Coefficients of a real field, any normalisation and phase convention,
+        optionally with leading batch axes.
+
+    Returns
+    -------
+    numpy.ndarray
+        Shape ``(..., lmax+1)``, in units squared of ``h.units``.
+
+    Notes
+    -----
+    With the coefficients :math:`a_{lm}` of the "ortho" normalisation,
+
+    .. math:: P_l = \frac{1}{4\pi}\Big(a_{l0}^2 + 2\sum_{m=1}^{l} |a_{lm}|^2\Big),
+
+    so that :math:`\sum_l P_l = \frac{1}{4\pi}\int f^2\,d\Omega`, the area
+    mean of :math:`f^2` (Parseval). In the real "4pi" form this is
+    :math:`\sum_m (C_{lm}^2 + S_{lm}^2)`, the geodesists' degree variance.
+
+    Examples
+    --------
+    >>> import numpy as np, sphex
+    >>> from sphex.spectra import degree_power
+    >>> grid = sphex.Grid.gauss(8)
+    >>> lat = np.radians(grid.lat)[:, None] + 0 * grid.lon
+    >>> p2 = 1.5 * np.sin(lat) ** 2 - 0.5          # Legendre P_2(sin lat)
+    >>> np.round(degree_power(sphex.analyze(p2, grid))[:4], 12)
+    array([0. , 0. , 0.2, 0. ])
+    """
+    _check_harmonics(h)
+    a = _ortho_coef(h)
+    return _degree_sum(np.abs(a) ** 2)
+
+
+def power_per_coefficient(h: Harmonics) -> np.ndarray:
+    r"""Degree power divided by the number of coefficients of the degree.
+
+    :math:`P_l / (2l+1)`: the mean square of one "4pi"-normalised
+    coefficient of degree l (the power spectral density per degree and
+    order). Units squared of ``h.units``; shape ``(..., lmax+1)``.
+    """
+    p = degree_power(h)
+    return p / (2.0 * np.arange(p.shape[-1]) + 1.0)
+
+
+def degree_rms(h: Harmonics) -> np.ndarray:
+    r"""RMS over the sphere of the degree-l part of the field, :math:`\sqrt{P_l}`.
+
+    Units of ``h.units``; shape ``(..., lmax+1)``. The RMS of the whole field
+    is ``sqrt(degree_power(h).sum(-1))``.
+    """
+    return np.sqrt(degree_power(h))
+
+
+def coefficient_rms(h: Harmonics) -> np.ndarray:
+    r"""RMS of a "4pi"-normalised coefficient at each degree, :math:`\sqrt{P_l/(2l+1)}`.
+
+    This is the per-degree amplitude geodesists compare with a power rule
+    (for example :math:`10^{-5}/l^2` for planetary gravity). Units of
+    ``h.units``; shape ``(..., lmax+1)``.
+    """
+    return np.sqrt(power_per_coefficient(h))
+
+
+def cumulative_power(h: Harmonics) -> np.ndarray:
+    r"""Mean square of the field up to and including each degree.
+
+    :math:`\sum_{k \le l} P_k`; the last entry is the area mean of
+    :math:`f^2`. Units squared of ``h.units``; shape ``(..., lmax+1)``.
+    """
+    return np.cumsum(degree_power(h), axis=-1)
+
+
+def _common_pair(h1: Harmonics, h2: Harmonics) -> tuple[np.ndarray, np.ndarray]:
+    _check_harmonics(h1, "h1")
+    _check_harmonics(h2, "h2")
+    lmax = min(h1.lmax, h2.lmax)
+    a1 = _ortho_coef(h1)[..., : lmax + 1, : lmax + 1]
+    a2 = _ortho_coef(h2)[..., : lmax + 1, : lmax + 1]
+    try:
+        np.broadcast_shapes(a1.shape, a2.shape)
+    except ValueError:
+        raise ValueError(
+            f"batch shapes {h1.batch_shape} and {h2.batch_shape} do not broadcast; "
+            "give both fields the same leading axes"
+        ) from None
+    return a1, a2
+
+
+def cross_power(h1: Harmonics, h2: Harmonics) -> np.ndarray:
+    r"""Contribution of each degree to the area mean of the product of two fields.
+
+    Parameters
+    ----------
+    h1, h2 : Harmonics
+        Coefficients of two real fields, in any conventions (each is
+        converted); batch shapes must broadcast. Degrees above the smaller
+        ``lmax`` are ignored.
+
+    Returns
+    -------
+    numpy.ndarray
+        Shape ``(..., min(lmax1, lmax2)+1)``, in units of ``h1.units`` times
+        ``h2.units``.
+
+    Notes
+    -----
+    .. math:: X_l = \frac{1}{4\pi}\,\mathrm{Re}\Big(a_{l0} b_{l0} +
+              2\sum_{m=1}^{l} a_{lm}\,\overline{b_{lm}}\Big),
+
+    with "ortho" coefficients, so :math:`\sum_l X_l` is the area mean of
+    :math:`f_1 f_2`, and ``cross_power(h, h) == degree_power(h)``.
+    """
+    a1, a2 = _common_pair(h1, h2)
+    return _degree_sum((a1 * np.conj(a2)).real)
+
+
+def correlation(h1: Harmonics, h2: Harmonics) -> np.ndarray:
+    r"""Per-degree correlation coefficient of two fields.
+
+    :math:`X_l / \sqrt{P^{(1)}_l P^{(2)}_l}`, between -1 and 1: 1 for a
+    field with itself (or any positive multiple), -1 with its negative. It is
+    NaN at degrees where either field has no power. Dimensionless; shape
+    ``(..., min(lmax1, lmax2)+1)``.
+    """
+    a1, a2 = _common_pair(h1, h2)
+    x = _degree_sum((a1 * np.conj(a2)).real)
+    p1 = _degree_sum(np.abs(a1) ** 2)
+    p2 = _degree_sum(np.abs(a2) ** 2)
+    den = np.sqrt(p1 * p2)
+    with np.errstate(invalid="ignore", divide="ignore"):
+        r = np.where(den > 0, x / np.where(den > 0, den, 1.0), np.nan)
+    return np.clip(r, -1.0, 1.0)
+
+
+def spectral_slope(power: np.ndarray, lmin: int, lmax: int) -> tuple:
+    r"""Fit a power law :math:`P_l \approx 10^{c}\, l^{s}` over ``lmin <= l <= lmax``.
+
+    Parameters
+    ----------
+    power : array_like
+        A spectrum indexed by degree along the last axis (``power[..., l]``),
+        for example from :func:`degree_power`; leading axes are a batch.
+    lmin, lmax : int
+        Degree range of the fit, ``1 <= lmin < lmax <= power.shape[-1] - 1``.
+        Every value in the range must be positive.
+
+    Returns
+    -------
+    slope, intercept : float or numpy.ndarray
+        Least-squares line through :math:`(\log_{10} l, \log_{10} P_l)`:
+        ``log10(P) = slope * log10(l) + intercept``. Floats for a single
+        spectrum, arrays of the batch shape otherwise.
+
+    Raises
+    ------
+    ValueError
+        If the range is empty or outside the spectrum, or a power in it is
+        not positive and finite.
+
+    Examples
+    --------
+    >>> import numpy as np
+    >>> from sphex.spectra import spectral_slope
+    >>> l = np.arange(101)
+    >>> p = np.zeros(101); p[1:] = 3.0 * l[1:] ** -2.5
+    >>> s, c = spectral_slope(p, 2, 100)
+    >>> round(s, 12), round(10 ** c, 12)
+    (-2.5, 3.0)
+    """
+    p = np.asarray(power, dtype=float)
+    if p.ndim == 0:
+        raise ValueError("power must be an array indexed by degree along its last axis")
+    nl = p.shape[-1]
+    if int(lmin) != lmin or int(lmax) != lmax:
+        raise ValueError(f"lmin and lmax must be integers (got {lmin!r}, {lmax!r})")
+    lmin, lmax = int(lmin), int(lmax)
+    if not (1 <= lmin < lmax <= nl - 1):
+        raise ValueError(
+            f"need 1 <= lmin < lmax <= {nl - 1} for a spectrum of {nl} degrees "
+            f"(got lmin={lmin}, lmax={lmax}); degree 0 cannot enter a log-log fit"
+        )
+    seg = p[..., lmin : lmax + 1]
+    if not np.all(np.isfinite(seg)) or np.any(seg <= 0):
+        raise ValueError(
+            f"power must be positive and finite for degrees {lmin}..{lmax}; "
+            "narrow the range to where the spectrum is positive"
+        )
+    x = np.log10(np.arange(lmin, lmax + 1, dtype=float))
+    y = np.log10(seg)
+    xm = x.mean()
+    dx = x - xm
+    slope = (y * dx).sum(axis=-1) / (dx * dx).sum()
+    intercept = y.mean(axis=-1) - slope * xm
+    if np.ndim(slope) == 0:
+        return float(slope), float(intercept)
+    return slope, intercept

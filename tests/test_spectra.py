@@ -1,0 +1,227 @@
+"""Checks of sphex.spectra: degree power (Parseval), cross power, correlation, slopes."""
+from __future__ import annotations
+
+import itertools
+
+import numpy as np
+import pytest
+
+from sphex import Grid, Harmonics, analyze
+from sphex.spectra import (
+    coefficient_rms,
+    correlation,
+    cross_power,
+    cumulative_power,
+    degree_power,
+    degree_rms,
+    power_per_coefficient,
+    spectral_slope,
+)
+
+NORMS = ("ortho", "4pi", "schmidt", "unnorm")
+PHASES = (True, False)
+
+
+# ----------------------------------------------------------------- test fields
+def polynomial_field(rng: np.random.Generator, degree: int):
+    """A random polynomial F(x, y, z) of total degree <= `degree`, as f(lat, lon).
+
+    Restricted to the unit sphere it is band-limited to `degree` (common practice:
+    harmonic polynomials of degree <= n span the same space on the sphere).
+    """
+    terms = [(i, j, k) for i in range(degree + 1) for j in range(degree + 1)
+             for k in range(degree + 1) if i + j + k <= degree]
+    coef = rng.standard_normal(len(terms))
+
+    def f(lat_deg, lon_deg):
+        lat, lon = np.radians(lat_deg), np.radians(lon_deg)
+        x, y, z = np.cos(lat) * np.cos(lon), np.cos(lat) * np.sin(lon), np.sin(lat)
+        return sum(c * x**i * y**j * z**k for c, (i, j, k) in zip(coef, terms))
+
+    return f
+
+
+def on_grid(f, grid: Grid) -> np.ndarray:
+    return f(grid.lat[:, None], grid.lon[None, :])
+
+
+def leggauss_mean(func, n: int = 24) -> float:
+    """Area mean over the sphere by an independent product rule:
+    numpy.polynomial.legendre.leggauss in sin(lat) times the trapezoid rule in longitude
+    (exact for polynomials of degree < 2n in sin(lat) and trigonometric degree < nlon)."""
+    x, w = np.polynomial.legendre.leggauss(n)
+    lat = np.degrees(np.arcsin(x))[:, None]
+    lon = np.linspace(0.0, 360.0, 2 * n + 1, endpoint=False)[None, :]
+    vals = func(lat, lon)
+    return float((w[:, None] * vals).sum() / (2.0 * vals.shape[1]))
+
+
+# ------------------------------------------------------------------- Parseval
+@pytest.mark.parametrize("norm, cs", list(itertools.product(NORMS, PHASES)))
+def test_parseval_against_leggauss(norm, cs):
+    # the sum of the degree power is the area mean of f^2 (Parseval); the reference mean
+    # comes from numpy.polynomial.legendre.leggauss quadrature of the explicit function
+    f = polynomial_field(np.random.default_rng(11), 6)
+    grid = Grid.gauss(8)
+    h = analyze(on_grid(f, grid), grid, norm=norm, condon_shortley=cs)
+    power = degree_power(h)
+    assert power.shape == (9,)
+    ref = leggauss_mean(lambda la, lo: f(la, lo) ** 2)
+    assert abs(power.sum() - ref) <= 1e-12 * ref
+    assert np.all(power[7:] < 1e-24 * ref)  # band-limited to degree 6
+
+
+def test_power_is_the_same_in_every_convention(rng):
+    grid = Grid.gauss(10)
+    f = on_grid(polynomial_field(rng, 9), grid)
+    ref = degree_power(analyze(f, grid))
+    for norm, cs in itertools.product(NORMS, PHASES):
+        h = analyze(f, grid, norm=norm, condon_shortley=cs)
+        np.testing.assert_allclose(degree_power(h), ref, rtol=1e-12, atol=1e-14 * ref.sum())
+        np.testing.assert_allclose(degree_power(h.to("4pi", False)), ref, rtol=1e-12,
+                                   atol=1e-14 * ref.sum())
+
+
+@pytest.mark.parametrize("l", [0, 1, 2, 5, 12])
+def test_zonal_legendre_field(l):
+    # f = P_l(sin lat): mean square 1/(2l+1) (Legendre orthogonality,
+    # int_{-1}^{1} P_l^2 dx = 2/(2l+1); common practice), all of it at degree l
+    grid = Grid.gauss(14)
+    x = np.sin(np.radians(grid.lat))[:, None] + 0.0 * grid.lon[None, :]
+    from numpy.polynomial import legendre as npleg
+    f = npleg.legval(x, [0.0] * l + [1.0])  # numpy.polynomial.legendre
+    p = degree_power(analyze(f, grid, norm="schmidt"))
+    expected = np.zeros(15)
+    expected[l] = 1.0 / (2 * l + 1)
+    np.testing.assert_allclose(p, expected, rtol=0, atol=1e-14)
+
+
+def test_batches_keep_leading_axes(rng):
+    grid = Grid.gauss(7)
+    fields = np.stack([[on_grid(polynomial_field(rng, 5), grid) for _ in range(3)]
+                       for _ in range(2)])  # (2, 3, nlat, nlon)
+    h = analyze(fields, grid)
+    for fn in (degree_power, power_per_coefficient, degree_rms, coefficient_rms,
+               cumulative_power):
+        assert fn(h).shape == (2, 3, 8)
+    p = degree_power(h)
+    for i, j in itertools.product(range(2), range(3)):
+        np.testing.assert_allclose(p[i, j], degree_power(analyze(fields[i, j], grid)),
+                                   rtol=1e-13, atol=1e-16)
+    assert cross_power(h, h).shape == (2, 3, 8)
+    assert correlation(h, h).shape == (2, 3, 8)
+
+
+def test_derived_spectra(rng):
+    grid = Grid.gauss(9)
+    h = analyze(on_grid(polynomial_field(rng, 8), grid), grid)
+    p = degree_power(h)
+    l = np.arange(10)
+    # geodesists' degree variance: sum over m of C_lm^2 + S_lm^2 of the 4pi-normalised
+    # real coefficients equals the degree's mean square (common practice)
+    c, s = h.to("4pi").cos_sin()
+    np.testing.assert_allclose(p, (c**2 + s**2).sum(axis=-1), rtol=1e-12)
+    np.testing.assert_allclose(power_per_coefficient(h), p / (2 * l + 1), rtol=1e-15)
+    np.testing.assert_allclose(degree_rms(h) ** 2, p, rtol=1e-14)
+    np.testing.assert_allclose(coefficient_rms(h) ** 2, p / (2 * l + 1), rtol=1e-14)
+    cum = cumulative_power(h)
+    np.testing.assert_allclose(np.diff(cum), p[1:], rtol=1e-12, atol=1e-15 * cum[-1])
+    assert cum[0] == p[0]
+
+
+# -------------------------------------------------------------- cross spectra
+def test_cross_power_against_leggauss_and_mixed_conventions():
+    # sum of the cross power = area mean of f1 f2, the reference mean from
+    # numpy.polynomial.legendre.leggauss quadrature of the explicit functions
+    rng = np.random.default_rng(5)
+    f1, f2 = polynomial_field(rng, 5), polynomial_field(rng, 6)
+    grid = Grid.gauss(8)
+    ref = leggauss_mean(lambda la, lo: f1(la, lo) * f2(la, lo))
+    h1 = analyze(on_grid(f1, grid), grid)
+    for norm, cs in itertools.product(NORMS, PHASES):
+        h2 = analyze(on_grid(f2, grid), grid, norm=norm, condon_shortley=cs)
+        x = cross_power(h1, h2)
+        assert abs(x.sum() - ref) <= 1e-12 * leggauss_mean(lambda la, lo: f1(la, lo) ** 2)
+        np.testing.assert_allclose(cross_power(h2, h1), x, rtol=1e-12, atol=1e-15)
+    np.testing.assert_allclose(cross_power(h1, h1), degree_power(h1), rtol=1e-14)
+
+
+def test_cross_power_uses_common_degrees(rng):
+    grid = Grid.gauss(9)
+    f = on_grid(polynomial_field(rng, 9), grid)
+    h, ht = analyze(f, grid), analyze(f, grid, lmax=4)
+    x = cross_power(h, ht)
+    assert x.shape == (5,)
+    np.testing.assert_allclose(x, degree_power(h)[:5], rtol=1e-12)
+
+
+def test_correlation_values(rng):
+    grid = Grid.gauss(8)
+    h = analyze(on_grid(polynomial_field(rng, 7), grid), grid)
+    np.testing.assert_allclose(correlation(h, h)[:8], 1.0, atol=1e-14)
+    np.testing.assert_allclose(correlation(h, -h)[:8], -1.0, atol=1e-14)
+    np.testing.assert_allclose(correlation(h, 2.5 * h.to("schmidt", False))[:8], 1.0,
+                               atol=1e-13)
+    w = np.ones(9)
+    w[8] = 0.0
+    assert np.isnan(correlation(h.filter(w), h)[8])  # no power at degree 8: undefined, NaN
+    # cos(m lon) and sin(m lon) parts of one (l, m) are orthogonal: correlation 0
+    c = np.zeros((5, 5))
+    s = np.zeros((5, 5))
+    c[3, 2] = 1.0
+    s[3, 2] = 1.0
+    hc = Harmonics.from_cos_sin(c, np.zeros((5, 5)))
+    hs = Harmonics.from_cos_sin(np.zeros((5, 5)), s)
+    assert abs(correlation(hc, hs)[3]) < 1e-15
+    # a known mixture: f2 = f1 + g with g orthogonal and of equal power -> 1/sqrt(2)
+    assert abs(correlation(hc, hc + hs)[3] - 1 / np.sqrt(2)) < 1e-14
+
+
+# ------------------------------------------------------------------- slopes
+def test_spectral_slope_recovers_power_law():
+    l = np.arange(200, dtype=float)
+    p = np.zeros(200)
+    p[1:] = 3.0 * l[1:] ** -2.5
+    s, c = spectral_slope(p, 2, 150)
+    assert abs(s + 2.5) < 1e-12 and abs(10**c - 3.0) < 1e-11
+    batch = np.stack([p, np.r_[0.0, 7.0 * l[1:] ** -4.0]])
+    s, c = spectral_slope(batch, 10, 199)
+    np.testing.assert_allclose(s, [-2.5, -4.0], atol=1e-12)
+    np.testing.assert_allclose(10**c, [3.0, 7.0], rtol=1e-11)
+
+
+def test_spectral_slope_of_a_random_field_with_a_power_law():
+    # coefficients drawn with variance l^-3 per coefficient: the fitted slope of the
+    # power per coefficient is near -3 (sampling scatter only)
+    rng = np.random.default_rng(3)
+    lmax = 120
+    l = np.arange(lmax + 1)
+    c = rng.standard_normal((lmax + 1, lmax + 1)) * np.r_[0.0, l[1:] ** -1.5][:, None]
+    s_ = rng.standard_normal((lmax + 1, lmax + 1)) * np.r_[0.0, l[1:] ** -1.5][:, None]
+    tri = np.tril(np.ones((lmax + 1, lmax + 1), bool))
+    s_[:, 0] = 0
+    h = Harmonics.from_cos_sin(np.where(tri, c, 0), np.where(tri, s_, 0), norm="4pi")
+    slope, _ = spectral_slope(power_per_coefficient(h), 10, lmax)
+    assert abs(slope + 3.0) < 0.15
+
+
+def test_spectral_slope_errors():
+    p = np.ones(10)
+    with pytest.raises(ValueError, match="lmin"):
+        spectral_slope(p, 0, 5)
+    with pytest.raises(ValueError, match="lmin"):
+        spectral_slope(p, 5, 10)
+    with pytest.raises(ValueError, match="lmin"):
+        spectral_slope(p, 5, 5)
+    q = p.copy()
+    q[4] = 0.0
+    with pytest.raises(ValueError, match="positive"):
+        spectral_slope(q, 2, 8)
+
+
+def test_non_harmonics_input_is_refused():
+    with pytest.raises(ValueError, match="sphex.Harmonics"):
+        degree_power(np.zeros((3, 3)))
+    h = Harmonics(np.zeros((3, 3)))
+    with pytest.raises(ValueError, match="h2"):
+        cross_power(h, [1, 2])
