@@ -120,7 +120,8 @@ def make_temperature():
     Gauss-Legendre latitudes north to south (48 x 96, exact to degree 47),
     longitudes 0..356.25.  The subsolar point circles the moon once per
     18-day orbit and swings 9 degrees north and south; the dark floor of the
-    Orun basin runs a few kelvin warmer.
+    Orun basin runs a few kelvin warmer, and frost-covered high ground is
+    colder (4 K per km of the topography, regridded spectrally to this grid).
 
     Returns
     -------
@@ -130,9 +131,12 @@ def make_temperature():
     import pandas as pd
     import xarray as xr
 
-    from sphex import Grid
+    from sphex import Grid, regrid
 
     grid = Grid.gauss(47)
+    topo_ds = make_topography()
+    topo_grid = Grid.from_coords(topo_ds["latitude"].values, topo_ds["longitude"].values)
+    topo = regrid(topo_ds["topography"].values.astype(np.float64), topo_grid, grid)
     lat, lon = np.asarray(grid.lat), np.asarray(grid.lon)
     nt = 12
     hours = np.arange(nt) * 36.0
@@ -143,7 +147,8 @@ def make_temperature():
         sub_lon = 360.0 * k / nt
         sub_lat = 9.0 * np.sin(2 * np.pi * k / nt)
         c = _angular_distance(lat, lon, sub_lat, sub_lon - 20.0)   # afternoon lag of 20 deg
-        out[k] = 68.0 + 52.0 * np.exp(2.2 * (c - 1.0)) + 4.0 * basin
+        # bright frost on high ground: 4 K colder per km of height
+        out[k] = 68.0 + 52.0 * np.exp(2.2 * (c - 1.0)) + 4.0 * basin - 4.0e-3 * topo
     ds = xr.Dataset(
         {"surface_temperature": (("time", "lat", "lon"), out.astype(np.float32),
                                  {"standard_name": "surface_temperature",
@@ -275,10 +280,12 @@ def run(out_dir: str | os.PathLike = "sphex-demo-output", overwrite: bool = Fals
         tcoef = sxr.analyze(temp, progress=bar)
     sxr.write_harmonics(tcoef, out / names["temp_coef"], overwrite)
     tp = sxr.degree_power(tcoef)
+    hours = (temp.time.values - temp.time.values[0]) / np.timedelta64(1, "h")
     steps = [0, 3, 6, 9]
     plot.save(plot.power_figure(
         [tp.isel(time=k) for k in steps],
-        labels=[f"step {k} ({str(temp.time.values[k])[:13].replace('T', ' ')} h)" for k in steps],
+        labels=[f"step {k}, hour {hours[k]:g} of the orbit" for k in steps],
+        band_label=f"range over all {temp.sizes['time']} steps",
         units=tp.attrs.get("units"), planet_radius_km=RADIUS_KM,
         band=(tp.min("time"), tp.max("time")),
         title=f"{MOON}: degree power of surface temperature"),

@@ -82,7 +82,8 @@ def _slope(power: np.ndarray, l1: int, l2: int) -> tuple[float, float]:
 def power_figure(spectra: Any, labels: Sequence[str] | None = None, *, units: str | None = None,
                  fit: tuple[int, int] | None = None, reference: float | None = None,
                  band: tuple[Any, Any] | None = None, planet_radius_km: float | None = None,
-                 title: str | None = None, ylabel: str = "degree power") -> Figure:
+                 title: str | None = None, ylabel: str = "degree power",
+                 band_label: str = "range over fields", dynamic_range: float = 1e10) -> Figure:
     """Log-log plot of one or more degree power spectra.
 
     Parameters
@@ -108,6 +109,11 @@ def power_figure(spectra: Any, labels: Sequence[str] | None = None, *, units: st
         pi R / sqrt(l (l + 1)).
     title, ylabel : str
         Title and y-axis label.
+    band_label : str
+        Legend entry of the band.
+    dynamic_range : float
+        The y axis shows at most this ratio below the largest power, so that a
+        spectrum falling to rounding noise does not squash the others.
 
     Returns
     -------
@@ -130,7 +136,7 @@ def power_figure(spectra: Any, labels: Sequence[str] | None = None, *, units: st
             lo, hi = _as_1d(band[0]), _as_1d(band[1])
             l = np.arange(lo.size)
             ax.fill_between(l[1:], lo[1:], hi[1:], color=PALETTE[0], alpha=0.16, lw=0,
-                            label="range over fields")
+                            label=band_label)
         for i, p in enumerate(curves):
             l = np.arange(p.size)
             ok = (l >= 1) & (p > 0)
@@ -160,6 +166,10 @@ def power_figure(spectra: Any, labels: Sequence[str] | None = None, *, units: st
         ax.grid(True, which="major", color=FAINT, lw=0.6)
         ax.grid(True, which="minor", color=FAINT, lw=0.3, alpha=0.6)
         ax.set_axisbelow(True)
+        peak = max(float(np.nanmax(c[1:])) if c.size > 1 else 0.0 for c in curves)
+        low = min(float(np.nanmin(np.where(c[1:] > 0, c[1:], np.inf))) for c in curves if c.size > 1)
+        if peak > 0 and np.isfinite(low) and low < peak / dynamic_range:
+            ax.set_ylim(bottom=peak / dynamic_range)
         lmax = max(c.size for c in curves) - 1
         ax.set_xlim(0.9, max(lmax, 2) * 1.1)
         ax.xaxis.set_major_formatter(FuncFormatter(lambda v, _: f"{v:g}"))
