@@ -38,6 +38,10 @@ SCALE_EXP = 600
 BIG = 2.0 ** 300
 INV_SCALE = 2.0 ** -SCALE_EXP
 PLAIN_MIN_EXP = -330
+TINY_EXP = 500
+TINY = 2.0 ** -TINY_EXP
+UNTINY = 2.0 ** TINY_EXP
+CHECK_EVERY = 16  # degrees between range checks of scaled latitudes
 BLOCK = 16  # latitude pairs processed together
 DD_NODES = 128  # Gauss nodes nearest each pole polished in double-double
 
@@ -190,39 +194,44 @@ def _recursion_coeffs(m, lmax, a, c):
 
 @nb.njit(inline="always", **_JIT)
 def _sin_power(s, m):
-    """s**m as (mantissa, binary exponent) without underflow; s > 0."""
+    """s**m for 0 < s <= 1 as (r, e) with s**m = r * 2**e, r in [2^-1000, 1]."""
     r = 1.0
     er = 0
-    b, eb = math.frexp(s)
+    b = s
+    eb = 0
     k = m
     while k > 0:
         if k & 1:
             r = r * b
-            r, t = math.frexp(r)
-            er += eb + t
+            er += eb
+            if r < TINY:
+                r *= UNTINY
+                er -= TINY_EXP
         k >>= 1
         if k > 0:
             b = b * b
             eb = 2 * eb
-            b, t = math.frexp(b)
-            eb += t
+            if b < TINY:
+                b *= UNTINY
+                eb -= TINY_EXP
     return r, er
 
 
 @nb.njit(inline="always", **_JIT)
 def _start(cm, m, s, shift):
-    """P_mm * sin^-shift as (mantissa, k): value = mantissa * 2^(600 k)."""
+    """c_m sin^(m - shift) as (mantissa, k): value = mantissa * 2^(600 k)."""
     if m - shift == 0:
         return cm, 0
     if s == 0.0:
         return 0.0, 0
     r, e = _sin_power(s, m - shift)
-    v = cm * r
+    mv, ev = math.frexp(cm * r)
+    e += ev
     k = 0
     while e < PLAIN_MIN_EXP:
         e += SCALE_EXP
         k -= 1
-    return math.ldexp(v, e), k
+    return math.ldexp(mv, e), k
 
 
 # ---------------------------------------------------------------------------
@@ -318,28 +327,43 @@ def _scaled_phase(m, lmax, xj, sj, cmm, shift, a, c):
     return l, v0, v1
 
 
-@nb.njit(inline="always", **_JIT)
-def _prepare_block(m, lmax, j0, nbk, x, s, cmm, shift, a, c, xb, p0, p1, ls):
-    """Start a latitude block.  Fills xb, p0, p1 (state at degree ls[jj]) and
-    ls; returns the largest start degree among live latitudes (lmax + 1 when
-    the whole block is negligible).  Dead or padding lanes get zeros."""
-    lcommon = -1
-    for jj in range(BLOCK):
-        if jj < nbk:
-            j = j0 + jj
-            l, v0, v1 = _scaled_phase(m, lmax, x[j], s[j], cmm, shift, a, c)
-            xb[jj] = x[j]
+@nb.njit(**_JIT)
+def _live_count(m, lmax, x, s, cmm, shift, a, c):
+    """Number of latitudes (equator first) on which order m is not negligible.
+
+    Latitude j is live when its values enter plain double range by lmax; the
+    live ones form a prefix (the functions shrink monotonically toward the pole
+    where they are negligible), found by bisection."""
+    J = x.size
+    if J == 0:
+        return 0
+    l, _, _ = _scaled_phase(m, lmax, x[J - 1], s[J - 1], cmm, shift, a, c)
+    if l <= lmax:
+        return J
+    lo = 0  # invariant: lanes < lo live, lane hi dead
+    hi = J - 1
+    while lo < hi:
+        mid = (lo + hi) // 2
+        l, _, _ = _scaled_phase(m, lmax, x[mid], s[mid], cmm, shift, a, c)
+        if l <= lmax:
+            lo = mid + 1
         else:
-            l, v0, v1 = lmax + 1, 0.0, 0.0
-            xb[jj] = 0.0
-        ls[jj] = l
-        p0[jj] = v0
-        p1[jj] = v1
-        if l <= lmax and l > lcommon:
-            lcommon = l
-    if lcommon < 0:
-        return lmax + 1
-    return lcommon
+            hi = mid
+    return lo
+
+
+@nb.njit(inline="always", **_JIT)
+def _order_start(m, n, x, s, cmm, shift, P, Q, k):
+    """Start values P = P_mm (scaled), Q = 0; returns how many lanes are scaled."""
+    nscaled = 0
+    for j in range(n):
+        q, kk = _start(cmm, m, s[j], shift)
+        P[j] = q
+        Q[j] = 0.0
+        k[j] = kk
+        if kk < 0:
+            nscaled += 1
+    return nscaled
 
 
 @nb.njit(parallel=True, fastmath=_FM, **_JIT)
@@ -351,6 +375,11 @@ def analysis_kernel(lmax, mlo, mhi, x, s, cm, Er, Ei, Or, Oi, outr, outi, shift)
     M = mhi - mlo + 1: quadrature-weighted north + south (E) and north - south
     (O) sums of the Fourier coefficient of order m.  outr, outi:
     (K, M, lmax + 1), added to.  shift = 1 evaluates Lambda / sin(theta).
+
+    Degrees run in the outer loop and latitudes in the inner one, so the inner
+    loops are long, contiguous and vectorised.  Latitudes still in scaled range
+    take part in the recursion but are masked out of the sums until their
+    values become plain doubles.
     """
     J = x.size
     K = Er.shape[1]
@@ -361,69 +390,53 @@ def analysis_kernel(lmax, mlo, mhi, x, s, cm, Er, Ei, Or, Oi, outr, outi, shift)
         a = np.empty(lmax + 1)
         c = np.empty(lmax + 1)
         _recursion_coeffs(m, lmax, a, c)
-        xb = np.empty(BLOCK)
-        p0 = np.empty(BLOCK)
-        p1 = np.empty(BLOCK)
-        ls = np.empty(BLOCK, dtype=np.int64)
-        fe = np.zeros((K, 4, BLOCK))
-        for j0 in range(0, J, BLOCK):
-            nbk = min(BLOCK, J - j0)
-            lc = _prepare_block(m, lmax, j0, nbk, x, s, cm[m], shift, a, c, xb, p0, p1, ls)
-            if lc > lmax:
-                break  # this and every more polar latitude is negligible
-            for kk in range(K):
-                for jj in range(BLOCK):
-                    if jj < nbk and ls[jj] <= lmax:
-                        j = j0 + jj
-                        fe[kk, 0, jj] = Er[mi, kk, j]
-                        fe[kk, 1, jj] = Ei[mi, kk, j]
-                        fe[kk, 2, jj] = Or[mi, kk, j]
-                        fe[kk, 3, jj] = Oi[mi, kk, j]
-                    else:
-                        fe[kk, 0, jj] = 0.0
-                        fe[kk, 1, jj] = 0.0
-                        fe[kk, 2, jj] = 0.0
-                        fe[kk, 3, jj] = 0.0
-            # bring lagging latitudes to the common degree, one at a time
-            for jj in range(nbk):
-                l = ls[jj]
-                if l >= lc:
-                    continue
-                v0 = p0[jj]
-                v1 = p1[jj]
-                xj = xb[jj]
-                while l < lc:
-                    par = 2 * ((l - m) & 1)
-                    for kk in range(K):
-                        outr[kk, mi, l] += v1 * fe[kk, par, jj]
-                        outi[kk, mi, l] += v1 * fe[kk, par + 1, jj]
-                    l += 1
-                    v2 = a[l] * xj * v1 - c[l] * v0
-                    v0 = v1
-                    v1 = v2
-                p0[jj] = v0
-                p1[jj] = v1
-            # ---- vectorised plain phase
-            l = lc
-            while True:
-                par = 2 * ((l - m) & 1)
-                for kk in range(K):
-                    sr = 0.0
-                    si = 0.0
-                    for jj in range(BLOCK):
-                        sr += p1[jj] * fe[kk, par, jj]
-                        si += p1[jj] * fe[kk, par + 1, jj]
-                    outr[kk, mi, l] += sr
-                    outi[kk, mi, l] += si
-                if l == lmax:
-                    break
-                l += 1
+        n = _live_count(m, lmax, x, s, cm[m], shift, a, c)
+        if n == 0:
+            continue
+        P = np.empty(n)
+        Q = np.empty(n)
+        k = np.empty(n, dtype=np.int64)
+        nscaled = _order_start(m, n, x, s, cm[m], shift, P, Q, k)
+        fe = np.empty((K, 4, n))
+        for kk in range(K):
+            for j in range(n):
+                live = 1.0 if k[j] == 0 else 0.0
+                fe[kk, 0, j] = Er[mi, kk, j] * live
+                fe[kk, 1, j] = Ei[mi, kk, j] * live
+                fe[kk, 2, j] = Or[mi, kk, j] * live
+                fe[kk, 3, j] = Oi[mi, kk, j] * live
+        xl = x[:n]
+        for l in range(m, lmax + 1):
+            if l > m:
                 al = a[l]
                 cl = c[l]
-                for jj in range(BLOCK):
-                    t = al * xb[jj] * p1[jj] - cl * p0[jj]
-                    p0[jj] = p1[jj]
-                    p1[jj] = t
+                for j in range(n):
+                    Q[j] = al * xl[j] * P[j] - cl * Q[j]
+                P, Q = Q, P
+            if nscaled > 0 and (l - m) % CHECK_EVERY == 0:
+                for j in range(n):
+                    if k[j] < 0 and abs(P[j]) > BIG:
+                        P[j] *= INV_SCALE
+                        Q[j] *= INV_SCALE
+                        k[j] += 1
+                        if k[j] == 0:
+                            nscaled -= 1
+                            for kk in range(K):
+                                fe[kk, 0, j] = Er[mi, kk, j]
+                                fe[kk, 1, j] = Ei[mi, kk, j]
+                                fe[kk, 2, j] = Or[mi, kk, j]
+                                fe[kk, 3, j] = Oi[mi, kk, j]
+            par = 2 * ((l - m) & 1)
+            for kk in range(K):
+                fr = fe[kk, par]
+                fi = fe[kk, par + 1]
+                sr = 0.0
+                si = 0.0
+                for j in range(n):
+                    sr += P[j] * fr[j]
+                    si += P[j] * fi[j]
+                outr[kk, mi, l] += sr
+                outi[kk, mi, l] += si
 
 
 @nb.njit(parallel=True, fastmath=_FM, **_JIT)
@@ -432,6 +445,8 @@ def synthesis_kernel(lmax, mlo, mhi, x, s, cm, Ar, Ai, FNr, FNi, FSr, FSi, shift
 
     Ar, Ai: (K, M, lmax + 1).  FNr, FNi, FSr, FSi: (M, K, J), overwritten with
     sum_l a_lm Lambda_lm at the northern and southern latitude of each pair.
+    Sums of latitudes still in scaled range are discarded when they become
+    plain (their true values were below 2^-268).
     """
     J = x.size
     K = Ar.shape[0]
@@ -442,63 +457,55 @@ def synthesis_kernel(lmax, mlo, mhi, x, s, cm, Ar, Ai, FNr, FNi, FSr, FSi, shift
         a = np.empty(lmax + 1)
         c = np.empty(lmax + 1)
         _recursion_coeffs(m, lmax, a, c)
-        xb = np.empty(BLOCK)
-        p0 = np.empty(BLOCK)
-        p1 = np.empty(BLOCK)
-        ls = np.empty(BLOCK, dtype=np.int64)
-        g = np.empty((K, 4, BLOCK))  # even re, even im, odd re, odd im
-        for j0 in range(0, J, BLOCK):
-            nbk = min(BLOCK, J - j0)
-            lc = _prepare_block(m, lmax, j0, nbk, x, s, cm[m], shift, a, c, xb, p0, p1, ls)
-            if lc > lmax:
-                for j in range(j0, J):
-                    for kk in range(K):
-                        FNr[mi, kk, j] = 0.0
-                        FNi[mi, kk, j] = 0.0
-                        FSr[mi, kk, j] = 0.0
-                        FSi[mi, kk, j] = 0.0
-                break
-            g[:] = 0.0
-            for jj in range(nbk):
-                l = ls[jj]
-                if l >= lc:
-                    continue
-                v0 = p0[jj]
-                v1 = p1[jj]
-                xj = xb[jj]
-                while l < lc:
-                    par = 2 * ((l - m) & 1)
-                    for kk in range(K):
-                        g[kk, par, jj] += Ar[kk, mi, l] * v1
-                        g[kk, par + 1, jj] += Ai[kk, mi, l] * v1
-                    l += 1
-                    v2 = a[l] * xj * v1 - c[l] * v0
-                    v0 = v1
-                    v1 = v2
-                p0[jj] = v0
-                p1[jj] = v1
-            l = lc
-            while True:
+        n = _live_count(m, lmax, x, s, cm[m], shift, a, c)
+        g = np.zeros((K, 4, max(n, 1)))
+        if n > 0:
+            P = np.empty(n)
+            Q = np.empty(n)
+            k = np.empty(n, dtype=np.int64)
+            nscaled = _order_start(m, n, x, s, cm[m], shift, P, Q, k)
+            xl = x[:n]
+            for l in range(m, lmax + 1):
+                if l > m:
+                    al = a[l]
+                    cl = c[l]
+                    for j in range(n):
+                        Q[j] = al * xl[j] * P[j] - cl * Q[j]
+                    P, Q = Q, P
+                if nscaled > 0 and (l - m) % CHECK_EVERY == 0:
+                    for j in range(n):
+                        if k[j] < 0 and abs(P[j]) > BIG:
+                            P[j] *= INV_SCALE
+                            Q[j] *= INV_SCALE
+                            k[j] += 1
+                            if k[j] == 0:
+                                nscaled -= 1
+                                for kk in range(K):
+                                    for t in range(4):
+                                        g[kk, t, j] = 0.0
                 par = 2 * ((l - m) & 1)
                 for kk in range(K):
                     ar = Ar[kk, mi, l]
                     ai = Ai[kk, mi, l]
-                    for jj in range(BLOCK):
-                        g[kk, par, jj] += ar * p1[jj]
-                        g[kk, par + 1, jj] += ai * p1[jj]
-                if l == lmax:
-                    break
-                l += 1
-                al = a[l]
-                cl = c[l]
-                for jj in range(BLOCK):
-                    t = al * xb[jj] * p1[jj] - cl * p0[jj]
-                    p0[jj] = p1[jj]
-                    p1[jj] = t
-            for kk in range(K):
-                for jj in range(nbk):
-                    j = j0 + jj
-                    FNr[mi, kk, j] = g[kk, 0, jj] + g[kk, 2, jj]
-                    FNi[mi, kk, j] = g[kk, 1, jj] + g[kk, 3, jj]
-                    FSr[mi, kk, j] = g[kk, 0, jj] - g[kk, 2, jj]
-                    FSi[mi, kk, j] = g[kk, 1, jj] - g[kk, 3, jj]
+                    gr = g[kk, par]
+                    gi = g[kk, par + 1]
+                    for j in range(n):
+                        gr[j] += ar * P[j]
+                        gi[j] += ai * P[j]
+            for j in range(n):
+                if k[j] < 0:
+                    for kk in range(K):
+                        for t in range(4):
+                            g[kk, t, j] = 0.0
+        for kk in range(K):
+            for j in range(J):
+                if j < n:
+                    FNr[mi, kk, j] = g[kk, 0, j] + g[kk, 2, j]
+                    FNi[mi, kk, j] = g[kk, 1, j] + g[kk, 3, j]
+                    FSr[mi, kk, j] = g[kk, 0, j] - g[kk, 2, j]
+                    FSi[mi, kk, j] = g[kk, 1, j] - g[kk, 3, j]
+                else:
+                    FNr[mi, kk, j] = 0.0
+                    FNi[mi, kk, j] = 0.0
+                    FSr[mi, kk, j] = 0.0
+                    FSi[mi, kk, j] = 0.0
