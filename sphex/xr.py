@@ -265,24 +265,21 @@ def parse_grid(spec: str) -> Grid:
     hint = "use gauss:LMAX or equiangular:NLATxNLON:LAYOUT (LAYOUT poles, cells or north)"
     parts = spec.strip().split(":")
     kind = parts[0].lower()
-    try:
-        if kind == "gauss" and len(parts) == 2:
-            lmax = int(parts[1])
-            if lmax < 0:
-                raise ValueError
-            return Grid.gauss(lmax)
-        if kind == "equiangular" and len(parts) == 3:
-            nlat_s, _, nlon_s = parts[1].lower().partition("x")
-            nlat, nlon = int(nlat_s), int(nlon_s)
-            layout = parts[2].lower()
-            if layout not in _LAYOUTS:
-                raise ValueError(f"unknown layout {parts[2]!r} in grid {spec!r}; {hint}")
-            if nlat < 2 or nlon < 1:
-                raise ValueError
+
+    def whole(text: str) -> int | None:
+        text = text.strip()
+        return int(text) if text.isdigit() else None
+
+    if kind == "gauss" and len(parts) == 2 and whole(parts[1]) is not None:
+        return Grid.gauss(whole(parts[1]))
+    if kind == "equiangular" and len(parts) == 3:
+        nlat_s, _, nlon_s = parts[1].lower().partition("x")
+        nlat, nlon = whole(nlat_s), whole(nlon_s)
+        layout = parts[2].strip().lower()
+        if layout not in _LAYOUTS:
+            raise ValueError(f"unknown layout {parts[2]!r} in grid {spec!r}; {hint}")
+        if nlat is not None and nlon is not None and nlat >= 2 and nlon >= 1:
             return Grid.equiangular(nlat, nlon, layout)
-    except ValueError as exc:
-        if str(exc):
-            raise ValueError(_one_line(exc)) from None
     raise ValueError(f"cannot read grid {spec!r}; {hint}")
 
 
