@@ -1,0 +1,343 @@
+"""Checks of sphex.transform: analysis, synthesis, gradients, regridding, input handling, errors."""
+from __future__ import annotations
+
+import math
+
+import numpy as np
+import pytest
+import scipy.special as sps
+
+from _reference import NORMS, complex_form_field, gauss_nodes_weights, norm_factor_array, random_coef
+from sphex import Grid, Harmonics, analyze, regrid, synthesize
+from sphex.transform import synthesize_gradient
+
+LAYOUTS = ("poles", "cells", "north")
+
+
+def rel_err(a: np.ndarray, b: np.ndarray) -> float:
+    """max |a - b| / max |b|."""
+    return float(np.max(np.abs(np.asarray(a) - np.asarray(b))) / np.max(np.abs(b)))
+
+
+def mesh(grid: Grid) -> tuple[np.ndarray, np.ndarray]:
+    """Colatitude and true longitude (radians) on the grid, (nlat, 1) and (1, nlon)."""
+    return grid.colat[:, None], np.radians(grid.lon)[None, :]
+
+
+# --------------------------------------------------------------------------------------
+# Round trips
+# --------------------------------------------------------------------------------------
+@pytest.mark.slow
+def test_round_trip_gauss_high_degree(rng):
+    # synthesis then analysis returns band-limited coefficients: Gauss-Legendre quadrature
+    # with lmax+1 nodes is exact to degree 2 lmax + 1 (published method's stated property)
+    lmax = 1023
+    grid = Grid.gauss(lmax)
+    coef = random_coef(lmax, rng)
+    f = synthesize(Harmonics(coef), grid)
+    assert f.shape == grid.shape and f.dtype == np.float64
+    h = analyze(f, grid)
+    assert h.lmax == lmax and h.norm == "ortho" and h.condon_shortley is True
+    err = rel_err(h.coef, coef)
+    print(f"Gauss round trip lmax={lmax}: {err:.2e}")
+    assert err <= 1e-12, err
+
+
+@pytest.mark.parametrize("layout,lmax,nlat", [
+    ("poles", 255, 512), ("cells", 255, 512), ("north", 255, 512),
+    ("poles", 64, 129), ("cells", 64, 129), ("north", 64, 129),
+])
+def test_round_trip_equiangular_at_lmax_exact(rng, layout, lmax, nlat):
+    # Clenshaw-Curtis / Fejer / Driscoll-Healy quadrature on nlat rows is exact to
+    # degree 2 floor((nlat-1)/2) in cos(colat) (published methods' stated property)
+    grid = Grid.equiangular(nlat, 2 * lmax + 2, layout)
+    assert grid.lmax_exact == lmax
+    coef = random_coef(lmax, rng)
+    h = analyze(synthesize(Harmonics(coef), grid), grid)
+    err = rel_err(h.coef, coef)
+    print(f"{layout} nlat={nlat} round trip lmax={lmax}: {err:.2e}")
+    assert err <= 1e-11, err
+
+
+@pytest.mark.parametrize("condon_shortley", [True, False])
+@pytest.mark.parametrize("norm", NORMS)
+def test_round_trip_every_convention(rng, norm, condon_shortley):
+    lmax = 20
+    grid = Grid.equiangular(2 * lmax + 2, 2 * lmax + 2, "north")
+    # coefficients of O(1) terms in every convention: a_lm = b_lm / F_lm with F the
+    # size of Lambda_lm relative to the orthonormal one; compared on that scale
+    scale = norm_factor_array(lmax, norm)
+    coef = random_coef(lmax, rng) / scale
+    h = Harmonics(coef, norm=norm, condon_shortley=condon_shortley)
+    back = analyze(synthesize(h, grid), grid, norm=norm, condon_shortley=condon_shortley)
+    assert back.norm == norm and back.condon_shortley == condon_shortley
+    assert rel_err(back.coef * scale, coef * scale) < 1e-12
+
+
+# --------------------------------------------------------------------------------------
+# Against fields built outside sphex
+# --------------------------------------------------------------------------------------
+@pytest.mark.parametrize("condon_shortley", [True, False])
+@pytest.mark.parametrize("norm", NORMS)
+def test_synthesis_matches_scipy_sum(rng, norm, condon_shortley):
+    # source: direct sum of a_lm Lambda_lm e^{i m phi} with scipy.special.sph_legendre_p /
+    # assoc_legendre_p (tests/_reference.complex_form_field), on a grid whose
+    # longitudes start at -180 + half a cell (true longitudes used in the reference)
+    lmax = 12
+    lat, _ = gauss_nodes_weights(lmax + 1)
+    nlon = 2 * lmax + 3
+    lon = -180.0 + 180.0 / nlon + 360.0 / nlon * np.arange(nlon)
+    grid = Grid.from_coords(np.degrees(np.arcsin(lat)), lon)
+    coef = random_coef(lmax, rng)
+    f = synthesize(Harmonics(coef, norm=norm, condon_shortley=condon_shortley), grid)
+    ref = complex_form_field(coef, grid.colat, np.radians(grid.lon), norm, condon_shortley)
+    assert rel_err(f, ref) < 1e-13
+
+
+@pytest.mark.parametrize("kind", ["gauss", "poles", "cells", "north"])
+def test_analysis_of_scipy_harmonics(kind):
+    # source: scipy.special.sph_harm_y (orthonormal, Condon-Shortley phase).
+    # Re Y_lm = (Y_lm + conj Y_lm)/2 -> a_lm = 1/2 (m > 0), 1 (m = 0);
+    # Im Y_lm -> a_lm = -i/2; everything else zero.
+    lmax = 16
+    grid = Grid.gauss(lmax) if kind == "gauss" else Grid.equiangular(2 * lmax + 2, 2 * lmax + 2, kind)
+    th, ph = mesh(grid)
+    for l, m in [(0, 0), (1, 0), (1, 1), (5, 2), (9, 9), (16, 7), (16, 16)]:
+        y = sps.sph_harm_y(l, m, th, np.mod(ph, 2 * np.pi))
+        for part, value in [(np.real, 1.0 if m == 0 else 0.5), (np.imag, -0.5j)]:
+            if m == 0 and part is np.imag:
+                continue
+            h = analyze(part(y), grid)
+            expected = np.zeros((lmax + 1, lmax + 1), complex)
+            expected[l, m] = value
+            np.testing.assert_allclose(h.coef, expected, rtol=0, atol=1e-13)
+            # without the phase the same field has a_lm multiplied by (-1)^m
+            h2 = analyze(part(y), grid, condon_shortley=False)
+            np.testing.assert_allclose(h2.coef[l, m], (-1) ** m * value, rtol=0, atol=1e-13)
+
+
+def test_analysis_of_cos_colat():
+    # cos(theta) = sqrt(4 pi / 3) Y_10 (common practice)
+    grid = Grid.equiangular(33, 64, "poles")
+    th, ph = mesh(grid)
+    h = analyze(np.cos(th) + 0 * ph, grid)
+    expected = np.zeros((h.lmax + 1, h.lmax + 1), complex)
+    expected[1, 0] = math.sqrt(4 * math.pi / 3)
+    np.testing.assert_allclose(h.coef, expected, rtol=0, atol=1e-13)
+    # 4pi normalisation: cos(theta) = (1/sqrt(3)) * sqrt(3) cos(theta) -> a_10 = 1/sqrt(3)
+    h4 = analyze(np.cos(th) + 0 * ph, grid, norm="4pi")
+    assert abs(h4.coef[1, 0] - 1 / math.sqrt(3)) < 1e-14
+    # unnorm: cos(theta) = P_1(cos theta) -> a_10 = 1
+    assert abs(analyze(np.cos(th) + 0 * ph, grid, norm="unnorm").coef[1, 0] - 1.0) < 1e-14
+
+
+def test_constant_field():
+    # 1 = sqrt(4 pi) Y_00 (common practice)
+    grid = Grid.gauss(31)
+    h = analyze(np.ones(grid.shape), grid)
+    assert abs(h.coef[0, 0] - math.sqrt(4 * math.pi)) < 1e-13
+    assert np.max(np.abs(h.coef[1:])) < 1e-13
+
+
+# --------------------------------------------------------------------------------------
+# Longitude origin other than 0
+# --------------------------------------------------------------------------------------
+@pytest.mark.parametrize("start", [-180.0, 7.5, -172.5])
+def test_longitude_origin_respected(start):
+    # Y_11 (ortho, Condon-Shortley) = -sqrt(3/(8 pi)) sin(theta) e^{i phi} (common practice), so
+    # sin(theta) cos(phi) -> a_11 = -sqrt(2 pi / 3); sin(theta) sin(phi) -> a_11 = i sqrt(2 pi / 3),
+    # phi being the true longitude whatever the grid's first longitude
+    lmax = 10
+    lat = Grid.gauss(lmax).lat
+    lon = start + 15.0 * np.arange(24)
+    grid = Grid.from_coords(lat, lon)
+    th, ph = mesh(grid)
+    a = math.sqrt(2 * math.pi / 3)
+    hc = analyze(np.sin(th) * np.cos(ph), grid)
+    hs = analyze(np.sin(th) * np.sin(ph), grid)
+    assert abs(hc.coef[1, 1] - (-a)) < 1e-14
+    assert abs(hs.coef[1, 1] - 1j * a) < 1e-14
+    rest = hc.coef.copy()
+    rest[1, 1] = 0
+    assert np.max(np.abs(rest)) < 1e-14
+    # and synthesis of that coefficient gives the analytic field at the true longitudes
+    coef = np.zeros((lmax + 1, lmax + 1), complex)
+    coef[1, 1] = -a
+    np.testing.assert_allclose(synthesize(Harmonics(coef), grid), np.sin(th) * np.cos(ph), rtol=0, atol=1e-14)
+
+
+def test_south_to_north_rows(rng):
+    # rows stored south to north: same coefficients as the north-to-south grid
+    lmax = 15
+    g = Grid.equiangular(32, 32, "north")
+    coef = random_coef(lmax, rng)
+    f = synthesize(Harmonics(coef), g)
+    flipped = Grid.from_coords(g.lat[::-1], g.lon)
+    np.testing.assert_allclose(synthesize(Harmonics(coef), flipped), f[::-1], rtol=0, atol=1e-13)
+    assert rel_err(analyze(f[::-1], flipped).coef, coef) < 1e-13
+
+
+# --------------------------------------------------------------------------------------
+# Conventions: conversion never changes the field
+# --------------------------------------------------------------------------------------
+@pytest.mark.parametrize("condon_shortley", [True, False])
+@pytest.mark.parametrize("norm", NORMS)
+def test_conversion_keeps_field(rng, norm, condon_shortley):
+    lmax = 20  # unnorm coefficients still representable
+    grid = Grid.gauss(lmax)
+    h = Harmonics(random_coef(lmax, rng))
+    f0 = synthesize(h, grid)
+    h2 = h.to(norm=norm, condon_shortley=condon_shortley)
+    assert h2.norm == norm and h2.condon_shortley == condon_shortley
+    assert rel_err(synthesize(h2, grid), f0) < 1e-13
+    # analysing straight into the convention gives the converted coefficients
+    direct = analyze(f0, grid, norm=norm, condon_shortley=condon_shortley)
+    back = direct.to(norm="ortho", condon_shortley=True)
+    assert rel_err(back.coef, h.coef) < 1e-12
+
+
+# --------------------------------------------------------------------------------------
+# Batches, dtypes, memory layouts
+# --------------------------------------------------------------------------------------
+def test_batch_axes_match_one_by_one(rng):
+    lmax = 31
+    grid = Grid.gauss(lmax)
+    coef = random_coef(lmax, rng, batch=(2, 3))
+    hb = Harmonics(coef)
+    assert hb.batch_shape == (2, 3)
+    fb = synthesize(hb, grid)
+    assert fb.shape == (2, 3) + grid.shape
+    ab = analyze(fb, grid)
+    assert ab.coef.shape == (2, 3, lmax + 1, lmax + 1)
+    for i in range(2):
+        for j in range(3):
+            f1 = synthesize(Harmonics(coef[i, j]), grid)
+            np.testing.assert_allclose(fb[i, j], f1, rtol=0, atol=1e-13 * np.max(np.abs(f1)))
+            a1 = analyze(f1, grid)
+            np.testing.assert_allclose(ab.coef[i, j], a1.coef, rtol=0, atol=1e-13 * np.max(np.abs(a1.coef)))
+    assert rel_err(ab.coef, coef) < 1e-12
+
+
+def test_float32_and_integer_input(rng):
+    grid = Grid.equiangular(34, 34, "cells")
+    f = synthesize(Harmonics(random_coef(grid.lmax_exact, rng)), grid)
+    f32 = f.astype(np.float32)
+    h32 = analyze(f32, grid)
+    assert h32.coef.dtype == np.complex128
+    # same result as the float64 copy of the same numbers (the arithmetic is double)
+    ref = analyze(f32.astype(np.float64), grid)
+    assert rel_err(h32.coef, ref.coef) < 1e-14
+    ints = rng.integers(-50, 50, size=grid.shape)
+    hi = analyze(ints, grid)
+    assert rel_err(hi.coef, analyze(ints.astype(np.float64), grid).coef) < 1e-14
+    h3 = analyze(np.full(grid.shape, 3, dtype=np.int32), grid)
+    assert abs(h3.coef[0, 0] - 3 * math.sqrt(4 * math.pi)) < 1e-13  # 3 = 3 sqrt(4 pi) Y_00
+
+
+def test_non_contiguous_input(rng):
+    grid = Grid.gauss(23)
+    coef = random_coef(23, rng, batch=(3,))
+    f = synthesize(Harmonics(coef), grid)  # (3, nlat, nlon)
+    ref = analyze(f, grid).coef
+    fortran = np.asfortranarray(f)
+    big = np.zeros((3, grid.nlat * 2, grid.nlon * 3))
+    big[:, ::2, ::3] = f
+    strided = big[:, ::2, ::3]
+    moved = np.moveaxis(np.ascontiguousarray(np.moveaxis(f, 0, -1)), -1, 0)  # batch axis last in memory
+    reversed_rows = np.ascontiguousarray(f[:, ::-1])[:, ::-1]  # negative stride
+    for v in (fortran, strided, moved, reversed_rows, f.transpose(0, 2, 1).copy().transpose(0, 2, 1)):
+        assert not v.flags.c_contiguous
+        np.testing.assert_allclose(analyze(v, grid).coef, ref, rtol=0, atol=1e-13 * np.max(np.abs(ref)))
+    # the caller's array is left untouched
+    before = strided.copy()
+    analyze(strided, grid)
+    np.testing.assert_array_equal(strided, before)
+
+
+def test_analysis_below_grid_limit_truncates(rng):
+    # asking for fewer degrees than the grid holds returns the leading coefficients
+    grid = Grid.gauss(40)
+    coef = random_coef(40, rng)
+    h = analyze(synthesize(Harmonics(coef), grid), grid, lmax=12)
+    assert h.lmax == 12
+    assert rel_err(h.coef, coef[:13, :13]) < 1e-12
+
+
+# --------------------------------------------------------------------------------------
+# Gradient and regridding
+# --------------------------------------------------------------------------------------
+def test_gradient_of_closed_form_fields():
+    # derivatives by hand (common practice): east = (1/sin t) df/dphi, north = -df/dt
+    grid = Grid.gauss(20)
+    th, ph = mesh(grid)
+    cases = [
+        (np.cos(th) + 0 * ph, 0 * th * ph, np.sin(th) + 0 * ph),
+        (np.sin(th) * np.cos(ph), -np.sin(ph) + 0 * th, -np.cos(th) * np.cos(ph)),
+        (np.sin(th) ** 2 * np.cos(th) * np.cos(2 * ph),
+         -2 * np.sin(th) * np.cos(th) * np.sin(2 * ph),
+         -(2 * np.sin(th) * np.cos(th) ** 2 - np.sin(th) ** 3) * np.cos(2 * ph)),
+    ]
+    for f, east, north in cases:
+        e, n = synthesize_gradient(analyze(f, grid), grid)
+        np.testing.assert_allclose(e, east, rtol=0, atol=1e-12)
+        np.testing.assert_allclose(n, north, rtol=0, atol=1e-12)
+
+
+def test_regrid_band_limited_field_is_exact():
+    # a degree-3 field is reproduced exactly on any grid that holds degree 3
+    def field(grid):
+        th, ph = mesh(grid)
+        return np.sin(th) ** 2 * np.cos(th) * np.cos(2 * ph - 0.4) + np.cos(th) + 0.5
+
+    src = Grid.gauss(15)
+    dst = Grid.equiangular(64, 128, "cells")
+    out = regrid(field(src), src, dst)
+    assert out.shape == dst.shape
+    np.testing.assert_allclose(out, field(dst), rtol=0, atol=1e-13)
+    back = regrid(out, dst, src)
+    np.testing.assert_allclose(back, field(src), rtol=0, atol=1e-13)
+
+
+# --------------------------------------------------------------------------------------
+# Errors at the public boundary
+# --------------------------------------------------------------------------------------
+def test_nan_and_inf_rejected():
+    grid = Grid.gauss(10)
+    for bad in (np.nan, np.inf, -np.inf):
+        v = np.ones(grid.shape)
+        v[3, 4] = bad
+        with pytest.raises(ValueError, match="(?i)nan|finite|inf"):
+            analyze(v, grid)
+
+
+def test_shape_mismatch_rejected():
+    grid = Grid.gauss(10)
+    for shape in [(grid.nlat + 1, grid.nlon), (grid.nlon, grid.nlat), (grid.nlat * grid.nlon,)]:
+        with pytest.raises(ValueError, match="(?i)shape"):
+            analyze(np.ones(shape), grid)
+
+
+def test_lmax_above_grid_limit_rejected():
+    grid = Grid.equiangular(20, 40, "poles")  # lmax_exact = 9
+    v = np.ones(grid.shape)
+    with pytest.raises(ValueError, match="(?i)lmax"):
+        analyze(v, grid, lmax=10)
+    h = analyze(v, grid, lmax=12, allow_aliasing=True)  # opted in: allowed
+    assert h.lmax == 12
+
+
+def test_unknown_normalisation_rejected():
+    grid = Grid.gauss(5)
+    with pytest.raises(ValueError, match="(?is)norm.*ortho|ortho.*norm"):
+        analyze(np.ones(grid.shape), grid, norm="bogus")
+    with pytest.raises(ValueError, match="(?i)norm"):
+        Harmonics(np.zeros((3, 3), complex), norm="bogus")
+
+
+def test_non_global_or_irregular_coordinates_rejected():
+    lat = np.linspace(80.0, -80.0, 17)
+    with pytest.raises(ValueError, match="(?i)lat"):
+        Grid.from_coords(lat, np.arange(0.0, 360.0, 10.0))
+    lat = np.sort(np.random.default_rng(3).uniform(-90, 90, 17))[::-1]
+    with pytest.raises(ValueError, match="(?i)lat"):
+        Grid.from_coords(lat, np.arange(0.0, 360.0, 10.0))
