@@ -189,6 +189,19 @@ def test_cap_against_quadrature(radius_deg, lmax):
         assert abs(w[l] - ref) < 1e-9, l
 
 
+@pytest.mark.parametrize("radius_deg", [0.05, 1.0, 20.0])
+def test_cap_high_degree_against_mpmath(radius_deg):
+    # (P_{l-1}(x0) - P_{l+1}(x0)) / ((2l+1)(1-x0)) with mpmath.legendre at 40 digits, to
+    # degree 10800: the increment recursion does not suffer the cancellation of small caps
+    w = cap(radius_deg, 10800)
+    with mpmath.workdps(40):
+        x0 = mpmath.cos(mpmath.radians(radius_deg))
+        for l in (1, 5, 50, 500, 2000, 5400, 10800):
+            diff = mpmath.legendre(l - 1, x0) - mpmath.legendre(l + 1, x0)
+            ref = diff / ((2 * l + 1) * (1 - x0))
+            assert abs(w[l] - float(ref)) < 1e-13, l
+
+
 def test_cap_closed_forms():
     # w_1 = (1 + cos psi0)/2 (integral of x); the whole sphere keeps the mean only
     assert abs(cap(10.0, 1)[1] - (1 + math.cos(math.radians(10.0))) / 2) < 1e-15
