@@ -384,7 +384,7 @@ def _cmd_analyze(a: argparse.Namespace) -> int:
         raise UserError(f"a text table holds one field but {da.name!r} has {n}; write .nc instead")
     with _progress(n, "analyze") as bar:
         ds = sxr.analyze(da, lmax, norm=a.norm, condon_shortley=not a.no_phase,
-                         radius=a.radius, progress=bar)
+                         radius=a.radius, progress=bar if bar.enabled else None)
     if is_text:
         sxr.write_table(sxr.to_harmonics(ds), a.output, overwrite=a.overwrite,
                         name=ds.attrs.get("field_name"))
@@ -464,7 +464,7 @@ def _cmd_spectrum(a: argparse.Namespace) -> int:
         info = _grid_info(da, a.input)
         lmax = sxr._check_lmax(a.lmax, info.grid, False, f"variable {da.name!r}")
         with _progress(_n_fields(da, info), "analyze") as bar:
-            ds = sxr.analyze(da, lmax, progress=bar)
+            ds = sxr.analyze(da, lmax, progress=bar if bar.enabled else None)
         source = f"{da.name!r} on a {info.describe()}"
     power = sxr.degree_power(ds)
     lmax = power.sizes["degree"] - 1

@@ -1,0 +1,237 @@
+"""End-to-end checks of the ``sphex`` command line, run as a subprocess on temporary files.
+
+Each subprocess pays Python's and numba's start-up (the kernels are cached on
+disk after the first run), so the grids are small and the runs few.
+"""
+from __future__ import annotations
+
+import os
+import subprocess
+import sys
+
+import numpy as np
+import pytest
+import xarray as xr
+
+import sphex
+import sphex.xr as sxr
+from sphex import cli
+
+LMAX = 14
+
+
+def run(*args, cwd=None):
+    env = dict(os.environ, PYTHONWARNINGS="ignore")
+    env.pop("SPHEX_DEBUG", None)
+    return subprocess.run([sys.executable, "-m", "sphex.cli", *map(str, args)],
+                          capture_output=True, text=True, cwd=cwd, env=env, timeout=300)
+
+
+def _band_limited(rng, batch):
+    coef = np.zeros(batch + (LMAX + 1, LMAX + 1), dtype=complex)
+    for l in range(LMAX + 1):
+        coef[..., l, : l + 1] = (rng.normal(size=batch + (l + 1,))
+                                 + 1j * rng.normal(size=batch + (l + 1,))) / (1 + l)
+    coef[..., 0] = coef[..., 0].real
+    return sphex.Harmonics(coef)
+
+
+@pytest.fixture(scope="module")
+def files(tmp_path_factory):
+    """A north-to-south file with longitudes 0..359 and a time axis, plus odd files."""
+    d = tmp_path_factory.mktemp("cli")
+    rng = np.random.default_rng(7)
+    # 2-degree cells north to south, 1-degree longitudes 0..359: exact to degree 44
+    lat = 89.0 - 2.0 * np.arange(90)
+    lon = np.arange(360.0)
+    grid = sphex.Grid.from_coords(lat, lon)
+    h = _band_limited(rng, (3,))
+    values = sphex.synthesize(h, grid)
+    time = np.array(["2030-01-01", "2030-01-02", "2030-01-03"], dtype="datetime64[ns]")
+    ds = xr.Dataset(
+        {"tsurf": (("time", "lat", "lon"), values, {"units": "K", "long_name": "surface temperature"}),
+         "region": (("y", "x"), np.zeros((5, 72)))},
+        coords={"time": time, "lat": ("lat", lat, {"units": "degrees_north"}),
+                "lon": ("lon", lon, {"units": "degrees_east"}),
+                "y": ("y", np.linspace(30, 50, 5), {"units": "degrees_north"}),
+                "x": ("x", np.arange(72) * 5.0, {"units": "degrees_east"})},
+    )
+    series = d / "series.nc"
+    ds.to_netcdf(series)
+    single = d / "single.nc"
+    ds[["tsurf"]].isel(time=0).to_netcdf(single)
+    (d / "notes.nc").write_text("this is not netCDF\n")
+    return {"dir": d, "series": series, "single": single, "values": values, "lat": lat,
+            "lon": lon, "time": time, "h": h}
+
+
+def test_help_lists_every_command_and_subcommand_help_has_an_example(capsys):
+    r = run("--help")
+    assert r.returncode == 0
+    for name in ("analyze", "synthesize", "spectrum", "smooth", "regrid", "inspect", "demo", "bench"):
+        assert name in r.stdout
+    for name in ("analyze", "synthesize", "spectrum", "smooth", "regrid", "inspect", "demo"):
+        with pytest.raises(SystemExit) as e:        # in-process: argparse help exits 0
+            cli.main([name, "--help"])
+        assert e.value.code == 0
+        assert "example:" in capsys.readouterr().out
+
+
+def test_analyze_then_synthesize_onto_the_input_grid(files):
+    d = files["dir"]
+    coef = d / "coef.nc"
+    r = run("analyze", files["series"], "-v", "tsurf", "-o", coef)
+    assert r.returncode == 0, r.stderr
+    assert "degrees 0..44" in r.stdout and "3 fields" in r.stdout
+    back = d / "back.nc"
+    r = run("synthesize", coef, "--grid", files["series"], "-o", back)
+    assert r.returncode == 0, r.stderr
+    with xr.open_dataset(back) as out, xr.open_dataset(files["series"]) as src:
+        np.testing.assert_array_equal(out["lat"].values, src["lat"].values)     # north to south kept
+        np.testing.assert_array_equal(out["lon"].values, src["lon"].values)
+        np.testing.assert_array_equal(out["time"].values, src["time"].values)
+        assert out["tsurf"].dims == ("time", "lat", "lon")
+        assert out["tsurf"].attrs["units"] == "K"
+        assert float(abs(out["tsurf"] - src["tsurf"]).max()) < 1e-8
+    # the coefficient file is in the documented layout and reproduces the generating coefficients
+    ds = sxr.open_coefficients(coef)
+    assert ds.attrs["normalization"] == "ortho" and ds.attrs["field_name"] == "tsurf"
+    c, s = files["h"].cos_sin()
+    np.testing.assert_allclose(ds[sxr.COS].values[:, : LMAX + 1, : LMAX + 1], c, atol=1e-12)
+    np.testing.assert_allclose(ds[sxr.SIN].values[:, : LMAX + 1, : LMAX + 1], s, atol=1e-12)
+    assert float(abs(ds[sxr.COS][:, LMAX + 1:]).max()) < 1e-12
+
+
+def test_spectrum_csv_and_plot(files):
+    d = files["dir"]
+    csv, png = d / "p.csv", d / "p.png"
+    r = run("spectrum", files["series"], "-v", "tsurf", "--lmax", LMAX, "--csv", csv, "--plot", png,
+            "--slope", "2:14")
+    assert r.returncode == 0, r.stderr
+    assert png.read_bytes()[:8] == b"\x89PNG\r\n\x1a\n"
+    rows = [ln.split(",") for ln in csv.read_text().splitlines() if not ln.startswith("#")]
+    assert rows[0][0] == "degree" and len(rows[0]) == 4 and len(rows) == LMAX + 2
+    power = np.array([[float(x) for x in row[1:]] for row in rows[1:]])
+    # Parseval: the spectrum sums to the area mean of f^2 (quadrature on the input grid)
+    grid = sphex.Grid.from_coords(files["lat"], files["lon"])
+    mean_sq = grid.integrate(files["values"] ** 2) / (4 * np.pi)
+    np.testing.assert_allclose(power.sum(axis=0), mean_sq, rtol=1e-10)
+    assert "slope" in r.stdout
+
+
+def test_smooth_regrid_and_text_table(files):
+    d = files["dir"]
+    sm = d / "smooth.nc"
+    r = run("smooth", files["single"], "--gaussian", 800, "--planet-radius", 6371, "-o", sm)
+    assert r.returncode == 0, r.stderr
+    with xr.open_dataset(sm) as out, xr.open_dataset(files["single"]) as src:
+        expect = sxr.smooth(src["tsurf"].load(), gaussian_km=800.0, planet_radius_km=6371.0)
+        np.testing.assert_allclose(out["tsurf"].values, expect.values, atol=1e-12)
+        assert float(out["tsurf"].var()) < float(src["tsurf"].var())
+    rg = d / "regrid.nc"
+    r = run("regrid", files["single"], "--grid", "gauss:20", "-o", rg)
+    assert r.returncode == 0, r.stderr
+    g = sphex.Grid.gauss(20)
+    h0 = files["h"].replace(coef=files["h"].coef[0])
+    with xr.open_dataset(rg) as out:
+        np.testing.assert_allclose(out["tsurf"].values, sphex.synthesize(h0, g), atol=1e-8)
+    txt = d / "c.txt"
+    r = run("analyze", files["single"], "--lmax", LMAX, "-o", txt)
+    assert r.returncode == 0, r.stderr
+    h, _ = sxr.read_table(txt)
+    np.testing.assert_allclose(h.coef, h0.coef, atol=1e-12)
+
+
+def test_inspect_explains_each_variable(files):
+    r = run("inspect", files["series"])
+    assert r.returncode == 0, r.stderr
+    assert "equiangular-cells" in r.stdout and "exact to degree 44" in r.stdout
+    assert "north to south" in r.stdout
+    region = r.stdout.split("region")[1]
+    assert "not usable" in region and "not global" in region
+
+
+def _assert_user_error(r, *words):
+    assert r.returncode == 2, (r.stdout, r.stderr)
+    lines = r.stderr.strip().splitlines()
+    assert len(lines) == 1, r.stderr
+    assert "Traceback" not in r.stderr
+    for w in words:
+        assert w in lines[0], lines[0]
+
+
+ERRORS = [
+    (("analyze", "{dir}/missing.nc", "-o", "{out}"), ("no such file",)),
+    (("analyze", "{dir}/notes.nc", "-o", "{out}"), ("not a readable netCDF",)),
+    (("analyze", "{series}", "-v", "pressure", "-o", "{out}"), ("no variable 'pressure'", "tsurf")),
+    (("analyze", "{series}", "-v", "region", "-o", "{out}"), ("not global",)),
+    (("analyze", "{series}", "-v", "tsurf", "--lmax", "45", "-o", "{out}"), ("exact limit 44",)),
+    (("analyze", "{series}", "-v", "tsurf", "--norm", "geodesy", "-o", "{out}"), ("invalid choice",)),
+    (("regrid", "{series}", "-v", "tsurf", "--grid", "gauss", "-o", "{out}"), ("gauss:LMAX",)),
+]
+
+
+@pytest.mark.parametrize("args,words", ERRORS, ids=[e[1][0] for e in ERRORS])
+def test_user_errors_exit_2_with_one_line_and_no_output(files, args, words):
+    out = files["dir"] / "never.nc"
+    fmt = {"dir": files["dir"], "series": files["series"], "out": out}
+    r = run(*(a.format(**fmt) for a in args))
+    _assert_user_error(r, *words)
+    assert not out.exists()
+    assert not [p for p in files["dir"].iterdir() if "sphex-partial" in p.name]
+
+
+def test_existing_output_is_left_byte_identical(files):
+    d = files["dir"]
+    keep = d / "keep.nc"
+    keep.write_bytes(b"precious bytes")
+    r = run("analyze", files["single"], "-o", keep)
+    _assert_user_error(r, "exists", "--overwrite")
+    assert keep.read_bytes() == b"precious bytes"
+    r = run("analyze", files["single"], "--lmax", 4, "-o", keep, "--overwrite")
+    assert r.returncode == 0, r.stderr
+    assert sxr.open_coefficients(keep).sizes["degree"] == 5
+
+
+def test_demo_writes_its_products(tmp_path):
+    out = tmp_path / "demo"
+    r = run("demo", "--out", out)
+    assert r.returncode == 0, r.stderr
+    names = sorted(p.name for p in out.iterdir())
+    for n in ("velanthe_topography_coef.nc", "topography_spectrum.png", "topography_smoothed_200km.png",
+              "topography_smoothed_200km.nc", "topography_degree_order.png"):
+        assert n in names
+        assert str(out / n) in r.stdout
+    ds = sxr.open_coefficients(out / "velanthe_topography_coef.nc")
+    assert ds.attrs["lmax"] == 89 and ds.attrs["reference_radius"] == 1.35e6
+    r = run("demo", "--out", out)
+    _assert_user_error(r, "already holds demo results", "--overwrite")
+
+
+def test_interrupted_write_leaves_nothing(tmp_path):
+    from sphex._io import atomic_output
+
+    target = tmp_path / "x.nc"
+    with pytest.raises(KeyboardInterrupt):
+        with atomic_output(target) as tmp:
+            tmp.write_bytes(b"half a file")
+            raise KeyboardInterrupt
+    assert list(tmp_path.iterdir()) == []
+
+
+def test_progress_bar_draws_only_on_a_terminal():
+    import io
+
+    from sphex._io import Progress
+
+    class Tty(io.StringIO):
+        def isatty(self):
+            return True
+
+    tty, pipe = Tty(), io.StringIO()
+    for stream in (tty, pipe):
+        with Progress(12, "analyze", stream=stream) as bar:
+            for done in (4, 8, 12):
+                bar(done, 12)
+    assert "12/12" in tty.getvalue() and tty.getvalue().endswith("\n")
+    assert pipe.getvalue() == ""
