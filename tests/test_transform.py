@@ -313,15 +313,19 @@ def test_nan_and_inf_rejected():
 def test_shape_mismatch_rejected():
     grid = Grid.gauss(10)
     for shape in [(grid.nlat + 1, grid.nlon), (grid.nlon, grid.nlat), (grid.nlat * grid.nlon,)]:
-        with pytest.raises(ValueError, match="(?i)shape"):
+        with pytest.raises(ValueError, match="(?i)shape") as info:
             analyze(np.ones(shape), grid)
+        # the message shows both the given shape and the grid's
+        assert str(shape) in str(info.value) and f"{grid.nlat}, {grid.nlon}" in str(info.value)
 
 
 def test_lmax_above_grid_limit_rejected():
     grid = Grid.equiangular(20, 40, "poles")  # lmax_exact = 9
     v = np.ones(grid.shape)
-    with pytest.raises(ValueError, match="(?i)lmax"):
+    with pytest.raises(ValueError, match="(?i)lmax") as info:
         analyze(v, grid, lmax=10)
+    assert "9" in str(info.value)  # names the grid's limit
+    assert "allow_aliasing" in str(info.value)  # and the way to opt in
     h = analyze(v, grid, lmax=12, allow_aliasing=True)  # opted in: allowed
     assert h.lmax == 12
 

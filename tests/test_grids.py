@@ -1,0 +1,287 @@
+"""Checks of sphex.grids.Grid: nodes, quadrature weights, exact degree limit, detection from coordinates."""
+from __future__ import annotations
+
+import pickle
+
+import numpy as np
+import pytest
+
+from _reference import exact_monomial_integral, gauss_nodes_weights, legendre_poly, mp_gauss_node_weight
+from sphex.grids import Grid
+
+LAYOUTS = ("poles", "cells", "north")
+
+
+def equiangular_lat(nlat: int, layout: str) -> np.ndarray:
+    """Latitudes (deg, north to south) of each layout, as defined in the core API."""
+    j = np.arange(nlat)
+    if layout == "poles":
+        return 90.0 - 180.0 * j / (nlat - 1)
+    if layout == "cells":
+        return 90.0 - 180.0 * (j + 0.5) / nlat
+    if layout == "north":
+        return 90.0 - 180.0 * j / nlat
+    raise KeyError(layout)
+
+
+def gauss_lat(nlat: int) -> np.ndarray:
+    """Gauss-Legendre latitudes (deg, north to south) from numpy.polynomial.legendre.leggauss."""
+    x, _ = gauss_nodes_weights(nlat)
+    return np.degrees(np.arcsin(x))
+
+
+def make(kind: str, nlat: int, nlon: int) -> Grid:
+    if kind == "gauss":
+        return Grid.gauss(nlat - 1, nlon=nlon)
+    return Grid.equiangular(nlat, nlon, kind)
+
+
+# --------------------------------------------------------------------------------------
+# Gauss-Legendre nodes and weights
+# --------------------------------------------------------------------------------------
+@pytest.mark.parametrize("lmax", [0, 1, 4, 15, 63, 200, 255])
+def test_gauss_matches_numpy_leggauss(lmax):
+    # source: numpy.polynomial.legendre.leggauss (nodes in x = cos(colat), weights)
+    g = Grid.gauss(lmax)
+    x_ref, w_ref = gauss_nodes_weights(lmax + 1)
+    assert g.nlat == lmax + 1
+    assert g.kind == "gauss"
+    assert g.lmax_exact == lmax
+    np.testing.assert_allclose(np.cos(g.colat), x_ref, rtol=0, atol=1e-14)
+    np.testing.assert_allclose(g.weights, w_ref, rtol=0, atol=1e-14)
+    np.testing.assert_allclose(g.lat, np.degrees(np.arcsin(x_ref)), rtol=0, atol=1e-12)
+    np.testing.assert_allclose(g.colat, np.radians(90.0 - g.lat), rtol=0, atol=1e-14)
+
+
+@pytest.mark.parametrize("n", [512, 2048])
+def test_gauss_polar_weights_against_mpmath(n):
+    # source: mpmath, Newton on P_n and w = 2(1-x^2)/(n P_{n-1})^2 at 30 digits
+    # (tests/_reference.mp_gauss_node_weight). The smallest weights sit next to the poles;
+    # evaluated in double at the double node they are good to ~n*eps relative, so 1e-12
+    # relative leaves room. (numpy's leggauss itself is only ~1e-10 relative there at n=512,
+    # which is why the numpy comparison above stops at n=256.)
+    g = Grid.gauss(n - 1)
+    for i in (0, 1, 2, 5, n // 3, n // 2 - 1):
+        x_ref, w_ref = mp_gauss_node_weight(n, np.cos(g.colat[i]))
+        assert abs(np.cos(g.colat[i]) - x_ref) < 2e-16
+        assert abs(g.weights[i] - w_ref) < 1e-12 * w_ref, (i, g.weights[i], w_ref)
+        j = n - 1 - i  # the mirror node in the southern hemisphere
+        assert abs(g.weights[j] - w_ref) < 1e-12 * w_ref, (j, g.weights[j], w_ref)
+
+
+def test_gauss_five_points_handbook_table():
+    # source: Abramowitz & Stegun, Table 25.4, n = 5 (values from memory)
+    g = Grid.gauss(4)
+    nodes = np.array([0.9061798459386640, 0.5384693101056831, 0.0, -0.5384693101056831, -0.9061798459386640])
+    weights = np.array([0.2369268850561891, 0.4786286704993665, 0.5688888888888889,
+                        0.4786286704993665, 0.2369268850561891])
+    np.testing.assert_allclose(np.cos(g.colat), nodes, rtol=0, atol=1e-15)
+    np.testing.assert_allclose(g.weights, weights, rtol=0, atol=1e-15)
+
+
+def test_gauss_default_longitudes():
+    # core API: nlon = 2*lmax + 2 by default, equally spaced from 0
+    g = Grid.gauss(31)
+    assert g.nlon == 64 and g.shape == (32, 64)
+    np.testing.assert_allclose(g.lon, 360.0 * np.arange(64) / 64, rtol=0, atol=1e-12)
+    assert Grid.gauss(31, nlon=63).lmax_exact == 31
+
+
+def test_unknown_layout_rejected():
+    with pytest.raises(ValueError, match="(?is)layout.*poles"):
+        Grid.equiangular(10, 20, "middle")
+
+
+def test_gauss_too_few_longitudes_rejected():
+    # core API: nlon >= 2*lmax + 1
+    with pytest.raises(ValueError, match="(?i)nlon|longitude"):
+        Grid.gauss(31, nlon=40)
+
+
+# --------------------------------------------------------------------------------------
+# Equiangular layouts
+# --------------------------------------------------------------------------------------
+@pytest.mark.parametrize("layout", LAYOUTS)
+@pytest.mark.parametrize("nlat", [5, 8, 33, 64])
+def test_equiangular_nodes_and_limit(layout, nlat):
+    # core API: node formulas per layout; lmax_exact = floor((nlat-1)/2)
+    nlon = 2 * nlat
+    g = Grid.equiangular(nlat, nlon, layout)
+    assert g.kind == f"equiangular-{layout}"
+    assert g.shape == (nlat, nlon) and g.nlat == nlat and g.nlon == nlon
+    np.testing.assert_allclose(g.lat, equiangular_lat(nlat, layout), rtol=0, atol=1e-12)
+    np.testing.assert_allclose(g.lon, 360.0 * np.arange(nlon) / nlon, rtol=0, atol=1e-12)
+    assert g.lmax_exact == (nlat - 1) // 2
+
+
+def test_lmax_exact_limited_by_longitudes():
+    # core API: lmax_exact <= (nlon - 1) // 2 (a degree-l field needs 2l+1 longitudes)
+    assert Grid.equiangular(65, 20, "poles").lmax_exact == 9
+    assert Grid.equiangular(65, 21, "cells").lmax_exact == 10
+    assert Grid.equiangular(64, 200, "north").lmax_exact == 31
+
+
+@pytest.mark.parametrize("kind", ("gauss",) + LAYOUTS)
+@pytest.mark.parametrize("nlat", [9, 10, 33, 34])
+def test_quadrature_exact_to_twice_lmax_exact(kind, nlat):
+    # The weights integrate polynomials in x = cos(colat) over [-1, 1].
+    # Exact integrals: x^k -> 2/(k+1) (k even), 0 (k odd); Legendre P_k -> 2 delta_k0
+    # (common practice; P_k from numpy.polynomial.legendre).
+    g = make(kind, nlat, 2 * nlat + 2)
+    x = np.cos(g.colat)
+    w = g.weights
+    np.testing.assert_allclose(w.sum(), 2.0, rtol=0, atol=1e-14)
+    top = 2 * g.lmax_exact + (1 if kind == "gauss" else 0)  # Gauss: 2n-1 with n = lmax+1 nodes
+    for k in range(top + 1):
+        assert abs(w @ x**k - exact_monomial_integral(k)) < 1e-14, (kind, nlat, k)
+        assert abs(w @ legendre_poly(k, x) - (2.0 if k == 0 else 0.0)) < 1e-13, (kind, nlat, k)
+
+
+@pytest.mark.parametrize("kind", ("gauss",) + LAYOUTS)
+@pytest.mark.parametrize("nlat", [9, 10, 33, 34])
+def test_quadrature_limit_is_sharp(kind, nlat):
+    # An nlat-point interpolatory rule (Clenshaw-Curtis, Fejer, Driscoll-Healy, Gauss) is not
+    # exact for every polynomial of degree 2*lmax_exact + 2; checked here with P_{2L+1}, P_{2L+2}
+    # (common practice; for these nlat the interpolatory error is >= 4e-5, measured with
+    # weights solved from the Legendre moments).
+    g = make(kind, nlat, 2 * nlat + 2)
+    x = np.cos(g.colat)
+    L = g.lmax_exact
+    err = max(abs(g.weights @ legendre_poly(k, x)) for k in (2 * L + 1, 2 * L + 2))
+    assert err > 1e-6, (kind, nlat, err)
+
+
+@pytest.mark.parametrize("kind", ("gauss",) + LAYOUTS)
+def test_area_integral(kind):
+    # core API: integral of f over the sphere = (2 pi / nlon) sum_j w_j sum_k f[j, k];
+    # exact values (common practice): 1 -> 4 pi, cos^2(colat) -> 4 pi / 3,
+    # sin^2(colat) cos^2(lon) -> 4 pi / 3.
+    g = make(kind, 17, 36)
+    lon = np.radians(g.lon)[None, :]
+    th = g.colat[:, None]
+
+    def integral(f):
+        return 2 * np.pi / g.nlon * np.sum(g.weights[:, None] * f)
+
+    assert integral(np.ones(g.shape)) == pytest.approx(4 * np.pi, abs=1e-13)
+    assert integral(np.cos(th) ** 2 + 0 * lon) == pytest.approx(4 * np.pi / 3, abs=1e-13)
+    assert integral(np.sin(th) ** 2 * np.cos(lon) ** 2) == pytest.approx(4 * np.pi / 3, abs=1e-13)
+
+
+# --------------------------------------------------------------------------------------
+# Value semantics
+# --------------------------------------------------------------------------------------
+def test_grid_equal_hashable_pickles_immutable():
+    # core API: immutable, hashable/equal by value, pickles
+    a, b = Grid.gauss(20), Grid.gauss(20)
+    assert a == b and hash(a) == hash(b)
+    assert a != Grid.gauss(21)
+    assert a != Grid.equiangular(21, 42, "poles")
+    assert len({a, b, Grid.gauss(21)}) == 2
+    c = pickle.loads(pickle.dumps(Grid.equiangular(16, 32, "north")))
+    assert c == Grid.equiangular(16, 32, "north") and c.kind == "equiangular-north"
+
+
+def test_grid_is_immutable():
+    # core API: Grid objects are immutable (they are hashed by value, so a change after
+    # hashing would corrupt dicts and caches keyed by grids)
+    a = Grid.gauss(20)
+    for name, value in [("nlat", 3), ("nlon", 7), ("lmax_exact", 50), ("kind", "gauss")]:
+        with pytest.raises((AttributeError, TypeError)):
+            setattr(a, name, value)
+    with pytest.raises((ValueError, TypeError)):
+        a.weights[0] = 1.0  # arrays exposed read-only
+    with pytest.raises((ValueError, TypeError)):
+        a.lat[0] = 1.0
+    assert a == Grid.gauss(20)
+
+
+# --------------------------------------------------------------------------------------
+# Grid.from_coords
+# --------------------------------------------------------------------------------------
+def lon_vector(nlon: int, origin: str) -> np.ndarray:
+    d = 360.0 / nlon
+    start = {"0": 0.0, "-180": -180.0, "half": 0.5 * d, "-180half": -180.0 + 0.5 * d}[origin]
+    return start + d * np.arange(nlon)
+
+
+def lat_vector(kind: str, nlat: int) -> np.ndarray:
+    return gauss_lat(nlat) if kind == "gauss" else equiangular_lat(nlat, kind)
+
+
+@pytest.mark.parametrize("origin", ["0", "-180", "half", "-180half"])
+@pytest.mark.parametrize("order", ["north_to_south", "south_to_north"])
+@pytest.mark.parametrize("kind", ("gauss",) + LAYOUTS)
+@pytest.mark.parametrize("nlat", [16, 17])
+def test_from_coords_detects_kind(kind, order, origin, nlat):
+    # core API: kind detected for any latitude order and longitude origin; lat/lon kept as given
+    nlon = 2 * nlat + 2
+    lat = lat_vector(kind, nlat)
+    if order == "south_to_north":
+        lat = lat[::-1].copy()
+    lon = lon_vector(nlon, origin)
+    g = Grid.from_coords(lat, lon)
+    expected_kind = "gauss" if kind == "gauss" else f"equiangular-{kind}"
+    assert g.kind == expected_kind
+    assert g.shape == (nlat, nlon)
+    np.testing.assert_allclose(g.lat, lat, rtol=0, atol=1e-12)
+    np.testing.assert_allclose(g.lon, lon, rtol=0, atol=1e-12)
+    np.testing.assert_allclose(g.colat, np.radians(90.0 - lat), rtol=0, atol=1e-13)
+    ref = make(kind, nlat, nlon)
+    assert g.lmax_exact == ref.lmax_exact
+    w = ref.weights if order == "north_to_south" else ref.weights[::-1]
+    np.testing.assert_allclose(g.weights, w, rtol=0, atol=1e-14)
+
+
+def test_from_coords_accepts_lists_and_float32_equiangular():
+    # degrees stored in single precision (common in files: a 1/3-degree grid whose
+    # coordinates are rounded to float32) still describe the regular grid
+    lat = equiangular_lat(541, "poles").astype(np.float32)
+    lon = (np.arange(1080) / 3.0).astype(np.float32)
+    g = Grid.from_coords(list(lat), list(lon))
+    assert g.kind == "equiangular-poles" and g.lmax_exact == 270
+
+
+def test_from_coords_rejects_regional_latitudes():
+    lat = np.linspace(60.0, -60.0, 31)  # equally spaced but not global
+    with pytest.raises(ValueError, match="(?i)lat"):
+        Grid.from_coords(lat, lon_vector(64, "0"))
+
+
+def test_from_coords_rejects_irregular_latitudes(rng):
+    lat = equiangular_lat(33, "poles")
+    lat[5] += 0.3  # one row off the regular spacing, not a Gauss latitude either
+    with pytest.raises(ValueError, match="(?i)lat"):
+        Grid.from_coords(lat, lon_vector(64, "0"))
+
+
+def test_from_coords_rejects_irregular_longitudes():
+    lon = lon_vector(64, "0")
+    lon[10] += 1.0
+    with pytest.raises(ValueError, match="(?i)lon"):
+        Grid.from_coords(equiangular_lat(33, "poles"), lon)
+
+
+def test_from_coords_rejects_regional_longitudes():
+    lon = np.arange(0.0, 181.0, 5.0)  # half the globe
+    with pytest.raises(ValueError, match="(?i)lon"):
+        Grid.from_coords(equiangular_lat(33, "poles"), lon)
+
+
+@pytest.mark.parametrize("nlon", [0, 1])
+def test_from_coords_rejects_too_few_longitudes(nlon):
+    with pytest.raises(ValueError, match="(?i)lon"):
+        Grid.from_coords(equiangular_lat(33, "poles"), lon_vector(nlon, "0") if nlon else np.array([]))
+
+
+def test_from_coords_rejects_latitude_out_of_range():
+    lat = equiangular_lat(33, "poles") * 2.0  # -180..180 is not a latitude
+    with pytest.raises(ValueError, match="(?i)lat"):
+        Grid.from_coords(lat, lon_vector(64, "0"))
+
+
+def test_from_coords_rejects_unsorted_latitudes(rng):
+    lat = equiangular_lat(33, "poles")
+    lat = lat[rng.permutation(lat.size)]
+    with pytest.raises(ValueError, match="(?i)lat"):
+        Grid.from_coords(lat, lon_vector(64, "0"))
