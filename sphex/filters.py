@@ -117,8 +117,9 @@ def gaussian(radius_km: float, lmax: int, planet_radius_km: float) -> np.ndarray
 
     The classic forward recursion
     :math:`w_{l+1} = w_{l-1} - \frac{2l+1}{b} w_l` runs against the
-    dominant solution (the :math:`K_{l+1/2}` functions) and loses all digits
-    once :math:`w_l` drops below about :math:`10^{-8}`. Here the ratio is
+    dominant solution (the :math:`K_{l+1/2}` functions): in double precision
+    its relative error passes :math:`10^{-3}` once :math:`w_l` has fallen to
+    about :math:`10^{-7}` (then it diverges). Here the ratio is
     evaluated with exponentially scaled Bessel functions
     (``scipy.special.ive``, uniform asymptotic expansions), which stays
     accurate to a few parts in :math:`10^{12}` (relative) wherever
