@@ -368,8 +368,7 @@ def triangle_figure(coef: Any, *, units: str | None = None, title: str | None = 
         fig = _figure(6.4, 5.0)
         ax = fig.add_subplot()
         ax.set_facecolor(PAPER)
-        cm = _amplitude.copy()
-        cm.set_bad(PAPER)
+        cm = _amplitude.with_extremes(bad=PAPER)
         im = ax.imshow(logimg, origin="lower", cmap=cm, aspect="auto", interpolation="nearest",
                        extent=(-0.5, lmax + 0.5, -lmax - 0.5, lmax + 0.5))
         ax.axhline(0, color=INK, lw=0.5, alpha=0.5)
