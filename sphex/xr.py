@@ -1007,14 +1007,30 @@ def regrid(da: xr.DataArray, like: Any, *, lmax: int | None = None) -> xr.DataAr
 # ----------------------------------------------------------------------------
 # Spectra
 # ----------------------------------------------------------------------------
-def _power_np(c: np.ndarray, s: np.ndarray, *, conv: Mapping[str, Any]) -> np.ndarray:
-    from sphex.spectra import degree_power as _dp
+_SPECTRUM_KINDS = {
+    # kind: (function in sphex.spectra, squared units?, description)
+    "power": ("degree_power", True,
+              "degree power of {f} (contribution of each degree to the area mean of the square)"),
+    "per_coefficient": ("power_per_coefficient", True,
+                        "power per coefficient of {f} (degree power / (2l+1))"),
+    "rms": ("degree_rms", False, "degree RMS amplitude of {f} (square root of the degree power)"),
+    "cumulative": ("cumulative_power", True, "cumulative degree power of {f} (degrees 0..l)"),
+}
 
-    return np.asarray(_dp(_harm(c, s, conv)), dtype=np.float64)
+
+def _power_np(c: np.ndarray, s: np.ndarray, *, conv: Mapping[str, Any], func: str) -> np.ndarray:
+    from sphex import spectra
+
+    return np.asarray(getattr(spectra, func)(_harm(c, s, conv)), dtype=np.float64)
 
 
-def degree_power(obj: xr.Dataset | xr.DataArray | Harmonics, lmax: int | None = None) -> xr.DataArray:
-    """Degree power spectrum as a DataArray over ``degree`` (and any extra dims).
+def _squared(units: str) -> str:
+    return f"({units})^2" if any(ch in units for ch in " /*.^") else f"{units}^2"
+
+
+def degree_power(obj: xr.Dataset | xr.DataArray | Harmonics, lmax: int | None = None, *,
+                 kind: str = "power") -> xr.DataArray:
+    """Degree spectrum as a DataArray over ``degree`` (and any extra dims), with units.
 
     Parameters
     ----------
@@ -1022,13 +1038,20 @@ def degree_power(obj: xr.Dataset | xr.DataArray | Harmonics, lmax: int | None = 
         A gridded field is analysed first (up to ``lmax``).
     lmax : int, optional
         Degree limit for a gridded input.
+    kind : {"power", "per_coefficient", "rms", "cumulative"}
+        ``"power"``: the contribution of each degree to the area mean of f^2
+        (it sums to that mean; Parseval), from
+        :func:`sphex.spectra.degree_power`; ``"per_coefficient"``: that divided
+        by 2l+1; ``"rms"``: its square root; ``"cumulative"``: its running sum.
 
     Returns
     -------
     xarray.DataArray
-        The contribution of each degree to the area mean of f^2, in the
-        field's units squared; it sums to that mean (Parseval).
+        In the field's units squared (units for ``"rms"``).
     """
+    if kind not in _SPECTRUM_KINDS:
+        raise ValueError(f"unknown spectrum kind {kind!r}; choose one of {', '.join(_SPECTRUM_KINDS)}")
+    func, squared, text = _SPECTRUM_KINDS[kind]
     if isinstance(obj, xr.DataArray):
         obj = analyze(obj, lmax)
     ds = _check_coefficients(obj)
@@ -1036,17 +1059,15 @@ def degree_power(obj: xr.Dataset | xr.DataArray | Harmonics, lmax: int | None = 
     p = xr.apply_ufunc(
         _power_np, ds[COS], ds[SIN],
         input_core_dims=[["degree", "order"], ["degree", "order"]],
-        output_core_dims=[["degree"]], kwargs={"conv": conv},
+        output_core_dims=[["degree"]], kwargs={"conv": conv, "func": func},
         dask="parallelized", output_dtypes=[np.float64], keep_attrs=False,
     )
     p = p.assign_coords(degree=ds["degree"])
     units = conv["units"]
-    field = ds.attrs.get("field_name", "field")
-    p.name = "degree_power"
-    p.attrs = {"long_name": f"degree power of {field} (contribution of each degree to the "
-                            "area mean of the square)"}
+    p.name = "degree_power" if kind == "power" else f"degree_{kind}"
+    p.attrs = {"long_name": text.format(f=ds.attrs.get("field_name", "field"))}
     if units:
-        p.attrs["units"] = f"({units})^2" if any(ch in units for ch in " /*.^") else f"{units}^2"
+        p.attrs["units"] = _squared(units) if squared else units
     return p
 
 

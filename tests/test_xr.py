@@ -213,6 +213,14 @@ def test_degree_power_dataarray_sums_to_area_mean_square(rng):
     vals = sphex.synthesize(h, fine)     # f at the leggauss nodes, 80 equally spaced longitudes
     mean_sq = (vals ** 2).mean(axis=-1) @ wg[::-1] / 2.0
     np.testing.assert_allclose(p.sum("degree").values, mean_sq, rtol=1e-12)
+    # the other kinds follow from the power by their definitions
+    rms = sxr.degree_power(da, kind="rms")
+    assert rms.attrs["units"] == "K"
+    np.testing.assert_allclose(rms.values ** 2, p.values, rtol=1e-12)
+    per = sxr.degree_power(da, kind="per_coefficient")
+    np.testing.assert_allclose(per.values * (2 * np.arange(17) + 1), p.values, rtol=1e-12)
+    cum = sxr.degree_power(da, kind="cumulative")
+    np.testing.assert_allclose(cum.values, np.cumsum(p.values, axis=-1), rtol=1e-12)
 
 
 def test_smooth_matches_filtering_by_hand_and_keeps_the_grid(rng):
