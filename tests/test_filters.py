@@ -528,3 +528,16 @@ def test_regrid_shifted_longitudes_and_batch():
     assert out.shape == (2,) + target.shape
     assert np.max(np.abs(out[0] - ref)) < 1e-11 * np.max(np.abs(ref))
     assert np.max(np.abs(out[1] - 2 * ref)) < 2e-11 * np.max(np.abs(ref))
+
+
+def test_regrid_with_lmax_drops_higher_degrees():
+    # f (degree <= 4) plus the zonal P_7(sin lat) (numpy.polynomial.legendre), which is
+    # orthogonal to every degree below 7 (common practice): regridding with lmax=5 keeps f
+    f, _ = polynomial(np.random.default_rng(21), 4)
+    source, target = Grid.equiangular(24, 24, "north"), Grid.gauss(9, nlon=25)
+    slat, slon = mesh(source)
+    tlat, tlon = mesh(target)
+    p7 = np.polynomial.legendre.legval(np.sin(np.radians(slat)), [0.0] * 7 + [1.0])
+    out = regrid(f(slat, slon) + p7, source, target, lmax=5)
+    ref = f(tlat, tlon)
+    assert np.max(np.abs(out - ref)) < 1e-12 * np.max(np.abs(ref))
