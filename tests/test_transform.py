@@ -7,7 +7,14 @@ import numpy as np
 import pytest
 import scipy.special as sps
 
-from _reference import NORMS, complex_form_field, gauss_nodes_weights, norm_factor_array, random_coef
+from _reference import (
+    NORMS,
+    complex_form_field,
+    gauss_nodes_weights,
+    mp_ortho_column,
+    norm_factor_array,
+    random_coef,
+)
 from sphex import Grid, Harmonics, analyze, regrid, synthesize
 from sphex.transform import synthesize_gradient
 
@@ -92,6 +99,38 @@ def test_synthesis_matches_scipy_sum(rng, norm, condon_shortley):
     f = synthesize(Harmonics(coef, norm=norm, condon_shortley=condon_shortley), grid)
     ref = complex_form_field(coef, grid.colat, np.radians(grid.lon), norm, condon_shortley)
     assert rel_err(f, ref) < 1e-13
+
+
+@pytest.mark.slow
+def test_synthesis_of_high_degree_terms_against_mpmath():
+    # source: mpmath 45-digit recursion (tests/_reference.mp_ortho_column) for Lambda_lm at
+    # a few rows of a Gauss grid; a single term a_lm = 1 synthesises to
+    # 2 Re(Lambda_lm e^{i m phi}) (m > 0) or Lambda_l0 (m = 0), Condon-Shortley phase (-1)^m.
+    # (scipy.special.sph_legendre_p returns nan at degree 1000, so mpmath it is.)
+    lmax = 1023
+    grid = Grid.gauss(lmax)
+    rows = [0, 3, 200, 511, 800, 1023]
+    phi = np.radians(grid.lon)
+    k = np.arange(grid.nlon)
+    for l, m in [(1000, 0), (1000, 500), (1000, 990), (1023, 1)]:
+        coef = np.zeros((lmax + 1, lmax + 1), complex)
+        coef[l, m] = 0.6 - 0.8j if m else 1.0
+        f = synthesize(Harmonics(coef), grid)
+        lam = np.array([float(mp_ortho_column(m, l, grid.colat[j])[-1]) for j in rows]) * (-1.0) ** m
+        if m == 0:
+            ref = lam[:, None] * np.ones_like(phi)[None, :]
+        else:
+            # m phi reduced exactly (lon[0] = 0, integer arithmetic): exp(1j*m*phi) with m*phi ~ 6e3
+            # would carry ~1e-12 of rounding itself
+            angle = 2 * np.pi * ((m * k) % grid.nlon) / grid.nlon
+            ref = 2 * np.real(lam[:, None] * coef[l, m] * np.exp(1j * angle)[None, :])
+        size = np.max(np.abs(lam))
+        err = np.max(np.abs(f[rows] - ref), axis=1) / size
+        print(f"synthesis of a_({l},{m}) against mpmath, per row {rows}: {err}")
+        # rows 0, 3, 1023 lie within 0.01 rad of a pole, where the recursion in degree carries
+        # ~l^2 eps (see test_legendre.NEAR_POLE_CASES): 1e-10 there, 1e-12 elsewhere
+        assert np.all(err[[0, 1, 5]] < 1e-10), (l, m, err)
+        assert np.all(err[[2, 3, 4]] < 1e-12), (l, m, err)
 
 
 @pytest.mark.parametrize("kind", ["gauss", "poles", "cells", "north"])
@@ -252,6 +291,21 @@ def test_non_contiguous_input(rng):
     before = strided.copy()
     analyze(strided, grid)
     np.testing.assert_array_equal(strided, before)
+
+
+def test_low_degree_field_on_fine_oversampled_grid(rng):
+    # a degree-6 field synthesised on a grid that holds far more degrees, with extra
+    # longitudes (nlon = 4 lmax_exact + 3), against the direct scipy.special sum
+    grid = Grid.equiangular(41, 83, "poles")
+    coef = random_coef(6, rng)
+    f = synthesize(Harmonics(coef), grid)
+    ref = complex_form_field(coef, grid.colat, np.radians(grid.lon), "ortho", True)
+    assert rel_err(f, ref) < 1e-13
+    h = analyze(f, grid)
+    assert h.lmax == 20
+    expected = np.zeros((21, 21), complex)
+    expected[:7, :7] = coef
+    assert rel_err(h.coef, expected) < 1e-13
 
 
 def test_analysis_below_grid_limit_truncates(rng):
