@@ -366,6 +366,17 @@ def _order_start(m, n, x, s, cmm, shift, P, Q, k):
     return nscaled
 
 
+@nb.njit(inline="always", **_JIT)
+def _rescale(P, Q, k, j):
+    """Rescale lane j if it grew past BIG; True when it just became plain."""
+    if k[j] < 0 and abs(P[j]) > BIG:
+        P[j] *= INV_SCALE
+        Q[j] *= INV_SCALE
+        k[j] += 1
+        return k[j] == 0
+    return False
+
+
 @nb.njit(parallel=True, fastmath=_FM, **_JIT)
 def analysis_kernel(lmax, mlo, mhi, x, s, cm, Er, Ei, Or, Oi, outr, outi, shift):
     """Accumulate ortho, phase-free a_lm from even/odd Fourier sums.
@@ -376,10 +387,11 @@ def analysis_kernel(lmax, mlo, mhi, x, s, cm, Er, Ei, Or, Oi, outr, outi, shift)
     (O) sums of the Fourier coefficient of order m.  outr, outi:
     (K, M, lmax + 1), added to.  shift = 1 evaluates Lambda / sin(theta).
 
-    Degrees run in the outer loop and latitudes in the inner one, so the inner
-    loops are long, contiguous and vectorised.  Latitudes still in scaled range
-    take part in the recursion but are masked out of the sums until their
-    values become plain doubles.
+    Each pass over the latitudes advances the recursion by four degrees in
+    registers (loads and stores once per four degrees), and the latitude loop
+    is long, contiguous and vectorised.  Latitudes still in scaled range take
+    part in the recursion but are masked out of the sums until their values
+    become plain doubles (checked every CHECK_EVERY degrees).
     """
     J = x.size
     K = Er.shape[1]
@@ -405,38 +417,153 @@ def analysis_kernel(lmax, mlo, mhi, x, s, cm, Er, Ei, Or, Oi, outr, outi, shift)
                 fe[kk, 1, j] = Ei[mi, kk, j] * live
                 fe[kk, 2, j] = Or[mi, kk, j] * live
                 fe[kk, 3, j] = Oi[mi, kk, j] * live
+        T = np.empty((4, n if K > 1 else 1))
         xl = x[:n]
-        for l in range(m, lmax + 1):
-            if l > m:
+        # degree m (even)
+        for kk in range(K):
+            fr = fe[kk, 0]
+            fi = fe[kk, 1]
+            sr = 0.0
+            si = 0.0
+            for j in range(n):
+                sr += P[j] * fr[j]
+                si += P[j] * fi[j]
+            outr[kk, mi, m] += sr
+            outi[kk, mi, m] += si
+        l = m
+        while l < lmax:
+            if nscaled > 0 and (l - m) % CHECK_EVERY == 0:
+                for j in range(n):
+                    if _rescale(P, Q, k, j):
+                        nscaled -= 1
+                        for kk in range(K):
+                            fe[kk, 0, j] = Er[mi, kk, j]
+                            fe[kk, 1, j] = Ei[mi, kk, j]
+                            fe[kk, 2, j] = Or[mi, kk, j]
+                            fe[kk, 3, j] = Oi[mi, kk, j]
+            if l + 4 <= lmax:
+                a1 = a[l + 1]
+                a2 = a[l + 2]
+                a3 = a[l + 3]
+                a4 = a[l + 4]
+                c1 = c[l + 1]
+                c2 = c[l + 2]
+                c3 = c[l + 3]
+                c4 = c[l + 4]
+                if K == 1:
+                    er = fe[0, 0]
+                    ei = fe[0, 1]
+                    orr = fe[0, 2]
+                    oi = fe[0, 3]
+                    s1r = 0.0
+                    s1i = 0.0
+                    s2r = 0.0
+                    s2i = 0.0
+                    s3r = 0.0
+                    s3i = 0.0
+                    s4r = 0.0
+                    s4i = 0.0
+                    for j in range(n):
+                        xj = xl[j]
+                        p = P[j]
+                        t1 = a1 * xj * p - c1 * Q[j]
+                        t2 = a2 * xj * t1 - c2 * p
+                        t3 = a3 * xj * t2 - c3 * t1
+                        t4 = a4 * xj * t3 - c4 * t2
+                        o_r = orr[j]
+                        o_i = oi[j]
+                        e_r = er[j]
+                        e_i = ei[j]
+                        s1r += t1 * o_r
+                        s1i += t1 * o_i
+                        s2r += t2 * e_r
+                        s2i += t2 * e_i
+                        s3r += t3 * o_r
+                        s3i += t3 * o_i
+                        s4r += t4 * e_r
+                        s4i += t4 * e_i
+                        P[j] = t4
+                        Q[j] = t3
+                    outr[0, mi, l + 1] += s1r
+                    outi[0, mi, l + 1] += s1i
+                    outr[0, mi, l + 2] += s2r
+                    outi[0, mi, l + 2] += s2i
+                    outr[0, mi, l + 3] += s3r
+                    outi[0, mi, l + 3] += s3i
+                    outr[0, mi, l + 4] += s4r
+                    outi[0, mi, l + 4] += s4i
+                else:
+                    T1 = T[0]
+                    T2 = T[1]
+                    T3 = T[2]
+                    T4 = T[3]
+                    for j in range(n):
+                        xj = xl[j]
+                        p = P[j]
+                        t1 = a1 * xj * p - c1 * Q[j]
+                        t2 = a2 * xj * t1 - c2 * p
+                        t3 = a3 * xj * t2 - c3 * t1
+                        t4 = a4 * xj * t3 - c4 * t2
+                        T1[j] = t1
+                        T2[j] = t2
+                        T3[j] = t3
+                        T4[j] = t4
+                        P[j] = t4
+                        Q[j] = t3
+                    for kk in range(K):
+                        er = fe[kk, 0]
+                        ei = fe[kk, 1]
+                        orr = fe[kk, 2]
+                        oi = fe[kk, 3]
+                        s1r = 0.0
+                        s1i = 0.0
+                        s2r = 0.0
+                        s2i = 0.0
+                        s3r = 0.0
+                        s3i = 0.0
+                        s4r = 0.0
+                        s4i = 0.0
+                        for j in range(n):
+                            o_r = orr[j]
+                            o_i = oi[j]
+                            e_r = er[j]
+                            e_i = ei[j]
+                            s1r += T1[j] * o_r
+                            s1i += T1[j] * o_i
+                            s2r += T2[j] * e_r
+                            s2i += T2[j] * e_i
+                            s3r += T3[j] * o_r
+                            s3i += T3[j] * o_i
+                            s4r += T4[j] * e_r
+                            s4i += T4[j] * e_i
+                        outr[kk, mi, l + 1] += s1r
+                        outi[kk, mi, l + 1] += s1i
+                        outr[kk, mi, l + 2] += s2r
+                        outi[kk, mi, l + 2] += s2i
+                        outr[kk, mi, l + 3] += s3r
+                        outi[kk, mi, l + 3] += s3i
+                        outr[kk, mi, l + 4] += s4r
+                        outi[kk, mi, l + 4] += s4i
+                l += 4
+            else:
+                l += 1
                 al = a[l]
                 cl = c[l]
                 for j in range(n):
-                    Q[j] = al * xl[j] * P[j] - cl * Q[j]
-                P, Q = Q, P
-            if nscaled > 0 and (l - m) % CHECK_EVERY == 0:
-                for j in range(n):
-                    if k[j] < 0 and abs(P[j]) > BIG:
-                        P[j] *= INV_SCALE
-                        Q[j] *= INV_SCALE
-                        k[j] += 1
-                        if k[j] == 0:
-                            nscaled -= 1
-                            for kk in range(K):
-                                fe[kk, 0, j] = Er[mi, kk, j]
-                                fe[kk, 1, j] = Ei[mi, kk, j]
-                                fe[kk, 2, j] = Or[mi, kk, j]
-                                fe[kk, 3, j] = Oi[mi, kk, j]
-            par = 2 * ((l - m) & 1)
-            for kk in range(K):
-                fr = fe[kk, par]
-                fi = fe[kk, par + 1]
-                sr = 0.0
-                si = 0.0
-                for j in range(n):
-                    sr += P[j] * fr[j]
-                    si += P[j] * fi[j]
-                outr[kk, mi, l] += sr
-                outi[kk, mi, l] += si
+                    t = al * xl[j] * P[j] - cl * Q[j]
+                    Q[j] = P[j]
+                    P[j] = t
+                par = 2 * ((l - m) & 1)
+                for kk in range(K):
+                    fr = fe[kk, par]
+                    fi = fe[kk, par + 1]
+                    sr = 0.0
+                    si = 0.0
+                    for j in range(n):
+                        sr += P[j] * fr[j]
+                        si += P[j] * fi[j]
+                    outr[kk, mi, l] += sr
+                    outi[kk, mi, l] += si
 
 
 @nb.njit(parallel=True, fastmath=_FM, **_JIT)
@@ -445,8 +572,9 @@ def synthesis_kernel(lmax, mlo, mhi, x, s, cm, Ar, Ai, FNr, FNi, FSr, FSi, shift
 
     Ar, Ai: (K, M, lmax + 1).  FNr, FNi, FSr, FSi: (M, K, J), overwritten with
     sum_l a_lm Lambda_lm at the northern and southern latitude of each pair.
-    Sums of latitudes still in scaled range are discarded when they become
-    plain (their true values were below 2^-268).
+    Same loop structure as :func:`analysis_kernel`; sums of latitudes still in
+    scaled range are discarded when they become plain (their true values were
+    below 2^-268, negligible).
     """
     J = x.size
     K = Ar.shape[0]
@@ -458,40 +586,120 @@ def synthesis_kernel(lmax, mlo, mhi, x, s, cm, Ar, Ai, FNr, FNi, FSr, FSi, shift
         c = np.empty(lmax + 1)
         _recursion_coeffs(m, lmax, a, c)
         n = _live_count(m, lmax, x, s, cm[m], shift, a, c)
-        g = np.zeros((K, 4, max(n, 1)))
+        g = np.zeros((K, 4, max(n, 1)))  # even re, even im, odd re, odd im
         if n > 0:
             P = np.empty(n)
             Q = np.empty(n)
             k = np.empty(n, dtype=np.int64)
             nscaled = _order_start(m, n, x, s, cm[m], shift, P, Q, k)
+            T = np.empty((4, n if K > 1 else 1))
             xl = x[:n]
-            for l in range(m, lmax + 1):
-                if l > m:
+            for kk in range(K):
+                ar = Ar[kk, mi, m]
+                ai = Ai[kk, mi, m]
+                gr = g[kk, 0]
+                gi = g[kk, 1]
+                for j in range(n):
+                    gr[j] += ar * P[j]
+                    gi[j] += ai * P[j]
+            l = m
+            while l < lmax:
+                if nscaled > 0 and (l - m) % CHECK_EVERY == 0:
+                    for j in range(n):
+                        if _rescale(P, Q, k, j):
+                            nscaled -= 1
+                            for kk in range(K):
+                                for t in range(4):
+                                    g[kk, t, j] = 0.0
+                if l + 4 <= lmax:
+                    a1 = a[l + 1]
+                    a2 = a[l + 2]
+                    a3 = a[l + 3]
+                    a4 = a[l + 4]
+                    c1 = c[l + 1]
+                    c2 = c[l + 2]
+                    c3 = c[l + 3]
+                    c4 = c[l + 4]
+                    if K == 1:
+                        r1 = Ar[0, mi, l + 1]
+                        r2 = Ar[0, mi, l + 2]
+                        r3 = Ar[0, mi, l + 3]
+                        r4 = Ar[0, mi, l + 4]
+                        i1 = Ai[0, mi, l + 1]
+                        i2 = Ai[0, mi, l + 2]
+                        i3 = Ai[0, mi, l + 3]
+                        i4 = Ai[0, mi, l + 4]
+                        ger = g[0, 0]
+                        gei = g[0, 1]
+                        gor = g[0, 2]
+                        goi = g[0, 3]
+                        for j in range(n):
+                            xj = xl[j]
+                            p = P[j]
+                            t1 = a1 * xj * p - c1 * Q[j]
+                            t2 = a2 * xj * t1 - c2 * p
+                            t3 = a3 * xj * t2 - c3 * t1
+                            t4 = a4 * xj * t3 - c4 * t2
+                            gor[j] += r1 * t1 + r3 * t3
+                            goi[j] += i1 * t1 + i3 * t3
+                            ger[j] += r2 * t2 + r4 * t4
+                            gei[j] += i2 * t2 + i4 * t4
+                            P[j] = t4
+                            Q[j] = t3
+                    else:
+                        T1 = T[0]
+                        T2 = T[1]
+                        T3 = T[2]
+                        T4 = T[3]
+                        for j in range(n):
+                            xj = xl[j]
+                            p = P[j]
+                            t1 = a1 * xj * p - c1 * Q[j]
+                            t2 = a2 * xj * t1 - c2 * p
+                            t3 = a3 * xj * t2 - c3 * t1
+                            t4 = a4 * xj * t3 - c4 * t2
+                            T1[j] = t1
+                            T2[j] = t2
+                            T3[j] = t3
+                            T4[j] = t4
+                            P[j] = t4
+                            Q[j] = t3
+                        for kk in range(K):
+                            r1 = Ar[kk, mi, l + 1]
+                            r2 = Ar[kk, mi, l + 2]
+                            r3 = Ar[kk, mi, l + 3]
+                            r4 = Ar[kk, mi, l + 4]
+                            i1 = Ai[kk, mi, l + 1]
+                            i2 = Ai[kk, mi, l + 2]
+                            i3 = Ai[kk, mi, l + 3]
+                            i4 = Ai[kk, mi, l + 4]
+                            ger = g[kk, 0]
+                            gei = g[kk, 1]
+                            gor = g[kk, 2]
+                            goi = g[kk, 3]
+                            for j in range(n):
+                                gor[j] += r1 * T1[j] + r3 * T3[j]
+                                goi[j] += i1 * T1[j] + i3 * T3[j]
+                                ger[j] += r2 * T2[j] + r4 * T4[j]
+                                gei[j] += i2 * T2[j] + i4 * T4[j]
+                    l += 4
+                else:
+                    l += 1
                     al = a[l]
                     cl = c[l]
                     for j in range(n):
-                        Q[j] = al * xl[j] * P[j] - cl * Q[j]
-                    P, Q = Q, P
-                if nscaled > 0 and (l - m) % CHECK_EVERY == 0:
-                    for j in range(n):
-                        if k[j] < 0 and abs(P[j]) > BIG:
-                            P[j] *= INV_SCALE
-                            Q[j] *= INV_SCALE
-                            k[j] += 1
-                            if k[j] == 0:
-                                nscaled -= 1
-                                for kk in range(K):
-                                    for t in range(4):
-                                        g[kk, t, j] = 0.0
-                par = 2 * ((l - m) & 1)
-                for kk in range(K):
-                    ar = Ar[kk, mi, l]
-                    ai = Ai[kk, mi, l]
-                    gr = g[kk, par]
-                    gi = g[kk, par + 1]
-                    for j in range(n):
-                        gr[j] += ar * P[j]
-                        gi[j] += ai * P[j]
+                        t = al * xl[j] * P[j] - cl * Q[j]
+                        Q[j] = P[j]
+                        P[j] = t
+                    par = 2 * ((l - m) & 1)
+                    for kk in range(K):
+                        ar = Ar[kk, mi, l]
+                        ai = Ai[kk, mi, l]
+                        gr = g[kk, par]
+                        gi = g[kk, par + 1]
+                        for j in range(n):
+                            gr[j] += ar * P[j]
+                            gi[j] += ai * P[j]
             for j in range(n):
                 if k[j] < 0:
                     for kk in range(K):
@@ -509,3 +717,81 @@ def synthesis_kernel(lmax, mlo, mhi, x, s, cm, Ar, Ai, FNr, FNi, FSr, FSi, shift
                     FNi[mi, kk, j] = 0.0
                     FSr[mi, kk, j] = 0.0
                     FSi[mi, kk, j] = 0.0
+
+
+# ---------------------------------------------------------------------------
+# Packing between grid-ordered Fourier arrays and latitude-pair arrays
+# ---------------------------------------------------------------------------
+@nb.njit(parallel=True, **_JIT)
+def pack_pairs(F, north, south, wn, ws, Er, Ei, Or, Oi):
+    """Er/Ei/Or/Oi[m, k, p] = wn F[k, north_p, m] +- ws F[k, south_p, m].
+
+    F: (K, nlat, M) complex; a pair index of -1 stands for a missing ring."""
+    K, _, M = F.shape
+    J = north.size
+    for m in nb.prange(M):
+        for kk in range(K):
+            for p in range(J):
+                fnr = 0.0
+                fni = 0.0
+                fsr = 0.0
+                fsi = 0.0
+                if north[p] >= 0:
+                    v = F[kk, north[p], m]
+                    fnr = wn[p] * v.real
+                    fni = wn[p] * v.imag
+                if south[p] >= 0:
+                    v = F[kk, south[p], m]
+                    fsr = ws[p] * v.real
+                    fsi = ws[p] * v.imag
+                Er[m, kk, p] = fnr + fsr
+                Ei[m, kk, p] = fni + fsi
+                Or[m, kk, p] = fnr - fsr
+                Oi[m, kk, p] = fni - fsi
+
+
+@nb.njit(parallel=True, **_JIT)
+def unpack_pairs(FNr, FNi, FSr, FSi, north, south, scale, G):
+    """G[k, ring, m] = scale[m] * (north or south sums of the pair holding the ring)."""
+    M, K, J = FNr.shape
+    for m in nb.prange(M):
+        sc = scale[m]
+        for kk in range(K):
+            for p in range(J):
+                if south[p] >= 0:
+                    G[kk, south[p], m] = sc * complex(FSr[m, kk, p], FSi[m, kk, p])
+                if north[p] >= 0:
+                    G[kk, north[p], m] = sc * complex(FNr[m, kk, p], FNi[m, kk, p])
+
+
+@nb.njit(parallel=True, **_JIT)
+def assemble_coef(outr, outi, fac, mlo, coef):
+    """coef[k, l, m + mlo] = fac[l, m + mlo] * (outr + i outi)[k, m, l] for l >= m + mlo."""
+    K, M, L1 = outr.shape
+    for l in nb.prange(L1):
+        for kk in range(K):
+            for mi in range(M):
+                m = mi + mlo
+                if m <= l:
+                    f = fac[l, m]
+                    if m == 0:
+                        coef[kk, l, m] = f * outr[kk, mi, l]
+                    else:
+                        coef[kk, l, m] = f * complex(outr[kk, mi, l], outi[kk, mi, l])
+
+
+@nb.njit(parallel=True, **_JIT)
+def split_coef(coef, fac, mlo, M, Ar, Ai):
+    """Ar/Ai[k, m - mlo, l] = fac[l, m] * coef[k, l, m] (zero for l < m)."""
+    K, L1, _ = coef.shape
+    for mi in nb.prange(M):
+        m = mi + mlo
+        for kk in range(K):
+            for l in range(L1):
+                if l >= m:
+                    v = fac[l, m] * coef[kk, l, m]
+                    Ar[kk, mi, l] = v.real
+                    Ai[kk, mi, l] = v.imag
+                else:
+                    Ar[kk, mi, l] = 0.0
+                    Ai[kk, mi, l] = 0.0

@@ -148,52 +148,49 @@ def _phase(m_count: int, grid: Grid) -> np.ndarray:
 # ---------------------------------------------------------------------------
 # Legendre stage drivers (ortho, no phase)
 # ---------------------------------------------------------------------------
-def _legendre_analysis(F: np.ndarray, grid: Grid, lmax: int) -> np.ndarray:
-    """F: (K, nlat, M) Fourier coefficients G_m; returns (K, lmax+1, lmax+1) ortho no-phase."""
+def _legendre_analysis(G: np.ndarray, grid: Grid, lmax: int, fac: np.ndarray) -> np.ndarray:
+    """G: (K, nlat, M) Fourier coefficients G_m; returns (K, lmax+1, lmax+1) a_lm.
+
+    ``fac`` converts the kernel's ortho, phase-free coefficients to the target
+    convention (``fac[l, m]``)."""
     pairs = _pairs(grid)
-    K, _, M = F.shape
-    zero = np.zeros((K, 1, M), dtype=F.dtype)
-    Fz = np.concatenate([F, zero], axis=1)  # index -1 -> zero ring
-    fn = Fz[:, pairs.north, :] * (2 * np.pi * pairs.wn)[None, :, None]
-    fs = Fz[:, pairs.south, :] * (2 * np.pi * pairs.ws)[None, :, None]
-    E = np.ascontiguousarray((fn + fs).transpose(2, 0, 1))
-    O = np.ascontiguousarray((fn - fs).transpose(2, 0, 1))
+    K, _, M = G.shape
+    J = pairs.n
+    Er, Ei, Or, Oi = (np.empty((M, K, J)) for _ in range(4))
+    _kernels.pack_pairs(G, pairs.north, pairs.south, 2 * np.pi * pairs.wn, 2 * np.pi * pairs.ws,
+                        Er, Ei, Or, Oi)
     outr = np.zeros((K, M, lmax + 1))
     outi = np.zeros((K, M, lmax + 1))
-    cm = sectoral_table(lmax)
-    _kernels.analysis_kernel(lmax, 0, M - 1, pairs.x, pairs.s, cm,
-                             np.ascontiguousarray(E.real), np.ascontiguousarray(E.imag),
-                             np.ascontiguousarray(O.real), np.ascontiguousarray(O.imag),
-                             outr, outi, 0)
+    _kernels.analysis_kernel(lmax, 0, M - 1, pairs.x, pairs.s, sectoral_table(lmax),
+                             Er, Ei, Or, Oi, outr, outi, 0)
     coef = np.zeros((K, lmax + 1, lmax + 1), dtype=np.complex128)
-    coef[:, :, :M] = (outr + 1j * outi).transpose(0, 2, 1)
-    coef[:, :, 0] = coef[:, :, 0].real
+    _kernels.assemble_coef(outr, outi, fac, 0, coef)
     return coef
 
 
-def _legendre_synthesis(A: np.ndarray, grid: Grid, mlo: int, shift: int = 0) -> np.ndarray:
-    """A: (K, M, lmax+1) coefficients by [order - mlo, degree] (ortho, no phase).
+def _legendre_synthesis(c: np.ndarray, grid: Grid, mlo: int, M: int, fac: np.ndarray,
+                        shift: int = 0, scale: np.ndarray | None = None) -> np.ndarray:
+    """Sums over degree for orders mlo..mlo+M-1 of fac * c (c: (K, lmax+1, lmax+1) [l, m]).
 
-    Returns (K, nlat, M) sums sum_l A Lambda_lm (divided by sin theta when shift=1).
+    Returns (K, nlat, M): sum_l fac c Lambda_lm on each ring (divided by
+    sin theta when shift=1), times ``scale[m - mlo]`` when given.
     """
     pairs = _pairs(grid)
-    K, M, L1 = A.shape
+    K, L1, _ = c.shape
     lmax = L1 - 1
     J = pairs.n
-    FNr = np.empty((M, K, J))
-    FNi = np.empty((M, K, J))
-    FSr = np.empty((M, K, J))
-    FSi = np.empty((M, K, J))
-    cm = sectoral_table(lmax)
-    _kernels.synthesis_kernel(lmax, mlo, mlo + M - 1, pairs.x, pairs.s, cm,
-                              np.ascontiguousarray(A.real), np.ascontiguousarray(A.imag),
-                              FNr, FNi, FSr, FSi, shift)
-    out = np.zeros((K, grid.nlat + 1, M), dtype=np.complex128)
-    north = np.where(pairs.north >= 0, pairs.north, grid.nlat)
-    south = np.where(pairs.south >= 0, pairs.south, grid.nlat)
-    out[:, south, :] = (FSr + 1j * FSi).transpose(1, 2, 0)
-    out[:, north, :] = (FNr + 1j * FNi).transpose(1, 2, 0)
-    return out[:, :-1, :]
+    Ar = np.empty((K, M, L1))
+    Ai = np.empty((K, M, L1))
+    _kernels.split_coef(c, fac, mlo, M, Ar, Ai)
+    FNr, FNi, FSr, FSi = (np.empty((M, K, J)) for _ in range(4))
+    _kernels.synthesis_kernel(lmax, mlo, mlo + M - 1, pairs.x, pairs.s, sectoral_table(lmax),
+                              Ar, Ai, FNr, FNi, FSr, FSi, shift)
+    out = np.empty((K, grid.nlat, M), dtype=np.complex128)
+    if scale is None:
+        scale = np.ones(M, dtype=np.complex128)
+    _kernels.unpack_pairs(FNr, FNi, FSr, FSi, pairs.north, pairs.south,
+                          np.asarray(scale, dtype=np.complex128), out)
+    return out
 
 
 def _fourier_synthesis(G: np.ndarray, grid: Grid) -> np.ndarray:
@@ -276,27 +273,31 @@ def analyze(values, grid: Grid, lmax: int | None = None, norm: str = "ortho",
     G = scipy.fft.rfft(v, axis=-1, workers=_workers())
     M = min(lmax, grid.nlon // 2) + 1
     G = G[..., :M] * (np.conj(_phase(M, grid)) / grid.nlon)[None, None, :]
-    coef = _legendre_analysis(G, grid, lmax)
-    g = convert_factor(lmax, "ortho", False, norm, condon_shortley)
+    coef = _legendre_analysis(G, grid, lmax, _factor(lmax, "ortho", False, norm, condon_shortley))
+    coef = coef.reshape(batch + (lmax + 1, lmax + 1))
+    return Harmonics(coef, norm=norm, condon_shortley=condon_shortley, radius=radius, units=units)
+
+
+@functools.lru_cache(maxsize=16)
+def _factor(lmax: int, norm_from: str, cs_from: bool, norm_to: str, cs_to: bool) -> np.ndarray:
+    """Cached, checked conversion factors between conventions (read-only)."""
+    g = convert_factor(lmax, norm_from, cs_from, norm_to, cs_to)
     tri = np.tril(np.ones((lmax + 1, lmax + 1), dtype=bool))
     if not np.all(np.isfinite(g[tri])) or np.any(g[tri] == 0):
         raise ValueError(f"unnormalised coefficients to lmax={lmax} leave double range: use "
                          "norm='ortho', '4pi' or 'schmidt' (or a lower lmax)")
-    coef = np.where(tri, coef * g, 0).reshape(batch + (lmax + 1, lmax + 1))
-    return Harmonics(coef, norm=norm, condon_shortley=condon_shortley, radius=radius, units=units)
+    g.setflags(write=False)
+    return g
 
 
-def _ortho_coef(h: Harmonics) -> np.ndarray:
+def _batched(h: Harmonics) -> tuple[np.ndarray, np.ndarray]:
+    """(coef as (K, L+1, L+1), factor to ortho without phase) after checks."""
     if not isinstance(h, Harmonics):
         raise ValueError(f"expected a sphex.Harmonics, got {type(h).__name__}")
-    g = convert_factor(h.lmax, h.norm, h.condon_shortley, "ortho", False)
-    tri = np.tril(np.ones((h.lmax + 1, h.lmax + 1), dtype=bool))
-    with np.errstate(invalid="ignore", over="ignore"):
-        c = np.where(tri, h.coef * g, 0)
+    c = h.coef.reshape((-1, h.lmax + 1, h.lmax + 1))
     if not np.all(np.isfinite(c)):
-        raise ValueError("coefficients are not finite (or overflow when converted from "
-                         f"{h.norm!r}): check the input")
-    return c.reshape((-1, h.lmax + 1, h.lmax + 1))
+        raise ValueError("coefficients contain NaN or inf: check the input")
+    return c, _factor(h.lmax, h.norm, h.condon_shortley, "ortho", False)
 
 
 def synthesize(h: Harmonics, grid: Grid) -> np.ndarray:
@@ -323,9 +324,8 @@ def synthesize(h: Harmonics, grid: Grid) -> np.ndarray:
     True
     """
     grid = _check_grid(grid)
-    c = _ortho_coef(h)
-    A = np.ascontiguousarray(c.transpose(0, 2, 1))  # (K, m, l)
-    G = _legendre_synthesis(A, grid, 0)
+    c, fac = _batched(h)
+    G = _legendre_synthesis(c, grid, 0, h.lmax + 1, fac)
     out = _fourier_synthesis(G, grid)
     return out.reshape(h.batch_shape + grid.shape)
 
@@ -351,35 +351,31 @@ def synthesize_gradient(h: Harmonics, grid: Grid) -> tuple[np.ndarray, np.ndarra
     ``sin theta`` near the poles.
     """
     grid = _check_grid(grid)
-    c = _ortho_coef(h)  # (K, l, m)
+    c, fac = _batched(h)
     K, L1, _ = c.shape
     lmax = L1 - 1
-    l = np.arange(L1, dtype=np.float64)[:, None]
-    m = np.arange(L1, dtype=np.float64)[None, :]
-    A = c.transpose(0, 2, 1)  # (K, m, l)
     shape = h.batch_shape + grid.shape
     if lmax == 0:
-        z = np.zeros(shape)
-        return z, z.copy()
-    # d/dtheta: contributions to Fourier order m from function orders m-1 and m+1
-    up = 0.5 * np.sqrt(np.maximum((l + m) * (l - m + 1), 0.0))           # [l, m], m >= 1
-    dn = 0.5 * np.sqrt(np.maximum((l - m) * (l + m + 1), 0.0))           # [l, m]
+        return np.zeros(shape), np.zeros(shape)
+    l = np.arange(L1, dtype=np.float64)[:, None]
+    m = np.arange(L1, dtype=np.float64)[None, :]
+    up = 0.5 * np.sqrt(np.maximum((l + m) * (l - m + 1), 0.0))     # weight of Lambda_l,m-1
+    dn = 0.5 * np.sqrt(np.maximum((l - m) * (l + m + 1), 0.0))     # weight of Lambda_l,m+1
     dn[:, 0] = np.sqrt(l[:, 0] * (l[:, 0] + 1))
-    # pass 1: function order mu = m - 1 (mu = 0..lmax-1), coefficient up[l, m] a_lm
-    B = (c[:, :, 1:] * up[None, :, 1:]).transpose(0, 2, 1)               # (K, mu, l)
-    H1 = _legendre_synthesis(np.ascontiguousarray(B), grid, 0)            # orders mu -> m = mu + 1
-    # pass 2: function order mu = m + 1 (mu = 1..lmax), coefficient -dn[l, m] a_lm
-    C = (-c[:, :, :-1] * dn[None, :, :-1]).transpose(0, 2, 1)            # (K, m, l) with mu = m+1
-    H2 = _legendre_synthesis(np.ascontiguousarray(C), grid, 1)           # orders mu -> m = mu - 1
+    # Fourier order m of df/dtheta collects function order m-1 (pass 1) and m+1 (pass 2);
+    # each pass re-indexes the coefficients so that the kernel's order is the function's.
+    c1 = np.zeros_like(c)
+    c1[:, :, :-1] = c[:, :, 1:] * (fac * up)[None, :, 1:]        # function order mu = m - 1
+    c2 = np.zeros_like(c)
+    c2[:, :, 1:] = -c[:, :, :-1] * (fac * dn)[None, :, :-1]      # function order mu = m + 1
+    one = np.ones((L1, L1))
     D = np.zeros((K, grid.nlat, L1), dtype=np.complex128)
-    D[:, :, 1:] += H1
-    D[:, :, :-1] += H2
+    D[:, :, 1:] += _legendre_synthesis(c1, grid, 0, lmax, one)
+    D[:, :, :-1] += _legendre_synthesis(c2, grid, 1, lmax, one)
     north = -_fourier_synthesis(D, grid)
-    # longitude term for m >= 1
-    Ae = np.ascontiguousarray(A[:, 1:, :])
-    Ks = _legendre_synthesis(Ae, grid, 1, shift=1)
     Eq = np.zeros((K, grid.nlat, L1), dtype=np.complex128)
-    Eq[:, :, 1:] = 1j * np.arange(1, L1)[None, None, :] * Ks
+    Eq[:, :, 1:] = _legendre_synthesis(c, grid, 1, lmax, fac, shift=1,
+                                       scale=1j * np.arange(1, L1))
     east = _fourier_synthesis(Eq, grid)
     return east.reshape(shape), north.reshape(shape)
 
