@@ -197,6 +197,18 @@ def exact_monomial_integral(k: int) -> float:
     return 0.0 if k % 2 else 2.0 / (k + 1)
 
 
+def legendre_polys(kmax: int, x: np.ndarray) -> np.ndarray:
+    """P_0..P_kmax at x, shape (kmax+1, len(x)), by Bonnet's recurrence (common practice)."""
+    x = np.asarray(x, dtype=float)
+    out = np.empty((kmax + 1, x.size))
+    out[0] = 1.0
+    if kmax >= 1:
+        out[1] = x
+    for k in range(2, kmax + 1):
+        out[k] = ((2 * k - 1) * x * out[k - 1] - (k - 1) * out[k - 2]) / k
+    return out
+
+
 def legendre_poly(k: int, x: np.ndarray) -> np.ndarray:
     """P_k(x) by numpy.polynomial.legendre.legval (integral over [-1,1] is 2 delta_k0)."""
     c = np.zeros(k + 1)

@@ -174,6 +174,9 @@ HIGH_CASES = [
     (1350, 2700, SIN06),
     (2, 2700, 0.3),
     (2000, 2700, math.pi / 2),
+    # DESIGN.md: nothing under/overflows to degree 10800; Lambda_{5400,5400} ~ 1e-1198 here
+    (5400, 10800, SIN06),
+    (0, 10800, 1.0),
 ]
 # Next to the poles the recursion in degree (the method DESIGN.md prescribes) loses
 # accuracy like ~l^2 eps (a plain double recursion for P_l at colat 1e-4, l = 1000, is off by
