@@ -439,10 +439,11 @@ def _power_table(power) -> tuple[list[str], Any]:
 
 
 def _label(v: Any) -> str:
-    s = str(v)
-    if "T00:00:00" in s:
-        s = s.split("T")[0]
-    return s
+    import numpy as np
+
+    if isinstance(v, np.datetime64) or hasattr(v, "to_datetime64"):
+        return str(np.datetime_as_string(np.datetime64(v, "m")))
+    return str(v)
 
 
 def _cmd_spectrum(a: argparse.Namespace) -> int:
@@ -507,9 +508,10 @@ def _cmd_spectrum(a: argparse.Namespace) -> int:
         plot.save(fig, a.plot, overwrite=a.overwrite)
         lines.append(f"wrote {a.plot}")
     if not a.csv and not a.plot:
-        lines.append("degree " + " ".join(f"{x[:22]:>22}" for x in labels))
+        w = max(22, *(len(x) for x in labels)) if labels else 22
+        lines.append("degree " + " ".join(f"{x:>{w}}" for x in labels))
         for l in deg:
-            lines.append(f"{l:6d} " + " ".join(f"{v:22.15g}" for v in table[:, l]))
+            lines.append(f"{l:6d} " + " ".join(f"{v:{w}.15g}" for v in table[:, l]))
     _say(*lines)
     return 0
 
@@ -704,6 +706,10 @@ def main(argv: Sequence[str] | None = None) -> int:
         pass
     try:
         return int(args.func(args) or 0)
+    except BrokenPipeError:  # output piped into head & co.: not an error
+        devnull = os.open(os.devnull, os.O_WRONLY)
+        os.dup2(devnull, sys.stdout.fileno())
+        return 0
     except KeyboardInterrupt:
         sys.stderr.write(f"{PROG} {args.command}: interrupted; no output written\n")
         return 130

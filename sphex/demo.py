@@ -102,7 +102,7 @@ def make_topography():
     pole_c = _angular_distance(lat, lon, 55.0, -60.0)     # distance from the belt's pole
     ridge = 1500.0 * np.exp(-(pole_c / 0.05) ** 2) * (0.6 + 0.4 * np.cos(np.deg2rad(3 * lon))[None, :])
     topo = rough + basin + ridge
-    topo = topo - topo.mean()
+    topo = topo - grid.integrate(topo) / (4 * np.pi)      # heights above the mean radius
     ds = xr.Dataset(
         {"topography": (("latitude", "longitude"), topo.astype(np.float32),
                         {"long_name": "surface height above the reference sphere",
