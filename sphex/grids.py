@@ -72,20 +72,17 @@ class Grid:
         if not north_first:
             colat = colat[::-1].copy()
             weights = weights[::-1].copy()
-        self.kind = kind
-        self.nlat = int(colat.size)
-        self.nlon = int(nlon)
-        self.lon0 = float(lon0)
-        self.north_first = bool(north_first)
-        self.colat = colat
-        self.weights = weights
-        self.lat = 90.0 - np.degrees(colat)
-        self.lon = self.lon0 + 360.0 * np.arange(self.nlon) / self.nlon
+        lat = 90.0 - np.degrees(colat)
+        lon = float(lon0) + 360.0 * np.arange(int(nlon)) / int(nlon)
         if kind == "gauss":
-            lat_limit = self.nlat - 1
+            lat_limit = colat.size - 1
         else:
-            lat_limit = (self.nlat - 1) // 2
-        self.lmax_exact = int(min(lat_limit, (self.nlon - 1) // 2))
+            lat_limit = (colat.size - 1) // 2
+        fields = dict(kind=kind, nlat=int(colat.size), nlon=int(nlon), lon0=float(lon0),
+                      north_first=bool(north_first), colat=colat, weights=weights, lat=lat, lon=lon,
+                      lmax_exact=int(min(lat_limit, (int(nlon) - 1) // 2)))
+        for name, value in fields.items():
+            object.__setattr__(self, name, value)
         for arr in (self.colat, self.weights, self.lat, self.lon):
             arr.setflags(write=False)
 
@@ -163,6 +160,7 @@ class Grid:
         lat = np.asarray(lat, dtype=np.float64).ravel()
         lon = np.asarray(lon, dtype=np.float64).ravel()
         nlon, lon0 = _detect_lon(lon, tol)
+        tol = tol + 2.5e-7 * 90.0
         nlat = lat.size
         if nlat < 2:
             raise ValueError(f"{nlat} latitude(s) cannot form a global grid: need at least 2")
@@ -227,6 +225,9 @@ class Grid:
     def __hash__(self):
         return hash(self._key())
 
+    def __setattr__(self, name, value):
+        raise AttributeError(f"Grid is immutable: build a new one instead of setting {name!r}")
+
     def __getstate__(self):
         return {s: getattr(self, s) for s in self.__slots__}
 
@@ -261,6 +262,8 @@ def _detect_lon(lon, tol):
     if n < 3:
         raise ValueError(f"only {n} longitude(s): a global grid needs at least 3 equally spaced longitudes "
                          "(and 2*lmax+1 for degree lmax)")
+    # float32 coordinates carry absolute rounding errors up to ~1.2e-7 of their magnitude
+    tol = tol + 2.5e-7 * float(np.max(np.abs(lon)))
     d = np.diff(lon)
     step = 360.0 / n
     if np.all(np.abs(d - d[0]) <= tol) and abs(d[0] * (n - 1) - 360.0) <= tol * n:
