@@ -251,6 +251,32 @@ def test_from_coords_accepts_lists_and_float32_equiangular():
     lon = (np.arange(1080) / 3.0).astype(np.float32)
     g = Grid.from_coords(list(lat), list(lon))
     assert g.kind == "equiangular-poles" and g.lmax_exact == 270
+    # the same longitudes from -180 (smaller magnitudes, finer float32 steps) and Gauss
+    # latitudes in float32
+    g2 = Grid.from_coords(lat, (np.arange(1080) / 3.0 - 180.0).astype(np.float32))
+    assert g2.kind == "equiangular-poles"
+    g3 = Grid.from_coords(gauss_lat(640).astype(np.float32), (np.arange(1280) * 0.28125).astype(np.float32))
+    assert g3.kind == "gauss" and g3.lmax_exact == 639
+
+
+@pytest.mark.parametrize("origin", ["0", "-180"])
+@pytest.mark.parametrize("kind,nlat,nlon", [("gauss", 2048, 4096), ("cells", 2048, 4096),
+                                            ("poles", 2049, 4096), ("cells", 1800, 3600)])
+def test_from_coords_at_high_resolution(kind, nlat, nlon, origin):
+    # 2048 rows: Gauss latitudes come close to equal spacing near the equator but must not be
+    # mistaken for (or mistake) an equiangular grid (the Gauss nodes themselves are checked
+    # against mpmath above); 3600 longitudes is the common 0.1-degree grid
+    lat = Grid.gauss(nlat - 1).lat if kind == "gauss" else equiangular_lat(nlat, kind)
+    g = Grid.from_coords(lat, lon_vector(nlon, origin))
+    assert g.kind == ("gauss" if kind == "gauss" else f"equiangular-{kind}")
+    assert g.shape == (nlat, nlon)
+    assert g.lmax_exact == min(nlat - 1 if kind == "gauss" else (nlat - 1) // 2, (nlon - 1) // 2)
+
+
+def test_from_coords_rejects_repeated_seam():
+    lon = np.linspace(0.0, 360.0, 65)  # 0 and 360 both present
+    with pytest.raises(ValueError, match="(?i)360|repeat|seam"):
+        Grid.from_coords(equiangular_lat(33, "poles"), lon)
 
 
 def test_from_coords_rejects_regional_latitudes():
