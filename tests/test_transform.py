@@ -308,6 +308,16 @@ def test_low_degree_field_on_fine_oversampled_grid(rng):
     assert rel_err(h.coef, expected) < 1e-13
 
 
+def test_synthesis_beyond_grid_limit_is_the_series_at_the_nodes(rng):
+    # synthesis evaluates the series at the grid points even when the grid could not analyse
+    # that degree (orders above nlon/2 fold onto the longitudes); reference: direct scipy sum
+    coef = random_coef(20, rng)
+    for grid in (Grid.gauss(10), Grid.equiangular(12, 30, "cells")):
+        f = synthesize(Harmonics(coef), grid)
+        ref = complex_form_field(coef, grid.colat, np.radians(grid.lon), "ortho", True)
+        assert rel_err(f, ref) < 1e-13
+
+
 def test_analysis_below_grid_limit_truncates(rng):
     # asking for fewer degrees than the grid holds returns the leading coefficients
     grid = Grid.gauss(40)
@@ -335,6 +345,25 @@ def test_gradient_of_closed_form_fields():
         e, n = synthesize_gradient(analyze(f, grid), grid)
         np.testing.assert_allclose(e, east, rtol=0, atol=1e-12)
         np.testing.assert_allclose(n, north, rtol=0, atol=1e-12)
+
+
+def test_gradient_same_in_every_convention(rng):
+    grid = Grid.equiangular(26, 52, "north")
+    h = Harmonics(random_coef(12, rng))
+    e0, n0 = synthesize_gradient(h, grid)
+    for norm in NORMS:
+        e, n = synthesize_gradient(h.to(norm=norm, condon_shortley=False), grid)
+        np.testing.assert_allclose(e, e0, rtol=0, atol=1e-12 * np.max(np.abs(e0)))
+        np.testing.assert_allclose(n, n0, rtol=0, atol=1e-12 * np.max(np.abs(n0)))
+
+
+def test_regrid_with_explicit_lmax(rng):
+    # regrid(..., lmax=L) = analysis truncated at L, synthesised on the target
+    src, dst = Grid.gauss(20), Grid.equiangular(30, 60, "poles")
+    coef = random_coef(20, rng)
+    out = regrid(synthesize(Harmonics(coef), src), src, dst, lmax=6)
+    expected = synthesize(Harmonics(coef[:7, :7]), dst)
+    np.testing.assert_allclose(out, expected, rtol=0, atol=1e-12 * np.max(np.abs(expected)))
 
 
 def test_regrid_band_limited_field_is_exact():
