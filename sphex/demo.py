@@ -312,8 +312,8 @@ def run(out_dir: str | os.PathLike = "sphex-demo-output", overwrite: bool = Fals
     for k, v in rows:
         print(f"  {k:<{w}}  {v}")
     print(f"  checks: rms height {rms:.1f} m; synthesis of the coefficients back onto the input "
-          f"grid differs from the float32 input by at most {err:.2g} m "
-          f"(the input's own rounding and its content above degree {lmax})")
+          f"grid differs from the input by at most {err:.2g} m: the part of the input above "
+          f"degree {lmax}, which its grid cannot carry exactly")
     print(f"  done in {time.monotonic() - t0:.1f} s")
     sys.stdout.flush()
     return 0

@@ -693,8 +693,8 @@ def _check_lmax(lmax: int | None, grid: Grid, allow_aliasing: bool, where: str) 
         raise ValueError(f"lmax must be 0 or more, not {lmax}")
     if lmax > grid.lmax_exact and not allow_aliasing:
         raise ValueError(
-            f"lmax {lmax} is above the exact limit {grid.lmax_exact} of {where}'s {grid.kind} "
-            f"grid ({grid.nlat} x {grid.nlon}); use lmax <= {grid.lmax_exact}"
+            f"lmax {lmax} is above the exact limit {grid.lmax_exact} of the {grid.nlat} x "
+            f"{grid.nlon} {grid.kind} grid of {where}; use lmax <= {grid.lmax_exact}"
         )
     return lmax
 
