@@ -162,6 +162,47 @@ def test_quadrature_limit_is_sharp(kind, nlat):
     assert err > 1e-6, (kind, nlat, err)
 
 
+def closed_form_weights(nlat: int, layout: str) -> np.ndarray:
+    """Published closed forms of the equiangular weights in x, north to south (from memory).
+
+    poles: Clenshaw-Curtis, n = nlat-1 intervals, theta_j = pi j/n,
+        w_j = (c_j/n) [1 - sum_{k=1}^{n/2} b_k cos(2k theta_j)/(4k^2-1)], c_j = 1 at the ends else 2,
+        b_k = 1 for k = n/2 else 2 (Waldvogel 2006, BIT 46, section 2).
+    cells: Fejer's first rule, theta_j = pi (j+1/2)/nlat,
+        w_j = (2/nlat) [1 - 2 sum_{k=1}^{nlat/2} cos(2k theta_j)/(4k^2-1)] (Waldvogel 2006).
+    north (even nlat = 2B): Driscoll-Healy, theta_j = pi j/(2B),
+        w_j = (2/B) sin(theta_j) sum_{l=0}^{B-1} sin((2l+1) theta_j)/(2l+1)
+        (Driscoll & Healy 1994, Adv. Appl. Math. 15, Theorem 3, rescaled to sum 2).
+    """
+    if layout == "poles":
+        n = nlat - 1
+        th = np.pi * np.arange(nlat) / n
+        k = np.arange(1, n // 2 + 1)
+        b = np.where(2 * k == n, 1.0, 2.0)
+        c = np.full(nlat, 2.0)
+        c[[0, -1]] = 1.0
+        return c / n * (1.0 - np.cos(np.outer(th, 2 * k)) @ (b / (4 * k**2 - 1)))
+    if layout == "cells":
+        th = np.pi * (np.arange(nlat) + 0.5) / nlat
+        k = np.arange(1, nlat // 2 + 1)
+        return 2.0 / nlat * (1.0 - 2.0 * np.cos(np.outer(th, 2 * k)) @ (1.0 / (4 * k**2 - 1)))
+    if layout == "north":
+        assert nlat % 2 == 0
+        B = nlat // 2
+        th = np.pi * np.arange(nlat) / nlat
+        l = np.arange(B)
+        return 2.0 / B * np.sin(th) * (np.sin(np.outer(th, 2 * l + 1)) @ (1.0 / (2 * l + 1)))
+    raise KeyError(layout)
+
+
+@pytest.mark.parametrize("layout,nlat", [("poles", 9), ("poles", 10), ("poles", 257), ("cells", 9), ("cells", 256),
+                                         ("north", 10), ("north", 256)])
+def test_equiangular_weights_match_published_closed_forms(layout, nlat):
+    # source: the closed forms in closed_form_weights (Clenshaw-Curtis, Fejer, Driscoll-Healy)
+    g = Grid.equiangular(nlat, 2 * nlat, layout)
+    np.testing.assert_allclose(g.weights, closed_form_weights(nlat, layout), rtol=0, atol=1e-15)
+
+
 @pytest.mark.parametrize("kind", ("gauss",) + LAYOUTS)
 def test_area_integral(kind):
     # core API: integral of f over the sphere = (2 pi / nlon) sum_j w_j sum_k f[j, k];
