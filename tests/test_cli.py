@@ -235,3 +235,33 @@ def test_progress_bar_draws_only_on_a_terminal():
                 bar(done, 12)
     assert "12/12" in tty.getvalue() and tty.getvalue().endswith("\n")
     assert pipe.getvalue() == ""
+
+
+def test_bundled_demo_data_are_what_the_script_makes_and_say_they_are_synthetic():
+    from pathlib import Path
+
+    from sphex import demo
+
+    here = Path(__file__).resolve().parent.parent / "data_demo"
+    for name, make in ((demo.TOPO_FILE, demo.make_topography), (demo.TEMP_FILE, demo.make_temperature)):
+        fresh = make()
+        assert fresh.attrs["synthetic"] == "yes" and "fictional" in fresh.attrs["planet_name"]
+        with xr.open_dataset(here / name) as shipped:
+            assert "synthetic" in shipped.attrs["source"]
+            for var in fresh.data_vars:
+                # float32 files: allow a last-bit flip if the kernels' rounding changes
+                np.testing.assert_allclose(shipped[var].values, fresh[var].values, rtol=0, atol=1e-3)
+    topo = sxr.find_grid(demo.make_topography()["topography"])
+    assert topo.grid.kind == "equiangular-cells" and topo.grid.lat[0] < 0     # south to north
+    temp = sxr.find_grid(demo.make_temperature()["surface_temperature"])
+    assert temp.grid.kind == "gauss" and temp.grid.lat[0] > 0                 # north to south
+
+
+def test_demo_makes_its_data_when_the_repository_copy_is_missing(tmp_path, monkeypatch, capsys):
+    from sphex import demo
+
+    monkeypatch.setattr(demo, "_bundled_data", lambda: None)
+    assert demo.run(tmp_path / "out") == 0
+    assert (tmp_path / "out" / "data" / demo.TOPO_FILE).exists()
+    assert "made now" in capsys.readouterr().out
+    assert (tmp_path / "out" / "topography_spectrum.png").exists()
