@@ -326,7 +326,7 @@ def test_from_coords_rejects_regional_latitudes():
         Grid.from_coords(lat, lon_vector(64, "0"))
 
 
-def test_from_coords_rejects_irregular_latitudes(rng):
+def test_from_coords_rejects_irregular_latitudes():
     lat = equiangular_lat(33, "poles")
     lat[5] += 0.3  # one row off the regular spacing, not a Gauss latitude either
     with pytest.raises(ValueError, match="(?i)lat"):
@@ -346,7 +346,7 @@ def test_from_coords_rejects_regional_longitudes():
         Grid.from_coords(equiangular_lat(33, "poles"), lon)
 
 
-@pytest.mark.parametrize("nlon", [0, 1])
+@pytest.mark.parametrize("nlon", [0, 1, 2])
 def test_from_coords_rejects_too_few_longitudes(nlon):
     with pytest.raises(ValueError, match="(?i)lon"):
         Grid.from_coords(equiangular_lat(33, "poles"), lon_vector(nlon, "0") if nlon else np.array([]))
