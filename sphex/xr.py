@@ -128,14 +128,15 @@ def _attr(coord: xr.DataArray, key: str) -> str:
     return str(v).strip().lower() if v is not None else ""
 
 
-def _find_axis(da: xr.DataArray | xr.Dataset, which: str) -> str | None:
+def _find_axis(da: xr.DataArray | xr.Dataset, which: str) -> list[str]:
+    """Candidate coordinate names for latitude or longitude, best first."""
     names = _LAT_NAMES if which == "lat" else _LON_NAMES
     units = _LAT_UNITS if which == "lat" else _LON_UNITS
     std = "latitude" if which == "lat" else "longitude"
     axis = "y" if which == "lat" else "x"
     dims = set(da.dims)
-    scored: list[tuple[int, str]] = []
-    for name, c in da.coords.items():
+    scored: list[tuple[int, int, str]] = []
+    for i, (name, c) in enumerate(da.coords.items()):
         if c.ndim != 1 or c.dims[0] not in dims:
             continue
         score = 0
@@ -148,11 +149,8 @@ def _find_axis(da: xr.DataArray | xr.Dataset, which: str) -> str | None:
         elif str(name).lower() in names:
             score = 1
         if score:
-            scored.append((score, str(name)))
-    if scored:
-        scored.sort(key=lambda t: -t[0])
-        return scored[0][1]
-    return None
+            scored.append((-score, i, str(name)))
+    return [name for _, _, name in sorted(scored)]
 
 
 def _lon_plan(lon: np.ndarray) -> tuple[np.ndarray, tuple[int, ...], tuple[int, ...], bool]:
@@ -203,15 +201,34 @@ def find_grid(da: xr.DataArray | xr.Dataset) -> GridInfo:
         coordinates do not form a supported global grid (the message says why).
     """
     where = f"variable {da.name!r}" if isinstance(da, xr.DataArray) and da.name is not None else "the data"
-    lat_name = _find_axis(da, "lat")
-    lon_name = _find_axis(da, "lon")
-    if lat_name is None or lon_name is None:
-        missing = " and ".join(w for w, n in (("latitude", lat_name), ("longitude", lon_name)) if n is None)
+    lats, lons = _find_axis(da, "lat"), _find_axis(da, "lon")
+    if not lats or not lons:
+        missing = " and ".join(w for w, n in (("latitude", lats), ("longitude", lons)) if not n)
         dims = ", ".join(map(str, da.dims)) or "none"
         raise ValueError(
             f"{where} has no {missing} coordinate (dimensions: {dims}); name it lat/lon or give it "
             "CF units degrees_north/degrees_east"
         )
+    if isinstance(da, xr.Dataset):
+        # a Dataset may hold several grids: the first data variable on a usable one decides
+        for v in da.data_vars.values():
+            try:
+                return find_grid(v)
+            except ValueError:
+                continue
+    first_error: ValueError | None = None
+    pairs = sorted(((i + j, i, j) for i in range(len(lats)) for j in range(len(lons))))
+    for _, i, j in pairs:
+        try:
+            return _grid_from_pair(da, lats[i], lons[j], where)
+        except ValueError as exc:
+            first_error = first_error or exc
+    assert first_error is not None
+    raise first_error
+
+
+def _grid_from_pair(da: xr.DataArray | xr.Dataset, lat_name: str, lon_name: str,
+                    where: str) -> GridInfo:
     lat_c, lon_c = da.coords[lat_name], da.coords[lon_name]
     lat_dim, lon_dim = str(lat_c.dims[0]), str(lon_c.dims[0])
     if lat_dim == lon_dim:

@@ -293,3 +293,14 @@ def test_accessors_call_the_functions(rng):
     np.testing.assert_allclose(ds.sphex.synthesize(da).values, da.values, atol=1e-12)
     h = ds.sphex.to_harmonics()
     np.testing.assert_allclose(degree_power(h), ds.sphex.degree_power().values, rtol=1e-14)
+
+
+def test_dataset_with_two_grids_takes_the_global_one():
+    ds = xr.Dataset(
+        {"box": (("y", "x"), np.zeros((5, 72))), "t": (("lat", "lon"), np.zeros((90, 360)))},
+        coords={"y": ("y", np.linspace(30, 50, 5), {"units": "degrees_north"}),
+                "x": ("x", np.arange(72) * 5.0, {"units": "degrees_east"}),
+                "lat": ("lat", 89 - 2.0 * np.arange(90), {"units": "degrees_north"}),
+                "lon": ("lon", np.arange(360.0), {"units": "degrees_east"})})
+    info = sxr.find_grid(ds)
+    assert (info.lat_dim, info.lon_dim, info.grid.shape) == ("lat", "lon", (90, 360))
