@@ -378,14 +378,16 @@ def _rescale(P, Q, k, j):
 
 
 @nb.njit(parallel=True, fastmath=_FM, **_JIT)
-def analysis_kernel(lmax, mlo, mhi, x, s, cm, Er, Ei, Or, Oi, outr, outi, shift):
+def analysis_kernel(lmax, mlo, mhi, x, s, cm, live, Er, Ei, Or, Oi, coef, fac, shift):
     """Accumulate ortho, phase-free a_lm from even/odd Fourier sums.
 
     x, s: (J,) cos and sin of the northern colatitude of each latitude pair,
     ordered from the equator toward the pole.  Er, Ei, Or, Oi: (M, K, J),
     M = mhi - mlo + 1: quadrature-weighted north + south (E) and north - south
-    (O) sums of the Fourier coefficient of order m.  outr, outi:
-    (K, M, lmax + 1), added to.  shift = 1 evaluates Lambda / sin(theta).
+    (O) sums of the Fourier coefficient of order m.  live: (M,) number of
+    latitudes (a prefix) on which order m is not negligible.  coef: complex
+    (K, lmax + 1, lmax + 1), to which fac[l, m] * a_lm is added.
+    shift = 1 evaluates Lambda / sin(theta).
 
     Each pass over the latitudes advances the recursion by four degrees in
     registers (loads and stores once per four degrees), and the latitude loop
@@ -393,7 +395,6 @@ def analysis_kernel(lmax, mlo, mhi, x, s, cm, Er, Ei, Or, Oi, outr, outi, shift)
     part in the recursion but are masked out of the sums until their values
     become plain doubles (checked every CHECK_EVERY degrees).
     """
-    J = x.size
     K = Er.shape[1]
     nm = mhi - mlo + 1
     for i in nb.prange(nm):
@@ -402,9 +403,11 @@ def analysis_kernel(lmax, mlo, mhi, x, s, cm, Er, Ei, Or, Oi, outr, outi, shift)
         a = np.empty(lmax + 1)
         c = np.empty(lmax + 1)
         _recursion_coeffs(m, lmax, a, c)
-        n = _live_count(m, lmax, x, s, cm[m], shift, a, c)
+        n = live[mi]
         if n == 0:
             continue
+        outr = np.zeros((K, lmax + 1))
+        outi = np.zeros((K, lmax + 1))
         P = np.empty(n)
         Q = np.empty(n)
         k = np.empty(n, dtype=np.int64)
@@ -412,11 +415,11 @@ def analysis_kernel(lmax, mlo, mhi, x, s, cm, Er, Ei, Or, Oi, outr, outi, shift)
         fe = np.empty((K, 4, n))
         for kk in range(K):
             for j in range(n):
-                live = 1.0 if k[j] == 0 else 0.0
-                fe[kk, 0, j] = Er[mi, kk, j] * live
-                fe[kk, 1, j] = Ei[mi, kk, j] * live
-                fe[kk, 2, j] = Or[mi, kk, j] * live
-                fe[kk, 3, j] = Oi[mi, kk, j] * live
+                on = 1.0 if k[j] == 0 else 0.0
+                fe[kk, 0, j] = Er[mi, kk, j] * on
+                fe[kk, 1, j] = Ei[mi, kk, j] * on
+                fe[kk, 2, j] = Or[mi, kk, j] * on
+                fe[kk, 3, j] = Oi[mi, kk, j] * on
         T = np.empty((4, n if K > 1 else 1))
         xl = x[:n]
         # degree m (even)
@@ -428,8 +431,8 @@ def analysis_kernel(lmax, mlo, mhi, x, s, cm, Er, Ei, Or, Oi, outr, outi, shift)
             for j in range(n):
                 sr += P[j] * fr[j]
                 si += P[j] * fi[j]
-            outr[kk, mi, m] += sr
-            outi[kk, mi, m] += si
+            outr[kk, m] += sr
+            outi[kk, m] += si
         l = m
         while l < lmax:
             if nscaled > 0 and (l - m) % CHECK_EVERY == 0:
@@ -484,14 +487,14 @@ def analysis_kernel(lmax, mlo, mhi, x, s, cm, Er, Ei, Or, Oi, outr, outi, shift)
                         s4i += t4 * e_i
                         P[j] = t4
                         Q[j] = t3
-                    outr[0, mi, l + 1] += s1r
-                    outi[0, mi, l + 1] += s1i
-                    outr[0, mi, l + 2] += s2r
-                    outi[0, mi, l + 2] += s2i
-                    outr[0, mi, l + 3] += s3r
-                    outi[0, mi, l + 3] += s3i
-                    outr[0, mi, l + 4] += s4r
-                    outi[0, mi, l + 4] += s4i
+                    outr[0, l + 1] += s1r
+                    outi[0, l + 1] += s1i
+                    outr[0, l + 2] += s2r
+                    outi[0, l + 2] += s2i
+                    outr[0, l + 3] += s3r
+                    outi[0, l + 3] += s3i
+                    outr[0, l + 4] += s4r
+                    outi[0, l + 4] += s4i
                 else:
                     T1 = T[0]
                     T2 = T[1]
@@ -536,14 +539,14 @@ def analysis_kernel(lmax, mlo, mhi, x, s, cm, Er, Ei, Or, Oi, outr, outi, shift)
                             s3i += T3[j] * o_i
                             s4r += T4[j] * e_r
                             s4i += T4[j] * e_i
-                        outr[kk, mi, l + 1] += s1r
-                        outi[kk, mi, l + 1] += s1i
-                        outr[kk, mi, l + 2] += s2r
-                        outi[kk, mi, l + 2] += s2i
-                        outr[kk, mi, l + 3] += s3r
-                        outi[kk, mi, l + 3] += s3i
-                        outr[kk, mi, l + 4] += s4r
-                        outi[kk, mi, l + 4] += s4i
+                        outr[kk, l + 1] += s1r
+                        outi[kk, l + 1] += s1i
+                        outr[kk, l + 2] += s2r
+                        outi[kk, l + 2] += s2i
+                        outr[kk, l + 3] += s3r
+                        outi[kk, l + 3] += s3i
+                        outr[kk, l + 4] += s4r
+                        outi[kk, l + 4] += s4i
                 l += 4
             else:
                 l += 1
@@ -562,22 +565,26 @@ def analysis_kernel(lmax, mlo, mhi, x, s, cm, Er, Ei, Or, Oi, outr, outi, shift)
                     for j in range(n):
                         sr += P[j] * fr[j]
                         si += P[j] * fi[j]
-                    outr[kk, mi, l] += sr
-                    outi[kk, mi, l] += si
+                    outr[kk, l] += sr
+                    outi[kk, l] += si
+        for kk in range(K):
+            for l in range(m, lmax + 1):
+                coef[kk, l, m] += fac[l, m] * complex(outr[kk, l], outi[kk, l])
 
 
 @nb.njit(parallel=True, fastmath=_FM, **_JIT)
-def synthesis_kernel(lmax, mlo, mhi, x, s, cm, Ar, Ai, FNr, FNi, FSr, FSi, shift):
+def synthesis_kernel(lmax, mlo, mhi, x, s, cm, live, coef, fac, FN, FS, dm, scale, shift):
     """Fourier coefficients on latitude pairs from ortho, phase-free a_lm.
 
-    Ar, Ai: (K, M, lmax + 1).  FNr, FNi, FSr, FSi: (M, K, J), overwritten with
-    sum_l a_lm Lambda_lm at the northern and southern latitude of each pair.
+    coef: complex (K, lmax + 1, lmax + 1), used as fac[l, m] * coef[k, l, m].
+    FN, FS: complex (K, J, nfreq); column m + dm gets scale[m - mlo] times
+    sum_l a_lm Lambda_lm at the northern / southern latitude of each pair
+    added to it.
     Same loop structure as :func:`analysis_kernel`; sums of latitudes still in
     scaled range are discarded when they become plain (their true values were
     below 2^-268, negligible).
     """
-    J = x.size
-    K = Ar.shape[0]
+    K = coef.shape[0]
     nm = mhi - mlo + 1
     for i in nb.prange(nm):
         m = _order_of(i, nm, mlo)
@@ -585,9 +592,18 @@ def synthesis_kernel(lmax, mlo, mhi, x, s, cm, Ar, Ai, FNr, FNi, FSr, FSi, shift
         a = np.empty(lmax + 1)
         c = np.empty(lmax + 1)
         _recursion_coeffs(m, lmax, a, c)
-        n = _live_count(m, lmax, x, s, cm[m], shift, a, c)
-        g = np.zeros((K, 4, max(n, 1)))  # even re, even im, odd re, odd im
-        if n > 0:
+        n = live[mi]
+        if n == 0:
+            continue
+        Ar = np.empty((K, lmax + 1))
+        Ai = np.empty((K, lmax + 1))
+        for kk in range(K):
+            for l in range(m, lmax + 1):
+                v = fac[l, m] * coef[kk, l, m]
+                Ar[kk, l] = v.real
+                Ai[kk, l] = v.imag
+        g = np.zeros((K, 4, n))  # even re, even im, odd re, odd im
+        if True:
             P = np.empty(n)
             Q = np.empty(n)
             k = np.empty(n, dtype=np.int64)
@@ -595,8 +611,8 @@ def synthesis_kernel(lmax, mlo, mhi, x, s, cm, Ar, Ai, FNr, FNi, FSr, FSi, shift
             T = np.empty((4, n if K > 1 else 1))
             xl = x[:n]
             for kk in range(K):
-                ar = Ar[kk, mi, m]
-                ai = Ai[kk, mi, m]
+                ar = Ar[kk, m]
+                ai = Ai[kk, m]
                 gr = g[kk, 0]
                 gi = g[kk, 1]
                 for j in range(n):
@@ -621,14 +637,14 @@ def synthesis_kernel(lmax, mlo, mhi, x, s, cm, Ar, Ai, FNr, FNi, FSr, FSi, shift
                     c3 = c[l + 3]
                     c4 = c[l + 4]
                     if K == 1:
-                        r1 = Ar[0, mi, l + 1]
-                        r2 = Ar[0, mi, l + 2]
-                        r3 = Ar[0, mi, l + 3]
-                        r4 = Ar[0, mi, l + 4]
-                        i1 = Ai[0, mi, l + 1]
-                        i2 = Ai[0, mi, l + 2]
-                        i3 = Ai[0, mi, l + 3]
-                        i4 = Ai[0, mi, l + 4]
+                        r1 = Ar[0, l + 1]
+                        r2 = Ar[0, l + 2]
+                        r3 = Ar[0, l + 3]
+                        r4 = Ar[0, l + 4]
+                        i1 = Ai[0, l + 1]
+                        i2 = Ai[0, l + 2]
+                        i3 = Ai[0, l + 3]
+                        i4 = Ai[0, l + 4]
                         ger = g[0, 0]
                         gei = g[0, 1]
                         gor = g[0, 2]
@@ -665,14 +681,14 @@ def synthesis_kernel(lmax, mlo, mhi, x, s, cm, Ar, Ai, FNr, FNi, FSr, FSi, shift
                             P[j] = t4
                             Q[j] = t3
                         for kk in range(K):
-                            r1 = Ar[kk, mi, l + 1]
-                            r2 = Ar[kk, mi, l + 2]
-                            r3 = Ar[kk, mi, l + 3]
-                            r4 = Ar[kk, mi, l + 4]
-                            i1 = Ai[kk, mi, l + 1]
-                            i2 = Ai[kk, mi, l + 2]
-                            i3 = Ai[kk, mi, l + 3]
-                            i4 = Ai[kk, mi, l + 4]
+                            r1 = Ar[kk, l + 1]
+                            r2 = Ar[kk, l + 2]
+                            r3 = Ar[kk, l + 3]
+                            r4 = Ar[kk, l + 4]
+                            i1 = Ai[kk, l + 1]
+                            i2 = Ai[kk, l + 2]
+                            i3 = Ai[kk, l + 3]
+                            i4 = Ai[kk, l + 4]
                             ger = g[kk, 0]
                             gei = g[kk, 1]
                             gor = g[kk, 2]
@@ -693,8 +709,8 @@ def synthesis_kernel(lmax, mlo, mhi, x, s, cm, Ar, Ai, FNr, FNi, FSr, FSi, shift
                         P[j] = t
                     par = 2 * ((l - m) & 1)
                     for kk in range(K):
-                        ar = Ar[kk, mi, l]
-                        ai = Ai[kk, mi, l]
+                        ar = Ar[kk, l]
+                        ai = Ai[kk, l]
                         gr = g[kk, par]
                         gi = g[kk, par + 1]
                         for j in range(n):
@@ -705,93 +721,51 @@ def synthesis_kernel(lmax, mlo, mhi, x, s, cm, Ar, Ai, FNr, FNi, FSr, FSi, shift
                     for kk in range(K):
                         for t in range(4):
                             g[kk, t, j] = 0.0
+        mo = m + dm
+        sc = scale[mi]
         for kk in range(K):
-            for j in range(J):
-                if j < n:
-                    FNr[mi, kk, j] = g[kk, 0, j] + g[kk, 2, j]
-                    FNi[mi, kk, j] = g[kk, 1, j] + g[kk, 3, j]
-                    FSr[mi, kk, j] = g[kk, 0, j] - g[kk, 2, j]
-                    FSi[mi, kk, j] = g[kk, 1, j] - g[kk, 3, j]
-                else:
-                    FNr[mi, kk, j] = 0.0
-                    FNi[mi, kk, j] = 0.0
-                    FSr[mi, kk, j] = 0.0
-                    FSi[mi, kk, j] = 0.0
+            for j in range(n):
+                FN[kk, j, mo] += sc * complex(g[kk, 0, j] + g[kk, 2, j], g[kk, 1, j] + g[kk, 3, j])
+                FS[kk, j, mo] += sc * complex(g[kk, 0, j] - g[kk, 2, j], g[kk, 1, j] - g[kk, 3, j])
 
 
 # ---------------------------------------------------------------------------
-# Packing between grid-ordered Fourier arrays and latitude-pair arrays
+# Helpers of the drivers
 # ---------------------------------------------------------------------------
 @nb.njit(parallel=True, **_JIT)
-def pack_pairs(F, north, south, wn, ws, Er, Ei, Or, Oi):
-    """Er/Ei/Or/Oi[m, k, p] = wn F[k, north_p, m] +- ws F[k, south_p, m].
+def live_counts(lmax, mlo, mhi, x, s, cm, shift, out):
+    """out[m - mlo] = number of latitudes (a prefix, equator first) on which
+    order m is not negligible."""
+    nm = mhi - mlo + 1
+    for i in nb.prange(nm):
+        m = _order_of(i, nm, mlo)
+        a = np.empty(lmax + 1)
+        c = np.empty(lmax + 1)
+        _recursion_coeffs(m, lmax, a, c)
+        out[m - mlo] = _live_count(m, lmax, x, s, cm[m], shift, a, c)
 
-    F: (K, nlat, M) complex; a pair index of -1 stands for a missing ring."""
-    K, _, M = F.shape
+
+@nb.njit(parallel=True, **_JIT)
+def pack_pairs(F, north, south, wn, ws, scale, Er, Ei, Or, Oi):
+    """E/O[m, k, p] = scale[m] (wn F[k, north_p, m] +- ws F[k, south_p, m]).
+
+    F: (K, rows, nfreq) complex; a row index of -1 stands for a missing ring."""
+    M = Er.shape[0]
+    K = F.shape[0]
     J = north.size
-    for m in nb.prange(M):
-        for kk in range(K):
-            for p in range(J):
-                fnr = 0.0
-                fni = 0.0
-                fsr = 0.0
-                fsi = 0.0
-                if north[p] >= 0:
-                    v = F[kk, north[p], m]
-                    fnr = wn[p] * v.real
-                    fni = wn[p] * v.imag
-                if south[p] >= 0:
-                    v = F[kk, south[p], m]
-                    fsr = ws[p] * v.real
-                    fsi = ws[p] * v.imag
-                Er[m, kk, p] = fnr + fsr
-                Ei[m, kk, p] = fni + fsi
-                Or[m, kk, p] = fnr - fsr
-                Oi[m, kk, p] = fni - fsi
-
-
-@nb.njit(parallel=True, **_JIT)
-def unpack_pairs(FNr, FNi, FSr, FSi, north, south, scale, G):
-    """G[k, ring, m] = scale[m] * (north or south sums of the pair holding the ring)."""
-    M, K, J = FNr.shape
     for m in nb.prange(M):
         sc = scale[m]
         for kk in range(K):
             for p in range(J):
-                if south[p] >= 0:
-                    G[kk, south[p], m] = sc * complex(FSr[m, kk, p], FSi[m, kk, p])
+                vn = 0j
+                vs = 0j
                 if north[p] >= 0:
-                    G[kk, north[p], m] = sc * complex(FNr[m, kk, p], FNi[m, kk, p])
-
-
-@nb.njit(parallel=True, **_JIT)
-def assemble_coef(outr, outi, fac, mlo, coef):
-    """coef[k, l, m + mlo] = fac[l, m + mlo] * (outr + i outi)[k, m, l] for l >= m + mlo."""
-    K, M, L1 = outr.shape
-    for l in nb.prange(L1):
-        for kk in range(K):
-            for mi in range(M):
-                m = mi + mlo
-                if m <= l:
-                    f = fac[l, m]
-                    if m == 0:
-                        coef[kk, l, m] = f * outr[kk, mi, l]
-                    else:
-                        coef[kk, l, m] = f * complex(outr[kk, mi, l], outi[kk, mi, l])
-
-
-@nb.njit(parallel=True, **_JIT)
-def split_coef(coef, fac, mlo, M, Ar, Ai):
-    """Ar/Ai[k, m - mlo, l] = fac[l, m] * coef[k, l, m] (zero for l < m)."""
-    K, L1, _ = coef.shape
-    for mi in nb.prange(M):
-        m = mi + mlo
-        for kk in range(K):
-            for l in range(L1):
-                if l >= m:
-                    v = fac[l, m] * coef[kk, l, m]
-                    Ar[kk, mi, l] = v.real
-                    Ai[kk, mi, l] = v.imag
-                else:
-                    Ar[kk, mi, l] = 0.0
-                    Ai[kk, mi, l] = 0.0
+                    vn = wn[p] * sc * F[kk, north[p], m]
+                if south[p] >= 0:
+                    vs = ws[p] * sc * F[kk, south[p], m]
+                e = vn + vs
+                o = vn - vs
+                Er[m, kk, p] = e.real
+                Ei[m, kk, p] = e.imag
+                Or[m, kk, p] = o.real
+                Oi[m, kk, p] = o.imag

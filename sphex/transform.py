@@ -135,62 +135,112 @@ class _Pairs:
         self.n = self.x.size
 
 
-@functools.lru_cache(maxsize=32)
-def _pairs(grid: Grid) -> _Pairs:
-    return _Pairs(grid)
-
-
 def _phase(m_count: int, grid: Grid) -> np.ndarray:
     """exp(i m lon0) for m = 0..m_count-1."""
     return np.exp(1j * np.arange(m_count) * np.radians(grid.lon0))
 
 
-# ---------------------------------------------------------------------------
-# Legendre stage drivers (ortho, no phase)
-# ---------------------------------------------------------------------------
-def _legendre_analysis(G: np.ndarray, grid: Grid, lmax: int, fac: np.ndarray) -> np.ndarray:
-    """G: (K, nlat, M) Fourier coefficients G_m; returns (K, lmax+1, lmax+1) a_lm.
+@functools.lru_cache(maxsize=32)
+def _pairs(grid: Grid) -> _Pairs:
+    return _Pairs(grid)
 
-    ``fac`` converts the kernel's ortho, phase-free coefficients to the target
-    convention (``fac[l, m]``)."""
+
+@functools.lru_cache(maxsize=64)
+def _live(grid: Grid, lmax: int, mlo: int, mhi: int, shift: int) -> np.ndarray:
+    """Per order, how many latitude pairs (equator first) carry non-negligible values."""
     pairs = _pairs(grid)
-    K, _, M = G.shape
-    J = pairs.n
-    Er, Ei, Or, Oi = (np.empty((M, K, J)) for _ in range(4))
-    _kernels.pack_pairs(G, pairs.north, pairs.south, 2 * np.pi * pairs.wn, 2 * np.pi * pairs.ws,
-                        Er, Ei, Or, Oi)
-    outr = np.zeros((K, M, lmax + 1))
-    outi = np.zeros((K, M, lmax + 1))
-    _kernels.analysis_kernel(lmax, 0, M - 1, pairs.x, pairs.s, sectoral_table(lmax),
-                             Er, Ei, Or, Oi, outr, outi, 0)
+    out = np.empty(mhi - mlo + 1, dtype=np.int64)
+    _kernels.live_counts(lmax, mlo, mhi, pairs.x, pairs.s, sectoral_table(lmax), shift, out)
+    out.setflags(write=False)
+    return out
+
+
+BAND_BYTES = 1 << 24  # about 16 MB per packed array of a latitude band
+
+
+def _bands(npairs: int, M: int) -> list[tuple[int, int]]:
+    """Latitude-pair bands (start, stop) small enough to bound memory."""
+    size = int(np.clip(BAND_BYTES // (8 * max(M, 1)), 64, max(npairs, 1)))
+    if size < npairs:
+        size -= size % 8
+    return [(b, min(b + size, npairs)) for b in range(0, npairs, size)]
+
+
+class _Band:
+    """Rows of one band of latitude pairs, with pair indices local to the band."""
+
+    def __init__(self, pairs: _Pairs, b0: int, b1: int):
+        north = pairs.north[b0:b1]
+        south = pairs.south[b0:b1]
+        rows = np.unique(np.concatenate([north[north >= 0], south[south >= 0]]))
+        local = np.full(int(rows.max(initial=0)) + 1, -1, dtype=np.int64)
+        local[rows] = np.arange(rows.size)
+        self.rows = rows
+        self.north = np.where(north >= 0, local[np.maximum(north, 0)], -1)
+        self.south = np.where(south >= 0, local[np.maximum(south, 0)], -1)
+        self.x = pairs.x[b0:b1]
+        self.s = pairs.s[b0:b1]
+        self.wn = pairs.wn[b0:b1]
+        self.ws = pairs.ws[b0:b1]
+        self.n = b1 - b0
+
+
+def _analysis(values: np.ndarray, grid: Grid, lmax: int, fac: np.ndarray) -> np.ndarray:
+    """values: (K, nlat, nlon) of any real dtype -> (K, lmax+1, lmax+1) in fac's convention.
+
+    Latitude bands are transformed one at a time (FFT, packing, Legendre
+    stage), so memory beyond input and output stays small at any degree."""
+    pairs = _pairs(grid)
+    K = values.shape[0]
+    M = min(lmax, grid.nlon // 2) + 1
+    live = _live(grid, lmax, 0, M - 1, 0)
+    scale = (2 * np.pi / grid.nlon) * np.conj(_phase(M, grid))
+    cm = sectoral_table(lmax)
     coef = np.zeros((K, lmax + 1, lmax + 1), dtype=np.complex128)
-    _kernels.assemble_coef(outr, outi, fac, 0, coef)
+    for b0, b1 in _bands(pairs.n, M):
+        band = _Band(pairs, b0, b1)
+        block = np.asarray(values[:, band.rows, :], dtype=np.float64)
+        F = scipy.fft.rfft(block, axis=-1, workers=_workers())
+        del block
+        Er, Ei, Or, Oi = (np.empty((M, K, band.n)) for _ in range(4))
+        _kernels.pack_pairs(F, band.north, band.south, band.wn, band.ws, scale, Er, Ei, Or, Oi)
+        del F
+        nlive = np.clip(live - b0, 0, band.n)
+        _kernels.analysis_kernel(lmax, 0, M - 1, band.x, band.s, cm, nlive, Er, Ei, Or, Oi,
+                                 coef, fac, 0)
+    coef[:, :, 0] = coef[:, :, 0].real
     return coef
 
 
-def _legendre_synthesis(c: np.ndarray, grid: Grid, mlo: int, M: int, fac: np.ndarray,
-                        shift: int = 0, scale: np.ndarray | None = None) -> np.ndarray:
-    """Sums over degree for orders mlo..mlo+M-1 of fac * c (c: (K, lmax+1, lmax+1) [l, m]).
+def _synthesis_passes(grid: Grid, K: int, M_out: int, passes, out: np.ndarray) -> None:
+    """Legendre synthesis passes band by band, then Fourier synthesis into ``out``.
 
-    Returns (K, nlat, M): sum_l fac c Lambda_lm on each ring (divided by
-    sin theta when shift=1), times ``scale[m - mlo]`` when given.
-    """
+    ``passes``: (target, coef, fac, mlo, mhi, dm, scale, shift) tuples; the
+    pass adds ``scale[m - mlo] sum_l fac coef Lambda_lm`` (``/ sin theta``
+    when shift=1) to Fourier order ``m + dm`` of ``out[target]``
+    (``out``: (targets, K, nlat, nlon))."""
     pairs = _pairs(grid)
-    K, L1, _ = c.shape
-    lmax = L1 - 1
-    J = pairs.n
-    Ar = np.empty((K, M, L1))
-    Ai = np.empty((K, M, L1))
-    _kernels.split_coef(c, fac, mlo, M, Ar, Ai)
-    FNr, FNi, FSr, FSi = (np.empty((M, K, J)) for _ in range(4))
-    _kernels.synthesis_kernel(lmax, mlo, mlo + M - 1, pairs.x, pairs.s, sectoral_table(lmax),
-                              Ar, Ai, FNr, FNi, FSr, FSi, shift)
-    out = np.empty((K, grid.nlat, M), dtype=np.complex128)
-    if scale is None:
-        scale = np.ones(M, dtype=np.complex128)
-    _kernels.unpack_pairs(FNr, FNi, FSr, FSi, pairs.north, pairs.south,
-                          np.asarray(scale, dtype=np.complex128), out)
-    return out
+    lmax = passes[0][1].shape[-1] - 1
+    cm = sectoral_table(lmax)
+    ntarget = out.shape[0]
+    for b0, b1 in _bands(pairs.n, M_out):
+        band = _Band(pairs, b0, b1)
+        FN = np.zeros((ntarget, K, band.n, M_out), dtype=np.complex128)
+        FS = np.zeros((ntarget, K, band.n, M_out), dtype=np.complex128)
+        for target, coef, fac, mlo, mhi, dm, scale, shift in passes:
+            if mhi < mlo:
+                continue
+            nlive = np.clip(_live(grid, lmax, mlo, mhi, shift) - b0, 0, band.n)
+            _kernels.synthesis_kernel(lmax, mlo, mhi, band.x, band.s, cm, nlive, coef, fac,
+                                      FN[target], FS[target], dm,
+                                      np.asarray(scale, dtype=np.complex128), shift)
+        ok_n = band.north >= 0
+        ok_s = band.south >= 0
+        for t in range(ntarget):
+            vs = _fourier_synthesis(FS[t][:, ok_s, :], grid)
+            out[t][:, band.rows[band.south[ok_s]], :] = vs
+            vn = _fourier_synthesis(FN[t][:, ok_n, :], grid)
+            out[t][:, band.rows[band.north[ok_n]], :] = vn  # an equator ring: north wins
 
 
 def _fourier_synthesis(G: np.ndarray, grid: Grid) -> np.ndarray:
@@ -269,11 +319,8 @@ def analyze(values, grid: Grid, lmax: int | None = None, norm: str = "ortho",
     arr = _check_values(values, grid)
     lmax = _check_lmax(lmax, grid, allow_aliasing)
     batch = arr.shape[:-2]
-    v = np.asarray(arr.reshape((-1,) + grid.shape), dtype=np.float64)
-    G = scipy.fft.rfft(v, axis=-1, workers=_workers())
-    M = min(lmax, grid.nlon // 2) + 1
-    G = G[..., :M] * (np.conj(_phase(M, grid)) / grid.nlon)[None, None, :]
-    coef = _legendre_analysis(G, grid, lmax, _factor(lmax, "ortho", False, norm, condon_shortley))
+    fac = _factor(lmax, "ortho", False, norm, condon_shortley)
+    coef = _analysis(arr.reshape((-1,) + grid.shape), grid, lmax, fac)
     coef = coef.reshape(batch + (lmax + 1, lmax + 1))
     return Harmonics(coef, norm=norm, condon_shortley=condon_shortley, radius=radius, units=units)
 
@@ -325,9 +372,10 @@ def synthesize(h: Harmonics, grid: Grid) -> np.ndarray:
     """
     grid = _check_grid(grid)
     c, fac = _batched(h)
-    G = _legendre_synthesis(c, grid, 0, h.lmax + 1, fac)
-    out = _fourier_synthesis(G, grid)
-    return out.reshape(h.batch_shape + grid.shape)
+    K, L1, _ = c.shape
+    out = np.empty((1, K) + grid.shape)
+    _synthesis_passes(grid, K, L1, [(0, c, fac, 0, L1 - 1, 0, np.ones(L1), 0)], out)
+    return out[0].reshape(h.batch_shape + grid.shape)
 
 
 def synthesize_gradient(h: Harmonics, grid: Grid) -> tuple[np.ndarray, np.ndarray]:
@@ -369,14 +417,14 @@ def synthesize_gradient(h: Harmonics, grid: Grid) -> tuple[np.ndarray, np.ndarra
     c2 = np.zeros_like(c)
     c2[:, :, 1:] = -c[:, :, :-1] * (fac * dn)[None, :, :-1]      # function order mu = m + 1
     one = np.ones((L1, L1))
-    D = np.zeros((K, grid.nlat, L1), dtype=np.complex128)
-    D[:, :, 1:] += _legendre_synthesis(c1, grid, 0, lmax, one)
-    D[:, :, :-1] += _legendre_synthesis(c2, grid, 1, lmax, one)
-    north = -_fourier_synthesis(D, grid)
-    Eq = np.zeros((K, grid.nlat, L1), dtype=np.complex128)
-    Eq[:, :, 1:] = _legendre_synthesis(c, grid, 1, lmax, fac, shift=1,
-                                       scale=1j * np.arange(1, L1))
-    east = _fourier_synthesis(Eq, grid)
+    out = np.empty((2, K) + grid.shape)
+    ones = np.ones(L1)
+    passes = [(0, c1, one, 0, lmax - 1, +1, ones, 0),                 # d/dtheta from order m - 1
+              (0, c2, one, 1, lmax, -1, ones, 0),                     # d/dtheta from order m + 1
+              (1, c, fac, 1, lmax, 0, 1j * np.arange(1, L1), 1)]      # (1/sin theta) d/dphi
+    _synthesis_passes(grid, K, L1, passes, out)
+    north = -out[0]
+    east = out[1]
     return east.reshape(shape), north.reshape(shape)
 
 
