@@ -700,8 +700,9 @@ def main(argv: Sequence[str] | None = None) -> int:
         parser.print_help()
         return 0
     debug = os.environ.get("SPHEX_DEBUG", "") not in ("", "0")
+    previous = None
     try:
-        signal.signal(signal.SIGTERM, _on_term)
+        previous = signal.signal(signal.SIGTERM, _on_term)
     except (ValueError, OSError):  # not in the main thread
         pass
     try:
@@ -717,6 +718,9 @@ def main(argv: Sequence[str] | None = None) -> int:
         if debug:
             raise
         return _fail(args.command, exc)
+    finally:
+        if previous is not None:
+            signal.signal(signal.SIGTERM, previous)
 
 if __name__ == "__main__":
     raise SystemExit(main())

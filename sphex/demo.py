@@ -221,7 +221,26 @@ def run(out_dir: str | os.PathLike = "sphex-demo-output", overwrite: bool = Fals
     if existing and not overwrite:
         raise FileExistsError(f"{str(out)!r} already holds demo results ({existing[0]}, ...); "
                               "pass --overwrite or choose another --out")
+    made_dir = not out.exists()
     out.mkdir(parents=True, exist_ok=True)
+    before = set(out.iterdir())
+    try:
+        return _run(out, names, overwrite)
+    except BaseException:
+        # a failed or interrupted demo takes back the files it added
+        for p in set(out.iterdir()) - before:
+            if p.is_file():
+                p.unlink(missing_ok=True)
+            elif p.is_dir() and p.name == "data":
+                for q in p.iterdir():
+                    q.unlink(missing_ok=True)
+                p.rmdir()
+        if made_dir and not any(out.iterdir()):
+            out.rmdir()
+        raise
+
+
+def _run(out: Path, names: dict[str, str], overwrite: bool) -> int:
     t0 = time.monotonic()
 
     import xarray as xr

@@ -265,3 +265,23 @@ def test_demo_makes_its_data_when_the_repository_copy_is_missing(tmp_path, monke
     assert (tmp_path / "out" / "data" / demo.TOPO_FILE).exists()
     assert "made now" in capsys.readouterr().out
     assert (tmp_path / "out" / "topography_spectrum.png").exists()
+
+
+def test_a_failing_demo_takes_back_what_it_wrote(tmp_path, monkeypatch):
+    from sphex import demo, plot
+
+    calls = []
+    real_save = plot.save
+
+    def save_then_fail(fig, path, **kw):
+        calls.append(path)
+        if len(calls) == 2:
+            raise KeyboardInterrupt          # as if the user pressed Ctrl-C here
+        return real_save(fig, path, **kw)
+
+    monkeypatch.setattr(plot, "save", save_then_fail)
+    out = tmp_path / "new"
+    with pytest.raises(KeyboardInterrupt):
+        demo.run(out)
+    assert len(calls) == 2
+    assert not out.exists()                  # the coefficient file and first map are gone too
