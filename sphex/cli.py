@@ -632,7 +632,8 @@ def _cmd_inspect(a: argparse.Namespace) -> int:
                 try:
                     info = sxr.find_grid(v)
                 except ValueError as exc:
-                    lines.append(f"{head}\n    not usable: {str(exc).replace(repr(str(name)), 'it')}")
+                    reason = str(exc).removeprefix(f"variable {str(name)!r}: ")
+                    lines.append(f"{head}\n    not usable: {reason}")
                     continue
                 extra = [d for d in v.dims if d not in (info.lat_dim, info.lon_dim)]
                 batch = f"; {_n_fields(v, info)} fields over {', '.join(map(str, extra))}" if extra else ""
