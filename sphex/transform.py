@@ -202,14 +202,91 @@ def _analysis(values: np.ndarray, grid: Grid, lmax: int, fac: np.ndarray) -> np.
         block = np.asarray(values[:, band.rows, :], dtype=np.float64)
         F = scipy.fft.rfft(block, axis=-1, workers=_workers())
         del block
-        Er, Ei, Or, Oi = (np.empty((M, K, band.n)) for _ in range(4))
+        E = np.empty((M, 2 * K, band.n))
+        O = np.empty((M, 2 * K, band.n))
+        Er, Ei, Or, Oi = E[:, :K], E[:, K:], O[:, :K], O[:, K:]
         _kernels.pack_pairs(F, band.north, band.south, band.wn, band.ws, scale, Er, Ei, Or, Oi)
         del F
         nlive = np.clip(live - b0, 0, band.n)
-        _kernels.analysis_kernel(lmax, 0, M - 1, band.x, band.s, cm, nlive, Er, Ei, Or, Oi,
-                                 coef, fac, 0)
+        if K >= BATCH_BLAS:
+            _analysis_blas(E, O, band, lmax, M, nlive, cm, fac, coef)
+        else:
+            _kernels.analysis_kernel(lmax, 0, M - 1, band.x, band.s, cm, nlive, Er, Ei, Or, Oi,
+                                     coef, fac, 0)
     coef[:, :, 0] = coef[:, :, 0].real
     return coef
+
+
+BATCH_BLAS = 8  # batches at least this large contract through BLAS matrix products
+
+
+def _order_chunks(lmax: int, mlo: int, mhi: int, J: int):
+    """Consecutive order ranges whose Legendre rows fit in about 4 * BAND_BYTES."""
+    limit = max(4 * BAND_BYTES // (8 * max(J, 1)), lmax + 1)
+    chunks, m0, rows = [], mlo, 0
+    for m in range(mlo, mhi + 1):
+        if rows + lmax + 1 - m > limit and m > m0:
+            chunks.append((m0, m - 1))
+            m0, rows = m, 0
+        rows += lmax + 1 - m
+    chunks.append((m0, mhi))
+    return chunks
+
+
+def _rows_for(lmax, m0, m1, band, cm, nlive, shift=0):
+    """Legendre rows of orders m0..m1 for a band, with per-order row offsets."""
+    counts = lmax + 1 - np.arange(m0, m1 + 1)
+    offs = np.concatenate([[0], np.cumsum(counts)[:-1]]).astype(np.int64)
+    buf = np.empty((int(counts.sum()), band.n))
+    _kernels.legendre_rows(lmax, m0, m1, band.x, band.s, cm, nlive[m0:m1 + 1], buf, offs, shift)
+    return buf, offs
+
+
+def _analysis_blas(F_E, F_O, band, lmax, M, nlive, cm, fac, coef):
+    """Batched analysis of one band: E/O (M, 2K, n) stacked real/imag, through BLAS."""
+    K = coef.shape[0]
+    for m0, m1 in _order_chunks(lmax, 0, M - 1, band.n):
+        buf, offs = _rows_for(lmax, m0, m1, band, cm, nlive)
+        for m in range(m0, m1 + 1):
+            n = int(nlive[m])
+            if n == 0:
+                continue
+            off = offs[m - m0]
+            ne = (lmax - m) // 2 + 1
+            no = lmax + 1 - m - ne
+            le = np.arange(m, lmax + 1, 2)
+            lo = np.arange(m + 1, lmax + 1, 2)
+            re = buf[off:off + ne, :n] @ F_E[m, :, :n].T          # (ne, 2K)
+            coef[:, le, m] += (fac[le, m][:, None] * (re[:, :K] + 1j * re[:, K:])).T
+            if no:
+                ro = buf[off + ne:off + ne + no, :n] @ F_O[m, :, :n].T
+                coef[:, lo, m] += (fac[lo, m][:, None] * (ro[:, :K] + 1j * ro[:, K:])).T
+
+
+def _synthesis_blas(c, fac, band, lmax, nlive, cm, FN, FS):
+    """Batched synthesis of one band into FN/FS (K, n, M), through BLAS."""
+    K = c.shape[0]
+    M = lmax + 1
+    for m0, m1 in _order_chunks(lmax, 0, M - 1, band.n):
+        buf, offs = _rows_for(lmax, m0, m1, band, cm, nlive)
+        for m in range(m0, m1 + 1):
+            n = int(nlive[m])
+            if n == 0:
+                continue
+            off = offs[m - m0]
+            ne = (lmax - m) // 2 + 1
+            no = lmax + 1 - m - ne
+            le = np.arange(m, lmax + 1, 2)
+            lo = np.arange(m + 1, lmax + 1, 2)
+            ae = (c[:, le, m] * fac[le, m]).T                       # (ne, K)
+            ge = buf[off:off + ne, :n].T @ np.concatenate([ae.real, ae.imag], axis=1)
+            if no:
+                ao = (c[:, lo, m] * fac[lo, m]).T
+                go = buf[off + ne:off + ne + no, :n].T @ np.concatenate([ao.real, ao.imag], axis=1)
+            else:
+                go = np.zeros_like(ge)
+            FN[:, :n, m] = (ge[:, :K] + go[:, :K] + 1j * (ge[:, K:] + go[:, K:])).T
+            FS[:, :n, m] = (ge[:, :K] - go[:, :K] + 1j * (ge[:, K:] - go[:, K:])).T
 
 
 def _synthesis_passes(grid: Grid, K: int, M_out: int, passes, out: np.ndarray) -> None:
@@ -229,6 +306,10 @@ def _synthesis_passes(grid: Grid, K: int, M_out: int, passes, out: np.ndarray) -
         FS = np.zeros((ntarget, K, band.n, M_out), dtype=np.complex128)
         for target, coef, fac, mlo, mhi, dm, scale, shift in passes:
             if mhi < mlo:
+                continue
+            if K >= BATCH_BLAS and (mlo, mhi, dm, shift) == (0, lmax, 0, 0):
+                nlive = np.clip(_live(grid, lmax, 0, lmax, 0) - b0, 0, band.n)
+                _synthesis_blas(coef, fac, band, lmax, nlive, cm, FN[target], FS[target])
                 continue
             nlive = np.clip(_live(grid, lmax, mlo, mhi, shift) - b0, 0, band.n)
             _kernels.synthesis_kernel(lmax, mlo, mhi, band.x, band.s, cm, nlive, coef, fac,
