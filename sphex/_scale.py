@@ -69,6 +69,8 @@ __all__ = [
 MERGE_LIMIT = 512 * 2**20
 #: Input bytes per block that :func:`default_block` aims at.
 BLOCK_BYTES = 32 * 2**20
+#: How long to try reaching a distributed scheduler.
+CONNECT_TIMEOUT = "10s"
 
 
 # ----------------------------------------------------------------------------
@@ -583,7 +585,7 @@ def _client(address: str) -> Any:
     except ImportError:  # pragma: no cover - distributed is a dependency
         raise ValueError("--scheduler needs the 'distributed' package (pip install distributed)")
     try:
-        return Client(address, timeout="10s", set_as_default=True)
+        return Client(address, timeout=CONNECT_TIMEOUT, set_as_default=True)
     except (OSError, TimeoutError, ValueError) as exc:
         msg = " ".join(str(exc).split())
         raise ValueError(f"cannot reach a dask scheduler at {address!r} ({msg}); start one with "
