@@ -91,3 +91,14 @@ def test_save_writes_png_atomically_and_refuses_to_overwrite(tmp_path):
     assert path.read_bytes() == data
     plot.save(fig, path, overwrite=True)
     assert sorted(p.name for p in tmp_path.iterdir()) == ["p.png"]
+
+
+def test_power_figure_reference_line_has_the_given_slope_and_band_is_drawn():
+    p = 1.0 / (1.0 + np.arange(50.0)) ** 2
+    fig = plot.power_figure(p, reference=-3.0, band=(0.5 * p, 2 * p), band_label="spread")
+    ax = fig.axes[0]
+    x, y = ax.get_lines()[-1].get_data()
+    slope = np.polyfit(np.log(x), np.log(y), 1)[0]
+    assert slope == pytest.approx(-3.0, abs=1e-12)
+    texts = [t.get_text() for t in ax.get_legend().get_texts()]
+    assert "spread" in texts and "reference slope -3" in texts
