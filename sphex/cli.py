@@ -74,7 +74,7 @@ normalisation, phase convention, lmax, reference radius and units.  A file
 name ending in .txt gets a plain text table (one field only).
 
 example:
-  sphex analyze sphex-demo-output/velanthe_topography.nc -v topography --lmax 60 -o topo_coef.nc
+  sphex analyze data_demo/velanthe_topography.nc -v topography --lmax 60 -o topo_coef.nc
 """,
     "synthesize": """\
 example:
