@@ -489,6 +489,8 @@ def _finish_dataset(ds: xr.Dataset, lmax: int, norm: str, cs: bool, radius: floa
     for k, v in (field_attrs or {}).items():
         if k in ("units",):
             continue
+        if isinstance(v, (bool, np.bool_)):
+            v = int(v)                      # netCDF has no boolean attributes
         if isinstance(v, (str, int, float, np.integer, np.floating, np.ndarray, list, tuple)):
             attrs[f"field_{k}"] = v
     ds.attrs = attrs
