@@ -257,6 +257,55 @@ def test_batch_axes_match_one_by_one(rng):
     assert rel_err(ab.coef, coef) < 1e-12
 
 
+@pytest.mark.parametrize("kind", ["gauss", "poles", "cells", "north"])
+@pytest.mark.parametrize("batch", [(9,), (4, 5), (17,)])
+def test_large_batches_match_one_by_one(rng, kind, batch):
+    # larger batches may take another code path (matrix products over the batch); every
+    # field must still equal its own single-field transform
+    lmax = 40
+    grid = Grid.gauss(lmax) if kind == "gauss" else Grid.equiangular(2 * lmax + 2, 2 * lmax + 2, kind)
+    coef = random_coef(lmax, rng, batch=batch)
+    fb = synthesize(Harmonics(coef), grid)
+    ab = analyze(fb, grid)
+    flat_c = coef.reshape((-1,) + coef.shape[-2:])
+    flat_f = fb.reshape((-1,) + grid.shape)
+    flat_a = ab.coef.reshape((-1,) + coef.shape[-2:])
+    for i in range(flat_c.shape[0]):
+        f1 = synthesize(Harmonics(flat_c[i]), grid)
+        np.testing.assert_allclose(flat_f[i], f1, rtol=0, atol=1e-13 * np.max(np.abs(f1)))
+        a1 = analyze(f1, grid)
+        np.testing.assert_allclose(flat_a[i], a1.coef, rtol=0, atol=1e-13 * np.max(np.abs(a1.coef)))
+    assert rel_err(ab.coef, coef) < 1e-12
+    if kind == "gauss" and batch == (9,):
+        # and against the direct scipy sum for one member
+        ref = complex_form_field(flat_c[-1], grid.colat, np.radians(grid.lon), "ortho", True)
+        assert rel_err(flat_f[-1], ref) < 1e-12
+
+
+@pytest.mark.slow
+def test_large_batch_at_high_degree(rng):
+    # a batch big enough for any batched path, at a degree where the near-pole skipping matters
+    lmax = 383
+    grid = Grid.gauss(lmax)
+    coef = random_coef(lmax, rng, batch=(8,))
+    fb = synthesize(Harmonics(coef), grid)
+    ab = analyze(fb, grid)
+    assert rel_err(ab.coef, coef) < 1e-12
+    f0 = synthesize(Harmonics(coef[5]), grid)
+    np.testing.assert_allclose(fb[5], f0, rtol=0, atol=1e-13 * np.max(np.abs(f0)))
+    np.testing.assert_allclose(ab.coef[5], analyze(f0, grid).coef, rtol=0, atol=1e-13 * np.max(np.abs(coef[5])))
+
+
+def test_large_batch_float32_non_contiguous(rng):
+    grid = Grid.equiangular(40, 40, "cells")
+    coef = random_coef(grid.lmax_exact, rng, batch=(10,))
+    f = synthesize(Harmonics(coef), grid)
+    v = np.moveaxis(np.ascontiguousarray(np.moveaxis(f, 0, -1)), -1, 0).astype(np.float32)
+    h = analyze(v, grid)
+    ref = np.stack([analyze(v[i].astype(np.float64), grid).coef for i in range(10)])
+    np.testing.assert_allclose(h.coef, ref, rtol=0, atol=1e-13 * np.max(np.abs(ref)))
+
+
 def test_float32_and_integer_input(rng):
     grid = Grid.equiangular(34, 34, "cells")
     f = synthesize(Harmonics(random_coef(grid.lmax_exact, rng)), grid)
