@@ -378,15 +378,16 @@ def _rescale(P, Q, k, j):
 
 
 @nb.njit(parallel=True, fastmath=_FM, **_JIT)
-def analysis_kernel(lmax, mlo, mhi, x, s, cm, live, Er, Ei, Or, Oi, coef, fac, shift):
+def analysis_kernel(lmax, mlo, mhi, x, s, cm, live, Er, Ei, Or, Oi, tri, offs, shift):
     """Accumulate ortho, phase-free a_lm from even/odd Fourier sums.
 
     x, s: (J,) cos and sin of the northern colatitude of each latitude pair,
     ordered from the equator toward the pole.  Er, Ei, Or, Oi: (M, K, J),
     M = mhi - mlo + 1: quadrature-weighted north + south (E) and north - south
     (O) sums of the Fourier coefficient of order m.  live: (M,) number of
-    latitudes (a prefix) on which order m is not negligible.  coef: complex
-    (K, lmax + 1, lmax + 1), to which fac[l, m] * a_lm is added.
+    latitudes (a prefix) on which order m is not negligible.  tri: complex
+    (K, ntri) coefficients stored order by order (a_lm at offs[m] + l - m),
+    added to.
     shift = 1 evaluates Lambda / sin(theta).
 
     Each pass over the latitudes advances the recursion by four degrees in
@@ -567,16 +568,17 @@ def analysis_kernel(lmax, mlo, mhi, x, s, cm, live, Er, Ei, Or, Oi, coef, fac, s
                         si += P[j] * fi[j]
                     outr[kk, l] += sr
                     outi[kk, l] += si
+        o = offs[m] - m
         for kk in range(K):
             for l in range(m, lmax + 1):
-                coef[kk, l, m] += fac[l, m] * complex(outr[kk, l], outi[kk, l])
+                tri[kk, o + l] += complex(outr[kk, l], outi[kk, l])
 
 
 @nb.njit(parallel=True, fastmath=_FM, **_JIT)
-def synthesis_kernel(lmax, mlo, mhi, x, s, cm, live, coef, fac, FN, FS, dm, scale, shift):
+def synthesis_kernel(lmax, mlo, mhi, x, s, cm, live, tri, offs, FN, FS, dm, scale, shift):
     """Fourier coefficients on latitude pairs from ortho, phase-free a_lm.
 
-    coef: complex (K, lmax + 1, lmax + 1), used as fac[l, m] * coef[k, l, m].
+    tri: complex (K, ntri), a_lm stored order by order at offs[m] + l - m.
     FN, FS: complex (K, J, nfreq); column m + dm gets scale[m - mlo] times
     sum_l a_lm Lambda_lm at the northern / southern latitude of each pair
     added to it.
@@ -584,7 +586,7 @@ def synthesis_kernel(lmax, mlo, mhi, x, s, cm, live, coef, fac, FN, FS, dm, scal
     scaled range are discarded when they become plain (their true values were
     below 2^-268, negligible).
     """
-    K = coef.shape[0]
+    K = tri.shape[0]
     nm = mhi - mlo + 1
     for i in nb.prange(nm):
         m = _order_of(i, nm, mlo)
@@ -597,9 +599,10 @@ def synthesis_kernel(lmax, mlo, mhi, x, s, cm, live, coef, fac, FN, FS, dm, scal
             continue
         Ar = np.empty((K, lmax + 1))
         Ai = np.empty((K, lmax + 1))
+        o = offs[m] - m
         for kk in range(K):
             for l in range(m, lmax + 1):
-                v = fac[l, m] * coef[kk, l, m]
+                v = tri[kk, o + l]
                 Ar[kk, l] = v.real
                 Ai[kk, l] = v.imag
         g = np.zeros((K, 4, n))  # even re, even im, odd re, odd im
@@ -821,3 +824,24 @@ def legendre_rows(lmax, mlo, mhi, x, s, cm, live, buf, offs, shift):
             row = off + (d // 2 if d % 2 == 0 else ne + d // 2)
             for j in range(n):
                 buf[row, j] = P[j] * on[j]
+
+
+@nb.njit(parallel=True, **_JIT)
+def square_to_tri(coef, fac, offs, mlo, mhi, tri):
+    """tri[k, offs[m] + l - m] = fac[l, m] coef[k, l, m] for orders mlo..mhi."""
+    K, L1, _ = coef.shape
+    for l in nb.prange(L1):
+        for kk in range(K):
+            for m in range(mlo, min(l, mhi) + 1):
+                tri[kk, offs[m] + l - m] = fac[l, m] * coef[kk, l, m]
+
+
+@nb.njit(parallel=True, **_JIT)
+def tri_to_square(tri, fac, offs, coef):
+    """coef[k, l, m] = fac[l, m] tri[k, offs[m] + l - m]; m = 0 made real."""
+    K, L1, _ = coef.shape
+    for l in nb.prange(L1):
+        for kk in range(K):
+            coef[kk, l, 0] = fac[l, 0] * tri[kk, offs[0] + l].real
+            for m in range(1, l + 1):
+                coef[kk, l, m] = fac[l, m] * tri[kk, offs[m] + l - m]

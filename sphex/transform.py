@@ -185,6 +185,22 @@ class _Band:
         self.n = b1 - b0
 
 
+def _tri_offsets(lmax: int) -> np.ndarray:
+    """Start of order m in order-by-order (triangular) storage; last entry is the size."""
+    m = np.arange(lmax + 2, dtype=np.int64)
+    return m * (lmax + 1) - m * (m - 1) // 2
+
+
+def _to_tri(coef: np.ndarray, fac: np.ndarray, mlo: int = 0, mhi: int | None = None) -> np.ndarray:
+    """(K, L+1, L+1) square coefficients -> (K, ntri) order-by-order, times fac."""
+    lmax = coef.shape[-1] - 1
+    mhi = lmax if mhi is None else mhi
+    offs = _tri_offsets(lmax)
+    tri = np.zeros((coef.shape[0], int(offs[-1])), dtype=np.complex128)
+    _kernels.square_to_tri(coef, fac, offs, mlo, mhi, tri)
+    return tri
+
+
 def _analysis(values: np.ndarray, grid: Grid, lmax: int, fac: np.ndarray) -> np.ndarray:
     """values: (K, nlat, nlon) of any real dtype -> (K, lmax+1, lmax+1) in fac's convention.
 
@@ -196,7 +212,9 @@ def _analysis(values: np.ndarray, grid: Grid, lmax: int, fac: np.ndarray) -> np.
     live = _live(grid, lmax, 0, M - 1, 0)
     scale = (2 * np.pi / grid.nlon) * np.conj(_phase(M, grid))
     cm = sectoral_table(lmax)
+    offs = _tri_offsets(lmax)
     coef = np.zeros((K, lmax + 1, lmax + 1), dtype=np.complex128)
+    tri = None if K >= BATCH_BLAS else np.zeros((K, int(offs[-1])), dtype=np.complex128)
     for b0, b1 in _bands(pairs.n, M):
         band = _Band(pairs, b0, b1)
         block = np.asarray(values[:, band.rows, :], dtype=np.float64)
@@ -212,7 +230,9 @@ def _analysis(values: np.ndarray, grid: Grid, lmax: int, fac: np.ndarray) -> np.
             _analysis_blas(E, O, band, lmax, M, nlive, cm, fac, coef)
         else:
             _kernels.analysis_kernel(lmax, 0, M - 1, band.x, band.s, cm, nlive, Er, Ei, Or, Oi,
-                                     coef, fac, 0)
+                                     tri, offs, 0)
+    if tri is not None:
+        _kernels.tri_to_square(tri, fac, offs, coef)
     coef[:, :, 0] = coef[:, :, 0].real
     return coef
 
@@ -299,20 +319,23 @@ def _synthesis_passes(grid: Grid, K: int, M_out: int, passes, out: np.ndarray) -
     pairs = _pairs(grid)
     lmax = passes[0][1].shape[-1] - 1
     cm = sectoral_table(lmax)
+    offs = _tri_offsets(lmax)
+    blas = [K >= BATCH_BLAS and (p[3], p[4], p[5], p[7]) == (0, lmax, 0, 0) for p in passes]
+    tris = [None if b else _to_tri(p[1], p[2], p[3], p[4]) for p, b in zip(passes, blas)]
     ntarget = out.shape[0]
     for b0, b1 in _bands(pairs.n, M_out):
         band = _Band(pairs, b0, b1)
         FN = np.zeros((ntarget, K, band.n, M_out), dtype=np.complex128)
         FS = np.zeros((ntarget, K, band.n, M_out), dtype=np.complex128)
-        for target, coef, fac, mlo, mhi, dm, scale, shift in passes:
+        for (target, coef, fac, mlo, mhi, dm, scale, shift), use_blas, tri in zip(passes, blas, tris):
             if mhi < mlo:
                 continue
-            if K >= BATCH_BLAS and (mlo, mhi, dm, shift) == (0, lmax, 0, 0):
+            if use_blas:
                 nlive = np.clip(_live(grid, lmax, 0, lmax, 0) - b0, 0, band.n)
                 _synthesis_blas(coef, fac, band, lmax, nlive, cm, FN[target], FS[target])
                 continue
             nlive = np.clip(_live(grid, lmax, mlo, mhi, shift) - b0, 0, band.n)
-            _kernels.synthesis_kernel(lmax, mlo, mhi, band.x, band.s, cm, nlive, coef, fac,
+            _kernels.synthesis_kernel(lmax, mlo, mhi, band.x, band.s, cm, nlive, tri, offs,
                                       FN[target], FS[target], dm,
                                       np.asarray(scale, dtype=np.complex128), shift)
         ok_n = band.north >= 0
