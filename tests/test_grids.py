@@ -296,7 +296,7 @@ def test_from_coords_accepts_lists_and_float32_equiangular():
     # latitudes in float32
     g2 = Grid.from_coords(lat, (np.arange(1080) / 3.0 - 180.0).astype(np.float32))
     assert g2.kind == "equiangular-poles"
-    g3 = Grid.from_coords(gauss_lat(640).astype(np.float32), (np.arange(1280) * 0.28125).astype(np.float32))
+    g3 = Grid.from_coords(Grid.gauss(639).lat.astype(np.float32), (np.arange(1280) * 0.28125).astype(np.float32))
     assert g3.kind == "gauss" and g3.lmax_exact == 639
 
 
