@@ -574,6 +574,66 @@ def analysis_kernel(lmax, mlo, mhi, x, s, cm, live, Er, Ei, Or, Oi, tri, offs, s
                 tri[kk, o + l] += complex(outr[kk, l], outi[kk, l])
 
 
+@nb.njit(inline="always", fastmath=_FM, **_JIT)
+def _syn8(l, n, xl, P, Q, a, c, ar, ai, g):
+    """Synthesis pass over the latitudes advancing eight degrees l+1..l+8.
+
+    l - m is even on entry, so odd offsets feed the odd sums g[2], g[3]."""
+    a1 = a[l + 1]
+    a2 = a[l + 2]
+    a3 = a[l + 3]
+    a4 = a[l + 4]
+    a5 = a[l + 5]
+    a6 = a[l + 6]
+    a7 = a[l + 7]
+    a8 = a[l + 8]
+    c1 = c[l + 1]
+    c2 = c[l + 2]
+    c3 = c[l + 3]
+    c4 = c[l + 4]
+    c5 = c[l + 5]
+    c6 = c[l + 6]
+    c7 = c[l + 7]
+    c8 = c[l + 8]
+    r1 = ar[l + 1]
+    r2 = ar[l + 2]
+    r3 = ar[l + 3]
+    r4 = ar[l + 4]
+    r5 = ar[l + 5]
+    r6 = ar[l + 6]
+    r7 = ar[l + 7]
+    r8 = ar[l + 8]
+    i1 = ai[l + 1]
+    i2 = ai[l + 2]
+    i3 = ai[l + 3]
+    i4 = ai[l + 4]
+    i5 = ai[l + 5]
+    i6 = ai[l + 6]
+    i7 = ai[l + 7]
+    i8 = ai[l + 8]
+    ger = g[0]
+    gei = g[1]
+    gor = g[2]
+    goi = g[3]
+    for j in range(n):
+        xj = xl[j]
+        p = P[j]
+        t1 = a1 * xj * p - c1 * Q[j]
+        t2 = a2 * xj * t1 - c2 * p
+        t3 = a3 * xj * t2 - c3 * t1
+        t4 = a4 * xj * t3 - c4 * t2
+        t5 = a5 * xj * t4 - c5 * t3
+        t6 = a6 * xj * t5 - c6 * t4
+        t7 = a7 * xj * t6 - c7 * t5
+        t8 = a8 * xj * t7 - c8 * t6
+        gor[j] += r1 * t1 + r3 * t3 + r5 * t5 + r7 * t7
+        goi[j] += i1 * t1 + i3 * t3 + i5 * t5 + i7 * t7
+        ger[j] += r2 * t2 + r4 * t4 + r6 * t6 + r8 * t8
+        gei[j] += i2 * t2 + i4 * t4 + i6 * t6 + i8 * t8
+        P[j] = t8
+        Q[j] = t7
+
+
 @nb.njit(parallel=True, fastmath=_FM, **_JIT)
 def synthesis_kernel(lmax, mlo, mhi, x, s, cm, live, tri, offs, FN, FS, dm, scale, shift):
     """Fourier coefficients on latitude pairs from ortho, phase-free a_lm.
@@ -630,7 +690,10 @@ def synthesis_kernel(lmax, mlo, mhi, x, s, cm, live, tri, offs, FN, FS, dm, scal
                             for kk in range(K):
                                 for t in range(4):
                                     g[kk, t, j] = 0.0
-                if l + 4 <= lmax:
+                if K == 1 and l + 8 <= lmax:
+                    _syn8(l, n, xl, P, Q, a, c, Ar[0], Ai[0], g[0])
+                    l += 8
+                elif l + 4 <= lmax:
                     a1 = a[l + 1]
                     a2 = a[l + 2]
                     a3 = a[l + 3]

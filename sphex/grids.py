@@ -266,7 +266,7 @@ def _detect_lon(lon, tol):
     tol = tol + 2.5e-7 * float(np.max(np.abs(lon)))
     d = np.diff(lon)
     step = 360.0 / n
-    if np.all(np.abs(d - d[0]) <= tol) and abs(d[0] * (n - 1) - 360.0) <= tol * n:
+    if np.all(np.abs(d - d[0]) <= tol) and abs(lon[-1] - lon[0] - 360.0) <= tol:
         raise ValueError("the last longitude repeats the first one (0 and 360 both present): drop the "
                          "repeated seam column, e.g. lon[:-1]")
     if np.any(np.abs(d - step) > tol) and np.any(np.abs(d + step) > tol):
