@@ -62,13 +62,13 @@ from typing import Any, TextIO
 
 __all__ = [
     "SplitFieldWarning", "whole_fields", "cpu_count", "task_threads", "in_tasks",
-    "thread_pool", "parse_chunks", "default_block", "StreamResult", "stream_analyze",
+    "task_function", "limited_threads", "thread_pool", "parse_chunks", "default_block", "StreamResult", "stream_analyze",
 ]
 
 #: Largest merged chunk (bytes) that :func:`whole_fields` makes by itself.
 MERGE_LIMIT = 512 * 2**20
 #: Input bytes per block that :func:`default_block` aims at.
-BLOCK_BYTES = 32 * 2**20
+BLOCK_BYTES = 8 * 2**20
 #: How long to try reaching a distributed scheduler.
 CONNECT_TIMEOUT = "10s"
 
@@ -240,6 +240,9 @@ def task_threads() -> int | None:
     import dask
     from dask.system import CPU_COUNT
 
+    pinned = dask.config.get("sphex.task-threads", None)  # set by thread_pool
+    if pinned:
+        return max(1, min(int(pinned), top))
     t = dask.config.get("num_workers", None) or CPU_COUNT
     return max(1, min(cpu_count() // max(int(t), 1), top))
 
@@ -297,6 +300,20 @@ class in_tasks:  # noqa: N801 - used like a function decorator
         return f"in_tasks({getattr(self.func, '__qualname__', self.func)!r})"
 
 
+def task_function(func: Callable[..., Any], *objs: Any) -> Callable[..., Any]:
+    """``in_tasks(func)`` when any of ``objs`` is dask-backed, else ``func`` itself.
+
+    This is the one call the xarray adapters make before ``apply_ufunc``: numpy
+    input runs ``func`` directly in the caller's thread, exactly as before.
+    """
+    for o in objs:
+        if getattr(o, "chunks", None):
+            return in_tasks(func)
+        if hasattr(o, "data_vars") and any(v.chunks for v in o.data_vars.values()):
+            return in_tasks(func)
+    return func
+
+
 def _init_pool_thread(n: int) -> None:
     import numba
 
@@ -304,18 +321,21 @@ def _init_pool_thread(n: int) -> None:
 
 
 @contextlib.contextmanager
-def thread_pool(workers: int | None = None) -> Iterator[Any]:
+def thread_pool(workers: int | None = None, numba_threads: int | None = None) -> Iterator[Any]:
     """Use a dask thread pool of ``workers`` threads that follow the thread rule.
 
     Inside the body, dask's threaded scheduler runs on this pool; each pool
-    thread starts with numba limited to ``max(1, C // workers)`` threads, and
-    ``dask.config`` carries ``num_workers=workers`` so :func:`task_threads`
-    agrees.
+    thread starts with numba limited to ``max(1, C // workers)`` threads (or
+    ``numba_threads``, or ``SPHEX_TASK_THREADS``), and ``dask.config`` carries
+    ``num_workers=workers`` so :func:`task_threads` agrees.
 
     Parameters
     ----------
     workers : int, optional
         Number of dask threads (default: one per CPU).
+    numba_threads : int, optional
+        numba threads per pool thread, instead of the rule (the benchmark uses
+        it to compare settings).
 
     Yields
     ------
@@ -330,12 +350,17 @@ def thread_pool(workers: int | None = None) -> Iterator[Any]:
         raise ValueError(f"workers must be 1 or more, not {workers}")
     inner = max(1, min(cpu_count() // n, _numba_max()))
     forced = _positive_env("SPHEX_TASK_THREADS")
-    if forced is not None:
+    if numba_threads is not None:
+        if int(numba_threads) < 1:
+            raise ValueError(f"numba_threads must be 1 or more, not {numba_threads}")
+        inner = min(int(numba_threads), _numba_max())
+    elif forced is not None:
         inner = min(forced, _numba_max())
     pool = ThreadPoolExecutor(n, thread_name_prefix="sphex-dask",
                               initializer=_init_pool_thread, initargs=(inner,))
     try:
-        with dask.config.set(scheduler="threads", pool=pool, num_workers=n):
+        with dask.config.set({"scheduler": "threads", "pool": pool, "num_workers": n,
+                              "sphex.task-threads": inner}):
             yield pool
     finally:
         pool.shutdown(wait=True)
@@ -622,7 +647,7 @@ def stream_analyze(input: str | os.PathLike, var: str | None, output: str | os.P
     norm : {"ortho", "4pi", "schmidt", "unnorm"}
     chunks : mapping or str, optional
         Fields per chunk along a dimension, e.g. ``{"time": 64}`` or
-        ``"time=64"``; default about 32 MiB of float64 input per chunk along
+        ``"time=64"``; default about 8 MiB of float64 input per chunk along
         ``time`` (or the longest non-spatial dimension).
     scheduler : str, optional
         Address of a running ``dask.distributed`` scheduler

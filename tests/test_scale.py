@@ -188,6 +188,16 @@ def test_thread_pool_sets_the_rule_for_its_threads(monkeypatch):
             pass
 
 
+def test_task_function_wraps_only_for_dask_backed_input(series):
+    assert _scale.task_function(sxr._analyze_np, series) is sxr._analyze_np
+    assert isinstance(_scale.task_function(sxr._analyze_np, series.chunk({"time": 4})),
+                      _scale.in_tasks)
+    coef = sxr.analyze(series)
+    assert _scale.task_function(sxr._synth_np, coef) is sxr._synth_np
+    assert isinstance(_scale.task_function(sxr._synth_np, coef.chunk({"time": 4})),
+                      _scale.in_tasks)
+
+
 def test_wrapper_pickles_and_keeps_the_name():
     w = _scale.in_tasks(sxr._analyze_np)
     back = pickle.loads(pickle.dumps(w))

@@ -1,0 +1,300 @@
+"""Benchmark for scale-out: dask thread scaling and the memory of a streamed run.
+
+Two measurements, both ratios taken in one run on this machine:
+
+1. **Throughput** of analysing 64 fields at L=255 (Gauss grid 256 x 512) held
+   in a dask array of 8 chunks of 8 fields, on dask's threaded scheduler with
+   1 and 2 threads.  Each dask thread's numba thread count is stated per row:
+   with one numba thread per task the ratio 2 threads / 1 thread shows whether
+   the kernels really run in parallel outside the GIL (target >= 1.8 on 2
+   cores); the other rows show the thread rule of :mod:`sphex._scale` against
+   oversubscription and against one plain call from the main thread.
+2. **Peak memory** (``ru_maxrss`` of the child, from ``os.wait4``) of the
+   command line analysing a generated netCDF file of about 1.3 GB (float64
+   fields on the same grid) chunk by chunk, against the file size (target
+   <= 0.6).  The file is made in a temporary directory and deleted at the
+   end.  For comparison the same is measured for loading the whole variable
+   (the in-memory path) and for an idle interpreter with the same imports.
+
+Run ``python -m sphex.bench_scale`` (``--json`` for machines, ``--quick`` for
+a small file).  Timings on a shared machine vary; each throughput figure is
+the best of ``--repeat`` runs.
+"""
+from __future__ import annotations
+
+import argparse
+import json
+import math
+import os
+import shutil
+import subprocess
+import sys
+import tempfile
+import time
+from pathlib import Path
+from typing import Any
+
+import numpy as np
+
+LMAX = 255
+FIELDS = 64
+BLOCK = 8
+FILE_BYTES = 1.3e9
+
+
+# ----------------------------------------------------------------------------
+# throughput
+# ----------------------------------------------------------------------------
+def _analyze_block(values: np.ndarray, grid: Any) -> np.ndarray:
+    from sphex.transform import analyze
+
+    return analyze(values, grid).coef
+
+
+def _best(fn, repeat: int) -> float:
+    best = math.inf
+    for _ in range(repeat):
+        t = time.perf_counter()
+        fn()
+        best = min(best, time.perf_counter() - t)
+    return best
+
+
+def throughput(lmax: int = LMAX, fields: int = FIELDS, block: int = BLOCK,
+               repeat: int = 3) -> dict:
+    """Fields per second for several (dask threads, numba threads) settings."""
+    import dask
+    import dask.array as dsa
+    import numba
+
+    from sphex import Grid, Harmonics, synthesize
+    from sphex._scale import cpu_count, in_tasks, thread_pool
+
+    grid = Grid.gauss(lmax)
+    rng = np.random.default_rng(255)
+    coef = rng.standard_normal((fields, lmax + 1, lmax + 1)) \
+        + 1j * rng.standard_normal((fields, lmax + 1, lmax + 1))
+    coef = np.tril(coef)
+    coef[..., 0] = coef[..., 0].real
+    values = synthesize(Harmonics(coef), grid)
+    x = dsa.from_array(values, chunks=(block,) + grid.shape)
+    out_chunks = ((block,) * (fields // block) + ((fields % block,) if fields % block else ()),
+                  (lmax + 1,), (lmax + 1,))
+
+    def lazy(func):
+        return dsa.map_blocks(func, x, grid, dtype=np.complex128, chunks=out_chunks)
+
+    plain = lazy(_analyze_block)
+    ruled = lazy(in_tasks(_analyze_block))
+    check = plain.compute(scheduler="sync")  # also compiles the kernels
+    err = float(np.abs(check - coef).max() / np.abs(coef).max())
+    cores = cpu_count()
+    top = numba.config.NUMBA_NUM_THREADS
+    rows = []
+
+    def row(label: str, dask_threads: int | None, numba_threads: int | None, fn) -> None:
+        t = _best(fn, repeat)
+        rows.append({"setting": label, "dask_threads": dask_threads,
+                     "numba_threads": numba_threads, "seconds": t, "fields_per_s": fields / t})
+
+    def on_pool(n: int, k: int | None, arr) -> Any:
+        def go() -> None:
+            with thread_pool(n, numba_threads=k):
+                arr.compute()
+        return go
+
+    row("dask 1 thread, numba 1 per task", 1, 1, on_pool(1, 1, plain))
+    row("dask 2 threads, numba 1 per task", 2, 1, on_pool(2, 1, plain))
+    rule1 = max(1, min(cores // 1, top))
+    rule2 = max(1, min(cores // 2, top))
+    row(f"dask 1 thread, sphex rule ({rule1} numba)", 1, rule1, on_pool(1, None, ruled))
+    row(f"dask 2 threads, sphex rule ({rule2} numba)", 2, rule2, on_pool(2, None, ruled))
+    row(f"dask 2 threads, numba {top} per task (no rule)", 2, top, on_pool(2, top, plain))
+
+    def main_thread() -> None:
+        numba.set_num_threads(top)
+        _analyze_block(values, grid)
+
+    row(f"one call, main thread, numba {top}", None, top, main_thread)
+    one, two = rows[0]["fields_per_s"], rows[1]["fields_per_s"]
+    return {"lmax": lmax, "fields": fields, "block": block, "cores": cores,
+            "numba_max_threads": top, "roundtrip_error": err, "rows": rows,
+            "scaling_2_over_1": two / one, "scaling_target": 1.8}
+
+
+# ----------------------------------------------------------------------------
+# memory of a streamed command-line run
+# ----------------------------------------------------------------------------
+def make_series(path: Path, nbytes: float = FILE_BYTES, lmax: int = LMAX,
+                block: int = 40) -> dict:
+    """Write float64 random fields on a Gauss grid until the data reach ``nbytes``."""
+    import netCDF4
+
+    from sphex import Grid
+
+    grid = Grid.gauss(lmax)
+    field = grid.nlat * grid.nlon * 8
+    n = max(1, int(math.ceil(nbytes / field)))
+    rng = np.random.default_rng(1300)
+    with netCDF4.Dataset(path, "w", format="NETCDF4") as d:
+        d.title = "synthetic benchmark series (random numbers, not data)"
+        d.createDimension("time", n)
+        d.createDimension("lat", grid.nlat)
+        d.createDimension("lon", grid.nlon)
+        t = d.createVariable("time", "f8", ("time",))
+        t.units = "hours since 2040-01-01 00:00:00"
+        t.calendar = "standard"
+        t[:] = np.arange(n, dtype=np.float64)
+        la = d.createVariable("lat", "f8", ("lat",))
+        la.units, la.standard_name = "degrees_north", "latitude"
+        la[:] = grid.lat
+        lo = d.createVariable("lon", "f8", ("lon",))
+        lo.units, lo.standard_name = "degrees_east", "longitude"
+        lo[:] = grid.lon
+        v = d.createVariable("field", "f8", ("time", "lat", "lon"))
+        v.units = "1"
+        v.long_name = "synthetic random field"
+        for i in range(0, n, block):
+            k = min(block, n - i)
+            v[i:i + k] = rng.standard_normal((k, grid.nlat, grid.nlon))
+    return {"fields": n, "data_bytes": n * field, "file_bytes": path.stat().st_size}
+
+
+# The measured command is started by a small launcher process: a child forked
+# straight from this (large) process would count this process's pages in its
+# ru_maxrss until it execs, which inflates small readings.
+_LAUNCHER = """\
+import os, sys, time
+t = time.perf_counter()
+pid = os.fork()
+if pid == 0:
+    os.execv(sys.argv[1], sys.argv[1:])
+_, status, usage = os.wait4(pid, 0)
+sys.stderr.write("\\n@@rusage %d %d %.6f\\n" % (usage.ru_maxrss, os.waitstatus_to_exitcode(status),
+                                            time.perf_counter() - t))
+"""
+
+
+def _peak_rss(cmd: list[str], env: dict | None = None) -> dict:
+    """Run ``cmd``; its own peak RSS (bytes), exit status and wall time."""
+    r = subprocess.run([sys.executable, "-S", "-c", _LAUNCHER, *cmd], capture_output=True,
+                       env=env)
+    err = r.stderr.decode(errors="replace")
+    head, _, tail = err.rpartition("\n@@rusage ")
+    maxrss, code, seconds = tail.split()
+    return {"peak_rss_bytes": int(maxrss) * 1024, "exit": int(code), "seconds": float(seconds),
+            "stdout": r.stdout.decode(errors="replace")[-400:], "stderr": head[-400:]}
+
+
+def _cli_streams() -> bool:
+    """Whether ``sphex analyze`` has the --chunks option yet."""
+    r = subprocess.run([sys.executable, "-m", "sphex.cli", "analyze", "--help"],
+                       capture_output=True, text=True)
+    return "--chunks" in r.stdout
+
+
+def memory(nbytes: float = FILE_BYTES, chunk: int | None = None, compare: bool = True,
+           workdir: str | None = None) -> dict:
+    """Peak RSS of streamed analysis of a generated file, as a fraction of its size."""
+    tmp = Path(tempfile.mkdtemp(prefix="sphex-bench-scale-", dir=workdir))
+    try:
+        src = tmp / "series.nc"
+        made = make_series(src, nbytes)
+        out = tmp / "coef.nc"
+        chunks = f"time={chunk}" if chunk else None
+        if _cli_streams():
+            how = "sphex analyze --chunks (command line)"
+            cmd = [sys.executable, "-m", "sphex.cli", "analyze", str(src), "-v", "field",
+                   "-o", str(out), "--overwrite"] + (["--chunks", chunks] if chunks else [])
+        else:
+            how = "python -m sphex._scale (the command line's streaming function)"
+            cmd = [sys.executable, "-m", "sphex._scale", str(src), "field", str(out),
+                   chunks or "-"]
+        run = _peak_rss(cmd)
+        if run["exit"] != 0:
+            raise RuntimeError(f"streamed run failed: {run['stderr']}")
+        out_size = out.stat().st_size
+        out.unlink()
+        res = {"file": made, "streamed": {"how": how, "chunks": chunks or "default", **run,
+                                          "output_bytes": out_size}}
+        res["peak_over_file"] = run["peak_rss_bytes"] / made["file_bytes"]
+        res["target"] = 0.6
+        res["idle"] = _peak_rss([sys.executable, "-c",
+                                 "import sphex.xr, sphex._scale, dask.array, netCDF4, distributed"])
+        if compare:
+            code = ("import sys, xarray as xr, sphex.xr as sxr\n"
+                    "da = xr.open_dataset(sys.argv[1])['field'].load()\n"
+                    "ds = sxr.analyze(da)\n"
+                    "sxr.write_dataset(ds, sys.argv[2], True)\n")
+            mem = _peak_rss([sys.executable, "-c", code, str(src), str(out)])
+            res["in_memory"] = mem
+            res["in_memory_over_file"] = mem["peak_rss_bytes"] / made["file_bytes"]
+        return res
+    finally:
+        shutil.rmtree(tmp, ignore_errors=True)
+
+
+# ----------------------------------------------------------------------------
+def run(quick: bool = False, repeat: int = 3, memory_check: bool = True,
+        compare: bool = True, chunk: int | None = None) -> dict:
+    """Both measurements as one dict (what ``sphex bench --scale`` reports)."""
+    res: dict[str, Any] = {"throughput": throughput(lmax=127 if quick else LMAX,
+                                                    repeat=1 if quick else repeat)}
+    if memory_check:
+        res["memory"] = memory(nbytes=1.3e8 if quick else FILE_BYTES, chunk=chunk,
+                               compare=compare)
+    return res
+
+
+def format_report(res: dict) -> str:
+    t = res["throughput"]
+    lines = [f"dask throughput: {t['fields']} fields at L={t['lmax']} in chunks of {t['block']}, "
+             f"{t['cores']} cores (round-trip error {t['roundtrip_error']:.1e})",
+             f"  {'setting':<46} {'seconds':>8} {'fields/s':>9}"]
+    for r in t["rows"]:
+        lines.append(f"  {r['setting']:<46} {r['seconds']:>8.3f} {r['fields_per_s']:>9.1f}")
+    ok = "meets" if t["scaling_2_over_1"] >= t["scaling_target"] else "misses"
+    lines.append(f"  2 dask threads / 1 (one numba thread each): {t['scaling_2_over_1']:.2f}x "
+                 f"({ok} the {t['scaling_target']}x target)")
+    if "memory" in res:
+        m = res["memory"]
+        s = m["streamed"]
+        gb = m["file"]["file_bytes"] / 1e9
+        lines.append("")
+        lines.append(f"streamed analysis of a {gb:.2f} GB file ({m['file']['fields']} float64 "
+                     f"fields, chunks {s['chunks']}) via {s['how']}:")
+        ok = "meets" if m["peak_over_file"] <= m["target"] else "misses"
+        lines.append(f"  peak RSS {s['peak_rss_bytes'] / 2**20:.0f} MiB = {m['peak_over_file']:.2f} "
+                     f"of the file ({ok} the {m['target']} target), {s['seconds']:.1f} s, "
+                     f"{m['file']['fields'] / s['seconds']:.0f} fields/s")
+        lines.append(f"  idle interpreter with the same imports: "
+                     f"{m['idle']['peak_rss_bytes'] / 2**20:.0f} MiB")
+        if "in_memory" in m:
+            lines.append(f"  whole variable loaded instead: "
+                         f"{m['in_memory']['peak_rss_bytes'] / 2**20:.0f} MiB = "
+                         f"{m['in_memory_over_file']:.2f} of the file")
+    return "\n".join(lines)
+
+
+def main(argv: list[str] | None = None) -> int:
+    """Command-line entry: ``python -m sphex.bench_scale [--quick] [--json]``."""
+    p = argparse.ArgumentParser(prog="sphex bench --scale", description=__doc__.splitlines()[0],
+                                epilog="example: python -m sphex.bench_scale --no-compare")
+    p.add_argument("--quick", action="store_true", help="L=127 and a 0.13 GB file")
+    p.add_argument("--repeat", type=int, default=3, help="best of this many runs (default 3)")
+    p.add_argument("--no-memory", action="store_true", help="skip the 1.3 GB memory run")
+    p.add_argument("--no-compare", action="store_true",
+                   help="skip the in-memory comparison run")
+    p.add_argument("--chunk", type=int, default=None, metavar="N",
+                   help="fields per chunk for the streamed run (default: sphex's)")
+    p.add_argument("--json", action="store_true", help="print JSON")
+    a = p.parse_args(argv)
+    if a.repeat < 1 or (a.chunk is not None and a.chunk < 1):
+        p.error("--repeat and --chunk must be 1 or more")
+    res = run(a.quick, a.repeat, not a.no_memory, not a.no_compare, a.chunk)
+    print(json.dumps(res, indent=2) if a.json else format_report(res))
+    return 0
+
+
+if __name__ == "__main__":
+    raise SystemExit(main())
