@@ -889,22 +889,31 @@ def legendre_rows(lmax, mlo, mhi, x, s, cm, live, buf, offs, shift):
                 buf[row, j] = P[j] * on[j]
 
 
+@nb.njit(inline="always", **_JIT)
+def _fac(fl, fm, full, use_full, l, m):
+    if use_full:
+        return full[l, m]
+    return fl[l] * fm[m]
+
+
 @nb.njit(parallel=True, **_JIT)
-def square_to_tri(coef, fac, offs, mlo, mhi, tri):
-    """tri[k, offs[m] + l - m] = fac[l, m] coef[k, l, m] for orders mlo..mhi."""
+def square_to_tri(coef, fl, fm, full, use_full, offs, mlo, mhi, tri):
+    """tri[k, offs[m] + l - m] = f(l, m) coef[k, l, m] for orders mlo..mhi.
+
+    f(l, m) = full[l, m] when use_full, else fl[l] * fm[m]."""
     K, L1, _ = coef.shape
     for l in nb.prange(L1):
         for kk in range(K):
             for m in range(mlo, min(l, mhi) + 1):
-                tri[kk, offs[m] + l - m] = fac[l, m] * coef[kk, l, m]
+                tri[kk, offs[m] + l - m] = _fac(fl, fm, full, use_full, l, m) * coef[kk, l, m]
 
 
 @nb.njit(parallel=True, **_JIT)
-def tri_to_square(tri, fac, offs, coef):
-    """coef[k, l, m] = fac[l, m] tri[k, offs[m] + l - m]; m = 0 made real."""
+def tri_to_square(tri, fl, fm, full, use_full, offs, coef):
+    """coef[k, l, m] = f(l, m) tri[k, offs[m] + l - m]; m = 0 made real."""
     K, L1, _ = coef.shape
     for l in nb.prange(L1):
         for kk in range(K):
-            coef[kk, l, 0] = fac[l, 0] * tri[kk, offs[0] + l].real
+            coef[kk, l, 0] = _fac(fl, fm, full, use_full, l, 0) * tri[kk, offs[0] + l].real
             for m in range(1, l + 1):
-                coef[kk, l, m] = fac[l, m] * tri[kk, offs[m] + l - m]
+                coef[kk, l, m] = _fac(fl, fm, full, use_full, l, m) * tri[kk, offs[m] + l - m]

@@ -191,17 +191,17 @@ def _tri_offsets(lmax: int) -> np.ndarray:
     return m * (lmax + 1) - m * (m - 1) // 2
 
 
-def _to_tri(coef: np.ndarray, fac: np.ndarray, mlo: int = 0, mhi: int | None = None) -> np.ndarray:
+def _to_tri(coef: np.ndarray, fac: "_Factor", mlo: int = 0, mhi: int | None = None) -> np.ndarray:
     """(K, L+1, L+1) square coefficients -> (K, ntri) order-by-order, times fac."""
     lmax = coef.shape[-1] - 1
     mhi = lmax if mhi is None else mhi
     offs = _tri_offsets(lmax)
     tri = np.zeros((coef.shape[0], int(offs[-1])), dtype=np.complex128)
-    _kernels.square_to_tri(coef, fac, offs, mlo, mhi, tri)
+    _kernels.square_to_tri(coef, *fac.args(), offs, mlo, mhi, tri)
     return tri
 
 
-def _analysis(values: np.ndarray, grid: Grid, lmax: int, fac: np.ndarray) -> np.ndarray:
+def _analysis(values: np.ndarray, grid: Grid, lmax: int, fac: "_Factor") -> np.ndarray:
     """values: (K, nlat, nlon) of any real dtype -> (K, lmax+1, lmax+1) in fac's convention.
 
     Latitude bands are transformed one at a time (FFT, packing, Legendre
@@ -232,7 +232,7 @@ def _analysis(values: np.ndarray, grid: Grid, lmax: int, fac: np.ndarray) -> np.
             _kernels.analysis_kernel(lmax, 0, M - 1, band.x, band.s, cm, nlive, Er, Ei, Or, Oi,
                                      tri, offs, 0)
     if tri is not None:
-        _kernels.tri_to_square(tri, fac, offs, coef)
+        _kernels.tri_to_square(tri, *fac.args(), offs, coef)
     coef[:, :, 0] = coef[:, :, 0].real
     return coef
 
@@ -277,10 +277,10 @@ def _analysis_blas(F_E, F_O, band, lmax, M, nlive, cm, fac, coef):
             le = np.arange(m, lmax + 1, 2)
             lo = np.arange(m + 1, lmax + 1, 2)
             re = buf[off:off + ne, :n] @ F_E[m, :, :n].T          # (ne, 2K)
-            coef[:, le, m] += (fac[le, m][:, None] * (re[:, :K] + 1j * re[:, K:])).T
+            coef[:, le, m] += (fac.col(le, m)[:, None] * (re[:, :K] + 1j * re[:, K:])).T
             if no:
                 ro = buf[off + ne:off + ne + no, :n] @ F_O[m, :, :n].T
-                coef[:, lo, m] += (fac[lo, m][:, None] * (ro[:, :K] + 1j * ro[:, K:])).T
+                coef[:, lo, m] += (fac.col(lo, m)[:, None] * (ro[:, :K] + 1j * ro[:, K:])).T
 
 
 def _synthesis_blas(c, fac, band, lmax, nlive, cm, FN, FS):
@@ -298,10 +298,10 @@ def _synthesis_blas(c, fac, band, lmax, nlive, cm, FN, FS):
             no = lmax + 1 - m - ne
             le = np.arange(m, lmax + 1, 2)
             lo = np.arange(m + 1, lmax + 1, 2)
-            ae = (c[:, le, m] * fac[le, m]).T                       # (ne, K)
+            ae = (c[:, le, m] * fac.col(le, m)).T                       # (ne, K)
             ge = buf[off:off + ne, :n].T @ np.concatenate([ae.real, ae.imag], axis=1)
             if no:
-                ao = (c[:, lo, m] * fac[lo, m]).T
+                ao = (c[:, lo, m] * fac.col(lo, m)).T
                 go = buf[off + ne:off + ne + no, :n].T @ np.concatenate([ao.real, ao.imag], axis=1)
             else:
                 go = np.zeros_like(ge)
@@ -429,16 +429,53 @@ def analyze(values, grid: Grid, lmax: int | None = None, norm: str = "ortho",
     return Harmonics(coef, norm=norm, condon_shortley=condon_shortley, radius=radius, units=units)
 
 
+class _Factor:
+    """Per-(l, m) factors from one convention to another, kept small.
+
+    For the normalised conventions the factor separates, ``fl[l] * fm[m]``
+    (a per-degree scale and the phase sign); only conversions involving
+    ``"unnorm"`` (which is limited to low degree) hold a full table."""
+
+    def __init__(self, lmax: int, norm_from: str, cs_from: bool, norm_to: str, cs_to: bool):
+        self.lmax = lmax
+        self.fm = np.ones(lmax + 1)
+        if bool(cs_from) != bool(cs_to):
+            self.fm[1::2] = -1.0
+        if "unnorm" in (norm_from, norm_to):
+            g = convert_factor(lmax, norm_from, cs_from, norm_to, cs_to)
+            tri = np.tril(np.ones((lmax + 1, lmax + 1), dtype=bool))
+            if not np.all(np.isfinite(g[tri])) or np.any(g[tri] == 0):
+                raise ValueError(f"unnormalised coefficients to lmax={lmax} leave double range: use "
+                                 "norm='ortho', '4pi' or 'schmidt' (or a lower lmax)")
+            self.full, self.use_full = g, True
+            self.fl = np.ones(lmax + 1)
+        else:
+            self.full, self.use_full = np.ones((1, 1)), False
+            self.fl = _degree_scale(lmax, norm_from) / _degree_scale(lmax, norm_to)
+
+    def args(self):
+        return self.fl, self.fm, self.full, self.use_full
+
+    def col(self, l: np.ndarray, m: int) -> np.ndarray:
+        return self.full[l, m] if self.use_full else self.fl[l] * self.fm[m]
+
+    def array(self) -> np.ndarray:
+        return self.full.copy() if self.use_full else np.outer(self.fl, self.fm)
+
+
+def _degree_scale(lmax: int, norm: str) -> np.ndarray:
+    """Lambda^norm / Lambda^ortho for the normalised conventions (a function of l only)."""
+    l = np.arange(lmax + 1, dtype=np.float64)
+    if norm == "ortho":
+        return np.ones(lmax + 1)
+    if norm == "4pi":
+        return np.full(lmax + 1, np.sqrt(4 * np.pi))
+    return np.sqrt(4 * np.pi / (2 * l + 1))  # schmidt
+
+
 @functools.lru_cache(maxsize=16)
-def _factor(lmax: int, norm_from: str, cs_from: bool, norm_to: str, cs_to: bool) -> np.ndarray:
-    """Cached, checked conversion factors between conventions (read-only)."""
-    g = convert_factor(lmax, norm_from, cs_from, norm_to, cs_to)
-    tri = np.tril(np.ones((lmax + 1, lmax + 1), dtype=bool))
-    if not np.all(np.isfinite(g[tri])) or np.any(g[tri] == 0):
-        raise ValueError(f"unnormalised coefficients to lmax={lmax} leave double range: use "
-                         "norm='ortho', '4pi' or 'schmidt' (or a lower lmax)")
-    g.setflags(write=False)
-    return g
+def _factor(lmax: int, norm_from: str, cs_from: bool, norm_to: str, cs_to: bool) -> _Factor:
+    return _Factor(lmax, norm_from, cs_from, norm_to, cs_to)
 
 
 def _batched(h: Harmonics) -> tuple[np.ndarray, np.ndarray]:
@@ -517,10 +554,11 @@ def synthesize_gradient(h: Harmonics, grid: Grid) -> tuple[np.ndarray, np.ndarra
     # Fourier order m of df/dtheta collects function order m-1 (pass 1) and m+1 (pass 2);
     # each pass re-indexes the coefficients so that the kernel's order is the function's.
     c1 = np.zeros_like(c)
-    c1[:, :, :-1] = c[:, :, 1:] * (fac * up)[None, :, 1:]        # function order mu = m - 1
+    full = fac.array()
+    c1[:, :, :-1] = c[:, :, 1:] * (full * up)[None, :, 1:]       # function order mu = m - 1
     c2 = np.zeros_like(c)
-    c2[:, :, 1:] = -c[:, :, :-1] * (fac * dn)[None, :, :-1]      # function order mu = m + 1
-    one = np.ones((L1, L1))
+    c2[:, :, 1:] = -c[:, :, :-1] * (full * dn)[None, :, :-1]     # function order mu = m + 1
+    one = _factor(lmax, "ortho", False, "ortho", False)
     out = np.empty((2, K) + grid.shape)
     ones = np.ones(L1)
     passes = [(0, c1, one, 0, lmax - 1, +1, ones, 0),                 # d/dtheta from order m - 1
