@@ -159,8 +159,9 @@ def sphex_gaussian_from_b(b: float, lmax: int) -> tuple[np.ndarray, float]:
 
 def test_gaussian_of_a_delta_reproduces_the_kernel():
     # delta at a grid node: its Gauss-grid analysis is exactly the truncated delta
-    # sum_l (2l+1)/(4 pi) P_l(cos psi) (quadrature property); filtering must give the
-    # normalised kernel b exp(-b(1-cos psi)) / (2 pi (1 - exp(-2b))) (closed-form integral)
+    # sum_l (2l+1)/(4 pi) P_l(cos psi) (addition theorem, DLMF 14.30.9; common practice); filtering must give the
+    # normalised kernel b exp(-b(1-cos psi)) / (2 pi (1 - exp(-2b))) (its area integral is 1 in closed
+    # form; common practice)
     lmax = 95
     grid = Grid.gauss(lmax)
     j, k = 30, 17
@@ -203,7 +204,8 @@ def test_cap_high_degree_against_mpmath(radius_deg):
 
 
 def test_cap_closed_forms():
-    # w_1 = (1 + cos psi0)/2 (integral of x); the whole sphere keeps the mean only
+    # w_1 = (1 + cos psi0)/2 (mean of P_1 = x over the cap, an elementary integral; common practice);
+    # the whole sphere keeps the mean only
     assert abs(cap(10.0, 1)[1] - (1 + math.cos(math.radians(10.0))) / 2) < 1e-15
     np.testing.assert_allclose(cap(180.0, 30), np.r_[1.0, np.zeros(30)], atol=1e-14)
 
@@ -384,7 +386,7 @@ def test_poisson_solution_of_a_known_field():
 
 # --------------------------------------------------------------------- gradient
 def test_gradient_of_cos_lat_cos_lon():
-    # f = cos(lat) cos(lon): east = -sin(lon), north = -sin(lat) cos(lon) (calculus)
+    # f = cos(lat) cos(lon): east = -sin(lon), north = -sin(lat) cos(lon) (elementary calculus; common practice)
     for grid in (Grid.gauss(8), Grid.equiangular(18, 36, "poles"),
                  Grid.equiangular(18, 36, "cells"), Grid.equiangular(18, 36, "north")):
         lat, lon = mesh(grid)

@@ -165,7 +165,7 @@ def test_correlation_values(rng):
     w = np.ones(9)
     w[8] = 0.0
     assert np.isnan(correlation(h.filter(w), h)[8])  # no power at degree 8: undefined, NaN
-    # cos(m lon) and sin(m lon) parts of one (l, m) are orthogonal: correlation 0
+    # cos(m lon) and sin(m lon) parts of one (l, m) are orthogonal (common practice): correlation 0
     c = np.zeros((5, 5))
     s = np.zeros((5, 5))
     c[3, 2] = 1.0
@@ -174,6 +174,7 @@ def test_correlation_values(rng):
     hs = Harmonics.from_cos_sin(np.zeros((5, 5)), s)
     assert abs(correlation(hc, hs)[3]) < 1e-15
     # a known mixture: f2 = f1 + g with g orthogonal and of equal power -> 1/sqrt(2)
+    # (correlation of orthogonal components; common practice)
     assert abs(correlation(hc, hc + hs)[3] - 1 / np.sqrt(2)) < 1e-14
 
 

@@ -20,7 +20,10 @@ def _random_harmonics(rng, lmax, batch=(), norm="ortho", cs=True, radius=None, u
 
 
 def _field(lat, lon, lat0=0.0):
-    """A band-limited test field (degree <= 3) written in latitude/longitude."""
+    """A band-limited test field (degree <= 3) written in latitude/longitude.
+
+    Products of sin(lat), cos(lat)^k cos(k lon) of total degree <= 3 lie in the span
+    of the harmonics of degree <= 3 (common practice)."""
     la, lo = np.deg2rad(lat)[:, None], np.deg2rad(lon)[None, :]
     return (1.5 + np.sin(la) + np.cos(la) ** 2 * np.cos(2 * lo - 0.3)
             + np.sin(la) * np.cos(la) ** 2 * np.sin(2 * lo) + np.cos(la) ** 3 * np.cos(3 * lo))
