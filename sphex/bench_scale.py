@@ -51,17 +51,15 @@ def _analyze_block(values: np.ndarray, grid: Any) -> np.ndarray:
     return analyze(values, grid).coef
 
 
-def _best(fn, repeat: int) -> float:
-    best = math.inf
-    for _ in range(repeat):
-        t = time.perf_counter()
-        fn()
-        best = min(best, time.perf_counter() - t)
-    return best
+def _load() -> float | None:
+    try:
+        return float(os.getloadavg()[0])
+    except OSError:
+        return None
 
 
 def throughput(lmax: int = LMAX, fields: int = FIELDS, block: int = BLOCK,
-               repeat: int = 3) -> dict:
+               repeat: int = 5) -> dict:
     """Fields per second for several (dask threads, numba threads) settings."""
     import dask
     import dask.array as dsa
@@ -70,6 +68,7 @@ def throughput(lmax: int = LMAX, fields: int = FIELDS, block: int = BLOCK,
     from sphex import Grid, Harmonics, synthesize
     from sphex._scale import cpu_count, in_tasks, thread_pool
 
+    load0 = _load()
     grid = Grid.gauss(lmax)
     rng = np.random.default_rng(255)
     coef = rng.standard_normal((fields, lmax + 1, lmax + 1)) \
@@ -90,12 +89,7 @@ def throughput(lmax: int = LMAX, fields: int = FIELDS, block: int = BLOCK,
     err = float(np.abs(check - coef).max() / np.abs(coef).max())
     cores = cpu_count()
     top = numba.config.NUMBA_NUM_THREADS
-    rows = []
-
-    def row(label: str, dask_threads: int | None, numba_threads: int | None, fn) -> None:
-        t = _best(fn, repeat)
-        rows.append({"setting": label, "dask_threads": dask_threads,
-                     "numba_threads": numba_threads, "seconds": t, "fields_per_s": fields / t})
+    settings = []
 
     def on_pool(n: int, k: int | None, arr) -> Any:
         def go() -> None:
@@ -103,21 +97,35 @@ def throughput(lmax: int = LMAX, fields: int = FIELDS, block: int = BLOCK,
                 arr.compute()
         return go
 
-    row("dask 1 thread, numba 1 per task", 1, 1, on_pool(1, 1, plain))
-    row("dask 2 threads, numba 1 per task", 2, 1, on_pool(2, 1, plain))
-    rule1 = max(1, min(cores // 1, top))
-    rule2 = max(1, min(cores // 2, top))
-    row(f"dask 1 thread, sphex rule ({rule1} numba)", 1, rule1, on_pool(1, None, ruled))
-    row(f"dask 2 threads, sphex rule ({rule2} numba)", 2, rule2, on_pool(2, None, ruled))
-    row(f"dask 2 threads, numba {top} per task (no rule)", 2, top, on_pool(2, top, plain))
-
     def main_thread() -> None:
         numba.set_num_threads(top)
         _analyze_block(values, grid)
 
-    row(f"one call, main thread, numba {top}", None, top, main_thread)
+    rule1 = max(1, min(cores // 1, top))
+    rule2 = max(1, min(cores // 2, top))
+    settings = [
+        ("dask 1 thread, numba 1 per task", 1, 1, on_pool(1, 1, plain)),
+        ("dask 2 threads, numba 1 per task", 2, 1, on_pool(2, 1, plain)),
+        (f"dask 1 thread, sphex rule ({rule1} numba)", 1, rule1, on_pool(1, None, ruled)),
+        (f"dask 2 threads, sphex rule ({rule2} numba)", 2, rule2, on_pool(2, None, ruled)),
+        (f"dask 2 threads, numba {top} per task (no rule)", 2, top, on_pool(2, top, plain)),
+        (f"one call, main thread, numba {top}", None, top, main_thread),
+    ]
+    best = [(math.inf, 0.0)] * len(settings)
+    # interleaved repeats: a change in the machine's load hits every setting alike
+    for _ in range(repeat):
+        for i, (_, _, _, fn) in enumerate(settings):
+            w0, c0 = time.perf_counter(), time.process_time()
+            fn()
+            w, c = time.perf_counter() - w0, time.process_time() - c0
+            if w < best[i][0]:
+                best[i] = (w, c)
+    rows = [{"setting": label, "dask_threads": nd, "numba_threads": nn, "seconds": w,
+             "fields_per_s": fields / w, "cpu_over_wall": c / w}
+            for (label, nd, nn, _), (w, c) in zip(settings, best)]
     one, two = rows[0]["fields_per_s"], rows[1]["fields_per_s"]
     return {"lmax": lmax, "fields": fields, "block": block, "cores": cores,
+            "load_before": load0, "load_after": _load(),
             "numba_max_threads": top, "roundtrip_error": err, "rows": rows,
             "scaling_2_over_1": two / one, "scaling_target": 1.8}
 
@@ -235,7 +243,7 @@ def memory(nbytes: float = FILE_BYTES, chunk: int | None = None, compare: bool =
 
 
 # ----------------------------------------------------------------------------
-def run(quick: bool = False, repeat: int = 3, memory_check: bool = True,
+def run(quick: bool = False, repeat: int = 5, memory_check: bool = True,
         compare: bool = True, chunk: int | None = None) -> dict:
     """Both measurements as one dict (what ``sphex bench --scale`` reports)."""
     res: dict[str, Any] = {"throughput": throughput(lmax=127 if quick else LMAX,
@@ -250,12 +258,18 @@ def format_report(res: dict) -> str:
     t = res["throughput"]
     lines = [f"dask throughput: {t['fields']} fields at L={t['lmax']} in chunks of {t['block']}, "
              f"{t['cores']} cores (round-trip error {t['roundtrip_error']:.1e})",
-             f"  {'setting':<46} {'seconds':>8} {'fields/s':>9}"]
+             f"  {'setting':<46} {'seconds':>8} {'fields/s':>9} {'cpu/wall':>9}"]
     for r in t["rows"]:
-        lines.append(f"  {r['setting']:<46} {r['seconds']:>8.3f} {r['fields_per_s']:>9.1f}")
+        lines.append(f"  {r['setting']:<46} {r['seconds']:>8.3f} {r['fields_per_s']:>9.1f} "
+                     f"{r['cpu_over_wall']:>9.2f}")
     ok = "meets" if t["scaling_2_over_1"] >= t["scaling_target"] else "misses"
     lines.append(f"  2 dask threads / 1 (one numba thread each): {t['scaling_2_over_1']:.2f}x "
                  f"({ok} the {t['scaling_target']}x target)")
+    lines.append("  (cpu/wall is process CPU time over wall time: above 1 means the threads ran "
+                 "at once, which a held GIL would prevent)")
+    if t.get("load_before") is not None:
+        lines.append(f"  load average before/after: {t['load_before']:.2f} / {t['load_after']:.2f} "
+                     f"on {t['cores']} cores (other programs running lower these figures)")
     if "memory" in res:
         m = res["memory"]
         s = m["streamed"]
@@ -281,7 +295,7 @@ def main(argv: list[str] | None = None) -> int:
     p = argparse.ArgumentParser(prog="sphex bench --scale", description=__doc__.splitlines()[0],
                                 epilog="example: python -m sphex.bench_scale --no-compare")
     p.add_argument("--quick", action="store_true", help="L=127 and a 0.13 GB file")
-    p.add_argument("--repeat", type=int, default=3, help="best of this many runs (default 3)")
+    p.add_argument("--repeat", type=int, default=5, help="best of this many runs (default 5)")
     p.add_argument("--no-memory", action="store_true", help="skip the 1.3 GB memory run")
     p.add_argument("--no-compare", action="store_true",
                    help="skip the in-memory comparison run")
