@@ -126,7 +126,7 @@ def whole_fields(obj: Any, dims: Sequence[Hashable], *, split: str = "merge",
     """
     if split not in ("merge", "raise"):
         raise ValueError(f"split must be 'merge' or 'raise', not {split!r}")
-    chunks = obj.chunksizes if hasattr(obj, "chunksizes") else None
+    chunks = _chunk_sizes(obj)
     if not chunks:
         return obj
     broken = [d for d in dims if d in chunks and len(chunks[d]) > 1]
@@ -162,6 +162,18 @@ def whole_fields(obj: Any, dims: Sequence[Hashable], *, split: str = "merge",
     warnings.warn(f"{head}; sphex rechunked it with {fix} (do that yourself to silence this "
                   "warning)", SplitFieldWarning, stacklevel=3)
     return obj.chunk(spec)
+
+
+def _chunk_sizes(obj: Any) -> dict[Hashable, tuple[int, ...]]:
+    """Chunk sizes per dimension; for a Dataset the finest split of any variable."""
+    if hasattr(obj, "data_vars"):
+        out: dict[Hashable, tuple[int, ...]] = {}
+        for v in obj.data_vars.values():
+            for d, c in (v.chunksizes or {}).items():
+                if len(c) > len(out.get(d, ())):
+                    out[d] = tuple(c)
+        return out
+    return dict(obj.chunksizes or {})
 
 
 def _itemsize(obj: Any) -> int:
