@@ -521,7 +521,6 @@ class _Reporter:
         self.after = after
         self.start = time.monotonic()
         self.tty = bool(getattr(self.stream, "isatty", lambda: False)())
-        self.bar = None
         self.last_decile = -1
         self.last_draw = 0.0
         self.shown = False
@@ -531,8 +530,8 @@ class _Reporter:
             return
         now = time.monotonic()
         elapsed = now - self.start
-        if elapsed < self.after and frac < 1.0:
-            return
+        if elapsed < self.after and not self.shown:
+            return  # short runs stay quiet
         done = int(round(min(max(frac, 0.0), 1.0) * self.total))
         if self.tty:
             if now - self.last_draw < 0.2 and frac < 1.0:
@@ -549,7 +548,7 @@ class _Reporter:
             self.shown = True
             return
         decile = int(frac * 10 + 1e-9)
-        if decile > self.last_decile and (frac < 1.0 or self.shown):
+        if decile > self.last_decile:
             self.last_decile = decile
             self.stream.write(f"{self.label}: {done}/{self.total} fields ({100 * frac:.0f} %), "
                               f"{elapsed:.1f} s\n")

@@ -316,10 +316,12 @@ def test_progress_lines_in_logs_and_a_bar_on_terminals():
     assert term.getvalue().startswith("\rx |" + "=" * 28 + "| 10/10 fields")
     assert term.getvalue().endswith("\n")
     quiet = io.StringIO()
-    rep = _scale._Reporter(10, "x", stream=quiet)  # short run: waits two seconds first
-    rep.fraction(0.5)
-    rep.close()
-    assert quiet.getvalue() == ""
+    for stream in (quiet, Tty()):  # a run shorter than two seconds shows nothing
+        rep = _scale._Reporter(10, "x", stream=stream)
+        rep.fraction(0.5)
+        rep.fraction(1.0)
+        rep.close()
+        assert stream.getvalue() == ""
 
 
 # ----------------------------------------------------------------------------
