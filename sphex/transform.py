@@ -214,7 +214,11 @@ def _analysis(values: np.ndarray, grid: Grid, lmax: int, fac: "_Factor") -> np.n
     cm = sectoral_table(lmax)
     offs = _tri_offsets(lmax)
     coef = np.zeros((K, lmax + 1, lmax + 1), dtype=np.complex128)
-    tri = None if K >= BATCH_BLAS else np.zeros((K, int(offs[-1])), dtype=np.complex128)
+    ntri = int(offs[-1])
+    if K >= BATCH_BLAS:
+        R = np.zeros((ntri, 2 * K))
+    else:
+        tri = np.zeros((K, ntri), dtype=np.complex128)
     for b0, b1 in _bands(pairs.n, M):
         band = _Band(pairs, b0, b1)
         block = np.asarray(values[:, band.rows, :], dtype=np.float64)
@@ -227,12 +231,14 @@ def _analysis(values: np.ndarray, grid: Grid, lmax: int, fac: "_Factor") -> np.n
         del F
         nlive = np.clip(live - b0, 0, band.n)
         if K >= BATCH_BLAS:
-            _analysis_blas(E, O, band, lmax, M, nlive, cm, fac, coef)
+            _analysis_blas(E, O, band, lmax, M, nlive, cm, R)
         else:
             _kernels.analysis_kernel(lmax, 0, M - 1, band.x, band.s, cm, nlive, Er, Ei, Or, Oi,
                                      tri, offs, 0)
-    if tri is not None:
-        _kernels.tri_to_square(tri, *fac.args(), offs, coef)
+    if K >= BATCH_BLAS:
+        tri = np.ascontiguousarray((R[:, :K] + 1j * R[:, K:]).T)
+        del R
+    _kernels.tri_to_square(tri, *fac.args(), offs, coef)
     coef[:, :, 0] = coef[:, :, 0].real
     return coef
 
@@ -262,9 +268,12 @@ def _rows_for(lmax, m0, m1, band, cm, nlive, shift=0):
     return buf, offs
 
 
-def _analysis_blas(F_E, F_O, band, lmax, M, nlive, cm, fac, coef):
-    """Batched analysis of one band: E/O (M, 2K, n) stacked real/imag, through BLAS."""
-    K = coef.shape[0]
+def _analysis_blas(F_E, F_O, band, lmax, M, nlive, cm, R):
+    """Batched analysis of one band through BLAS.
+
+    F_E, F_O: (M, 2K, n) even/odd sums, real parts then imaginary parts.
+    R: (ntri, 2K) real accumulator in order-by-order storage."""
+    toffs = _tri_offsets(lmax)
     for m0, m1 in _order_chunks(lmax, 0, M - 1, band.n):
         buf, offs = _rows_for(lmax, m0, m1, band, cm, nlive)
         for m in range(m0, m1 + 1):
@@ -272,21 +281,24 @@ def _analysis_blas(F_E, F_O, band, lmax, M, nlive, cm, fac, coef):
             if n == 0:
                 continue
             off = offs[m - m0]
-            ne = (lmax - m) // 2 + 1
-            no = lmax + 1 - m - ne
-            le = np.arange(m, lmax + 1, 2)
-            lo = np.arange(m + 1, lmax + 1, 2)
-            re = buf[off:off + ne, :n] @ F_E[m, :, :n].T          # (ne, 2K)
-            coef[:, le, m] += (fac.col(le, m)[:, None] * (re[:, :K] + 1j * re[:, K:])).T
-            if no:
-                ro = buf[off + ne:off + ne + no, :n] @ F_O[m, :, :n].T
-                coef[:, lo, m] += (fac.col(lo, m)[:, None] * (ro[:, :K] + 1j * ro[:, K:])).T
+            t = toffs[m]
+            nrow = lmax + 1 - m
+            ne = (nrow + 1) // 2
+            R[t:t + nrow:2] += buf[off:off + ne, :n] @ F_E[m, :, :n].T
+            if nrow > ne:
+                R[t + 1:t + nrow:2] += buf[off + ne:off + nrow, :n] @ F_O[m, :, :n].T
 
 
-def _synthesis_blas(c, fac, band, lmax, nlive, cm, FN, FS):
-    """Batched synthesis of one band into FN/FS (K, n, M), through BLAS."""
-    K = c.shape[0]
+def _synthesis_blas(Rs, band, lmax, nlive, cm, FN, FS):
+    """Batched synthesis of one band into FN/FS (K, n, M) through BLAS.
+
+    Rs: (ntri, 2K) real-stacked coefficients (real parts, then imaginary) in
+    order-by-order storage, already in the kernels' convention."""
+    K = Rs.shape[1] // 2
     M = lmax + 1
+    toffs = _tri_offsets(lmax)
+    GN = np.zeros((M, band.n, 2 * K))
+    GS = np.zeros((M, band.n, 2 * K))
     for m0, m1 in _order_chunks(lmax, 0, M - 1, band.n):
         buf, offs = _rows_for(lmax, m0, m1, band, cm, nlive)
         for m in range(m0, m1 + 1):
@@ -294,19 +306,18 @@ def _synthesis_blas(c, fac, band, lmax, nlive, cm, FN, FS):
             if n == 0:
                 continue
             off = offs[m - m0]
-            ne = (lmax - m) // 2 + 1
-            no = lmax + 1 - m - ne
-            le = np.arange(m, lmax + 1, 2)
-            lo = np.arange(m + 1, lmax + 1, 2)
-            ae = (c[:, le, m] * fac.col(le, m)).T                       # (ne, K)
-            ge = buf[off:off + ne, :n].T @ np.concatenate([ae.real, ae.imag], axis=1)
-            if no:
-                ao = (c[:, lo, m] * fac.col(lo, m)).T
-                go = buf[off + ne:off + ne + no, :n].T @ np.concatenate([ao.real, ao.imag], axis=1)
-            else:
-                go = np.zeros_like(ge)
-            FN[:, :n, m] = (ge[:, :K] + go[:, :K] + 1j * (ge[:, K:] + go[:, K:])).T
-            FS[:, :n, m] = (ge[:, :K] - go[:, :K] + 1j * (ge[:, K:] - go[:, K:])).T
+            t = toffs[m]
+            nrow = lmax + 1 - m
+            ne = (nrow + 1) // 2
+            ge = buf[off:off + ne, :n].T @ Rs[t:t + nrow:2]
+            GN[m, :n] = ge
+            GS[m, :n] = ge
+            if nrow > ne:
+                go = buf[off + ne:off + nrow, :n].T @ Rs[t + 1:t + nrow:2]
+                GN[m, :n] += go
+                GS[m, :n] -= go
+    FN += (GN[..., :K] + 1j * GN[..., K:]).transpose(2, 1, 0)
+    FS += (GS[..., :K] + 1j * GS[..., K:]).transpose(2, 1, 0)
 
 
 def _synthesis_passes(grid: Grid, K: int, M_out: int, passes, out: np.ndarray) -> None:
@@ -321,7 +332,8 @@ def _synthesis_passes(grid: Grid, K: int, M_out: int, passes, out: np.ndarray) -
     cm = sectoral_table(lmax)
     offs = _tri_offsets(lmax)
     blas = [K >= BATCH_BLAS and (p[3], p[4], p[5], p[7]) == (0, lmax, 0, 0) for p in passes]
-    tris = [None if b else _to_tri(p[1], p[2], p[3], p[4]) for p, b in zip(passes, blas)]
+    tris = [_to_tri(p[1], p[2], p[3], p[4]) for p in passes]
+    tris = [np.concatenate([t.real.T, t.imag.T], axis=1) if b else t for t, b in zip(tris, blas)]
     ntarget = out.shape[0]
     for b0, b1 in _bands(pairs.n, M_out):
         band = _Band(pairs, b0, b1)
@@ -332,7 +344,7 @@ def _synthesis_passes(grid: Grid, K: int, M_out: int, passes, out: np.ndarray) -
                 continue
             if use_blas:
                 nlive = np.clip(_live(grid, lmax, 0, lmax, 0) - b0, 0, band.n)
-                _synthesis_blas(coef, fac, band, lmax, nlive, cm, FN[target], FS[target])
+                _synthesis_blas(tri, band, lmax, nlive, cm, FN[target], FS[target])
                 continue
             nlive = np.clip(_live(grid, lmax, mlo, mhi, shift) - b0, 0, band.n)
             _kernels.synthesis_kernel(lmax, mlo, mhi, band.x, band.s, cm, nlive, tri, offs,
