@@ -40,7 +40,10 @@ of tasks that run at once in this process:
   ``1..NUMBA_NUM_THREADS``).
 
 Calls from the main thread (plain numpy input, or dask's synchronous
-scheduler) are left alone: numba uses every core.  numba's thread count is
+scheduler) are left alone: numba uses every core.  BLAS threads are
+process-wide, so they follow the rule only inside :func:`thread_pool` (which
+the streaming analysis uses) and only when ``threadpoolctl`` is installed;
+distributed workers get ``OPENBLAS_NUM_THREADS=1`` from their nanny.  numba's thread count is
 thread-local, so the setting is made on entry of each task and restored on
 exit; nothing global changes, and worker processes need no set-up (the
 wrapper and its function pickle by reference).
@@ -326,6 +329,21 @@ def task_function(func: Callable[..., Any], *objs: Any) -> Callable[..., Any]:
     return func
 
 
+def _blas_limit(n: int) -> Any:
+    """Limit BLAS threads process-wide to ``n`` while the context is open, if possible.
+
+    BLAS (OpenBLAS, used by the transform for large batches) keeps one
+    process-wide thread count, so it cannot follow a per-task rule; inside a
+    :func:`thread_pool` it is set to the same per-task count.  This needs the
+    optional ``threadpoolctl`` package; without it BLAS keeps its own setting.
+    """
+    try:
+        from threadpoolctl import threadpool_limits
+    except ImportError:
+        return contextlib.nullcontext()
+    return threadpool_limits(limits=n, user_api="blas")
+
+
 def _init_pool_thread(n: int) -> None:
     import numba
 
@@ -372,7 +390,7 @@ def thread_pool(workers: int | None = None, numba_threads: int | None = None) ->
                               initializer=_init_pool_thread, initargs=(inner,))
     try:
         with dask.config.set({"scheduler": "threads", "pool": pool, "num_workers": n,
-                              "sphex.task-threads": inner}):
+                              "sphex.task-threads": inner}), _blas_limit(inner):
             yield pool
     finally:
         pool.shutdown(wait=True)
