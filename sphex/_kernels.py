@@ -177,19 +177,23 @@ def gauss_legendre(n: int):
 # ---------------------------------------------------------------------------
 # Recursion pieces
 # ---------------------------------------------------------------------------
-@nb.njit(inline="always", **_JIT)
+@nb.njit(inline="always", fastmath=_FM, **_JIT)
 def _recursion_coeffs(m, lmax, a, c):
-    """P_l = a_l x P_{l-1} - c_l P_{l-2} for l >= m + 2 (fully normalised)."""
+    """P_l = a_l x P_{l-1} - c_l P_{l-2} for l >= m + 1 (fully normalised).
+
+    a_l = sqrt((4 l^2 - 1) / ((l - m)(l + m))), and c_l = a_l / a_{l-1}, which
+    equals a_l sqrt(((l-1)^2 - m^2) / (4 (l-1)^2 - 1)) with one division
+    instead of a second square root; c_{m+1} = 0 (no P_{m-1})."""
     a[m] = 0.0
     c[m] = 0.0
+    mf = float(m)
+    for l in range(m + 1, lmax + 1):
+        lf = float(l)
+        a[l] = math.sqrt((4.0 * lf * lf - 1.0) / ((lf - mf) * (lf + mf)))
     if m + 1 <= lmax:
-        a[m + 1] = math.sqrt(2.0 * m + 3.0)
         c[m + 1] = 0.0
     for l in range(m + 2, lmax + 1):
-        lf = float(l)
-        den = (lf - m) * (lf + m)
-        a[l] = math.sqrt((4.0 * lf * lf - 1.0) / den)
-        c[l] = a[l] * math.sqrt(((lf - 1.0) * (lf - 1.0) - m * m) / (4.0 * (lf - 1.0) * (lf - 1.0) - 1.0))
+        c[l] = a[l] / a[l - 1]
 
 
 @nb.njit(inline="always", **_JIT)

@@ -155,7 +155,7 @@ def _live(grid: Grid, lmax: int, mlo: int, mhi: int, shift: int) -> np.ndarray:
     return out
 
 
-BAND_BYTES = 1 << 24  # about 16 MB per packed array of a latitude band
+BAND_BYTES = 1 << 25  # about 32 MB per packed array of a latitude band
 
 
 def _bands(npairs: int, M: int) -> list[tuple[int, int]]:
