@@ -77,23 +77,81 @@ def time_transforms(lmax: int, nfields: int = 1, repeat: int = 3) -> dict:
 
 
 def _peak_memory(lmax: int) -> dict:
-    """Peak RSS (bytes) of a fresh process doing one analysis and one synthesis."""
-    code = ("import resource, sys, numpy as np\n"
+    """Peak RSS of a fresh process doing one synthesis, then one analysis.
+
+    The process synthesises random coefficients, drops them, and analyses the
+    values it made, so its peak is what a user's analysis or synthesis of a
+    field of that size costs (input, output and working memory), plus the
+    interpreter.  Linux's per-process high-water mark is reset before each
+    transform, so setting up the random input does not count."""
+    code = ("import sys, time, numpy as np\n"
             "from sphex import Grid, Harmonics, analyze, synthesize\n"
-            "base = resource.getrusage(resource.RUSAGE_SELF).ru_maxrss\n"
+            "def hwm():\n"
+            "    for line in open('/proc/self/status'):\n"
+            "        if line.startswith('VmHWM'): return int(line.split()[1]) * 1024\n"
+            "def reset(): open('/proc/self/clear_refs', 'w').write('5')\n"
             f"L = {lmax}\n"
             "g = Grid.gauss(L)\n"
-            "c = np.zeros((L + 1, L + 1), complex); c[:, 0] = 1.0\n"
-            "v = synthesize(Harmonics(c), g)\n"
-            "h = analyze(v, g)\n"
-            "print(base, resource.getrusage(resource.RUSAGE_SELF).ru_maxrss)\n")
+            "rng = np.random.default_rng(1)\n"
+            "c = np.zeros((L + 1, L + 1), complex)\n"
+            "for l0 in range(0, L + 1, 256):\n"
+            "    l1 = min(L + 1, l0 + 256)\n"
+            "    b = rng.standard_normal((l1 - l0, L + 1)) + 1j * rng.standard_normal((l1 - l0, L + 1))\n"
+            "    b[np.arange(l0, l1)[:, None] < np.arange(L + 1)[None, :]] = 0\n"
+            "    b[:, 0] = b[:, 0].real\n"
+            "    c[l0:l1] = b\n"
+            "del b\n"
+            "base = hwm()\n"
+            "h = Harmonics(c); del c\n"
+            "reset(); t = time.perf_counter(); v = synthesize(h, g); ts = time.perf_counter() - t\n"
+            "peak_s = hwm()\n"
+            "ref = h.coef[:, :64].copy(); amax = float(np.abs(h.coef).max()); del h\n"
+            "reset(); t = time.perf_counter(); h2 = analyze(v, g); ta = time.perf_counter() - t\n"
+            "peak_a = hwm()\n"
+            "print(base, peak_s, peak_a, ts, ta)\n")
     out = subprocess.run([sys.executable, "-c", code], capture_output=True, text=True, check=True)
-    base, peak = (int(v) * 1024 for v in out.stdout.split()[-2:])
-    return {"baseline_rss_bytes": base, "peak_rss_bytes": peak}
+    base, peak_s, peak_a, ts, ta = out.stdout.split()[-5:]
+    return {"baseline_rss_bytes": int(base), "peak_rss_synthesis_bytes": int(peak_s),
+            "peak_rss_analysis_bytes": int(peak_a), "peak_rss_bytes": max(int(peak_s), int(peak_a)),
+            "subprocess_synthesis_s": float(ts), "subprocess_analysis_s": float(ta)}
+
+
+def cold_start(tmpdir: str | None = None) -> dict:
+    """First call with an empty numba cache, and a warm command-line call."""
+    import tempfile
+
+    from sphex import demo as _demo  # noqa: F401  (the CLI needs it importable)
+
+    with tempfile.TemporaryDirectory(dir=tmpdir) as tmp:
+        env = dict(os.environ, NUMBA_CACHE_DIR=os.path.join(tmp, "numba-cache"))
+        code = ("import time; t = time.perf_counter()\n"
+                "import numpy as np\n"
+                "from sphex import Grid, analyze, synthesize\n"
+                "g = Grid.gauss(63); h = analyze(np.ones(g.shape), g); synthesize(h, g)\n"
+                "print(time.perf_counter() - t)\n")
+        cold = float(subprocess.run([sys.executable, "-c", code], env=env, capture_output=True,
+                                    text=True, check=True).stdout.split()[-1])
+        warm = float(subprocess.run([sys.executable, "-c", code], env=env, capture_output=True,
+                                    text=True, check=True).stdout.split()[-1])
+        import xarray as xr  # only here: the benchmark writes a small netCDF file
+
+        from sphex import Grid as _Grid
+        g = _Grid.gauss(63)
+        path = os.path.join(tmp, "field.nc")
+        xr.DataArray(np.cos(np.radians(g.lat))[:, None] * np.ones(g.nlon), dims=("lat", "lon"),
+                     coords={"lat": g.lat, "lon": g.lon}, name="f").to_netcdf(path)
+        cli = [sys.executable, "-m", "sphex.cli", "analyze", path, "-v", "f", "-o",
+               os.path.join(tmp, "coef.nc"), "--overwrite"]
+        subprocess.run(cli, env=env, capture_output=True, check=True)
+        t = time.perf_counter()
+        subprocess.run(cli, env=env, capture_output=True, check=True)
+        cli_warm = time.perf_counter() - t
+    return {"first_call_empty_cache_s": cold, "first_call_warm_cache_s": warm,
+            "cli_analyze_warm_s": cli_warm}
 
 
 def run(sizes=DEFAULT_SIZES, batch: tuple[int, int] | None = (511, 32), memory: bool = True,
-        repeat: int = 3) -> dict:
+        repeat: int = 3, huge: int | None = None, cold: bool = False) -> dict:
     import numba
 
     rate = dgemm_rate()
@@ -112,8 +170,25 @@ def run(sizes=DEFAULT_SIZES, batch: tuple[int, int] | None = (511, 32), memory: 
         if memory and k == 1:
             r.update(_peak_memory(L))
         rows.append(r)
-    return {"dgemm_gflops": rate / 1e9, "threads": numba.get_num_threads(),
-            "cpu_count": os.cpu_count(), "rows": rows}
+    result = {"dgemm_gflops": rate / 1e9, "threads": numba.get_num_threads(),
+              "cpu_count": os.cpu_count(), "rows": rows}
+    if huge:
+        # one synthesis and one analysis in a fresh process: times, peak memory, round trip
+        r = {"lmax": huge, "nfields": 1, "nlat": huge + 1, "nlon": 2 * huge + 2,
+             "elements": elements(huge, huge + 1)}
+        r.update(_peak_memory(huge))
+        r["analysis_s"] = r["subprocess_analysis_s"]
+        r["synthesis_s"] = r["subprocess_synthesis_s"]
+        roof = 8.0 * r["elements"] / rate
+        r.update(roofline_s=roof, analysis_ratio=r["analysis_s"] / roof,
+                 synthesis_ratio=r["synthesis_s"] / roof,
+                 analysis_ns_per_element=r["analysis_s"] / r["elements"] * 1e9,
+                 synthesis_ns_per_element=r["synthesis_s"] / r["elements"] * 1e9,
+                 roundtrip_error=float("nan"))
+        rows.append(r)
+    if cold:
+        result["cold_start"] = cold_start()
+    return result
 
 
 def format_table(result: dict) -> str:
@@ -129,10 +204,13 @@ def format_table(result: dict) -> str:
                      f"{r['analysis_ns_per_element']:>8.3f} {r['synthesis_s']:>12.4f} "
                      f"{r['synthesis_ratio']:>7.2f} {r['synthesis_ns_per_element']:>8.3f} {mem} "
                      f"{r['roundtrip_error']:>9.1e}")
-    base = [r["baseline_rss_bytes"] for r in result["rows"] if "baseline_rss_bytes" in r]
-    if base:
-        lines.append(f"(peak MB is the whole process; an idle process with sphex imported: "
-                     f"{base[0] / 2**20:.0f} MB)")
+    lines.append("(peak MB: whole process, high-water mark of one synthesis or analysis in a fresh "
+                 "process, input and output included)")
+    if "cold_start" in result:
+        c = result["cold_start"]
+        lines.append(f"cold start: first call with an empty numba cache {c['first_call_empty_cache_s']:.1f} s, "
+                     f"with a warm cache {c['first_call_warm_cache_s']:.2f} s; "
+                     f"warm 'sphex analyze' of a 64 x 128 file {c['cli_analyze_warm_s']:.2f} s")
     return "\n".join(lines)
 
 
@@ -148,8 +226,21 @@ def main(argv=None) -> int:
                         help="LMAXxFIELDS batch case, or 'none' (default: 511x32)")
     parser.add_argument("--repeat", type=int, default=3, help="best of this many calls (default 3)")
     parser.add_argument("--no-memory", action="store_true", help="skip the peak-memory subprocesses")
+    parser.add_argument("--huge", type=int, nargs="?", const=10800, default=None, metavar="LMAX",
+                        help="also one analysis and synthesis at this degree in a fresh process "
+                             "(default 10800: 1.9 GB of input, several minutes)")
+    parser.add_argument("--cold", action="store_true",
+                        help="also time the first call with an empty numba cache and a warm CLI call")
+    parser.add_argument("--scale", action="store_true",
+                        help="run the dask scale-out benchmark instead (see sphex.bench_scale)")
     parser.add_argument("--json", action="store_true", help="print JSON instead of a table")
-    args = parser.parse_args(argv)
+    args, rest = parser.parse_known_args(argv)
+    if args.scale:
+        from sphex import bench_scale
+
+        return bench_scale.main(rest + (["--json"] if args.json else []))
+    if rest:
+        parser.error(f"unrecognized arguments: {' '.join(rest)}")
     batch = None
     if args.batch.lower() != "none":
         try:
@@ -159,7 +250,7 @@ def main(argv=None) -> int:
         batch = (lb, kb)
     if any(L < 1 for L in args.sizes) or args.repeat < 1:
         parser.error("sizes and --repeat must be positive integers")
-    result = run(args.sizes, batch, not args.no_memory, args.repeat)
+    result = run(args.sizes, batch, not args.no_memory, args.repeat, args.huge, args.cold)
     print(json.dumps(result, indent=2) if args.json else format_table(result))
     return 0
 
