@@ -27,9 +27,38 @@ degree up to ``lmax`` all more polar latitudes are skipped.
 from __future__ import annotations
 
 import math
+import os
+import sys
 
-import numba as nb
-import numpy as np
+
+def _prefer_wide_vectors() -> None:
+    """Let LLVM use 512-bit vectors on CPUs that have them.
+
+    LLVM's tuning for recent x86 server cores prefers 256-bit vectors even
+    where AVX-512 exists; for these kernels the full width is about 1.3-1.5x
+    faster.  This has to be decided before numba is first imported, so it is
+    skipped when numba is already loaded, when NUMBA_CPU_FEATURES is set by the
+    user, or when SPHEX_WIDE_VECTORS=0.
+    """
+    if (os.environ.get("SPHEX_WIDE_VECTORS", "1") == "0" or "numba" in sys.modules
+            or "NUMBA_CPU_FEATURES" in os.environ or "NUMBA_CPU_NAME" in os.environ):
+        return
+    try:
+        import llvmlite.binding as llvm
+
+        features = llvm.get_host_cpu_features()
+        if not features.get("avx512f", False):
+            return
+        os.environ["NUMBA_CPU_NAME"] = llvm.get_host_cpu_name()
+        os.environ["NUMBA_CPU_FEATURES"] = features.flatten() + ",-prefer-256-bit"
+    except Exception:  # pragma: no cover - any failure keeps numba's defaults
+        return
+
+
+_prefer_wide_vectors()
+
+import numba as nb  # noqa: E402
+import numpy as np  # noqa: E402
 
 _JIT = dict(nogil=True, cache=True)
 _FM = {"contract", "reassoc", "nsz", "arcp"}

@@ -95,6 +95,22 @@ def norm_scale(lmax: int, norm: str) -> np.ndarray:
     return f
 
 
+def _norm_column(lmax: int, m: int, norm: str) -> np.ndarray:
+    """Column m of :func:`norm_scale`, degrees m..lmax, without the full table."""
+    l = np.arange(m, lmax + 1, dtype=np.float64)
+    if norm == "ortho":
+        return np.ones(l.size)
+    if norm == "4pi":
+        return np.full(l.size, np.sqrt(4 * np.pi))
+    if norm == "schmidt":
+        return np.sqrt(4 * np.pi / (2 * l + 1))
+    from scipy.special import gammaln
+
+    with np.errstate(over="ignore", invalid="ignore"):
+        return np.exp(-0.5 * (np.log(2 * l + 1) - np.log(4 * np.pi)
+                              + gammaln(l - m + 1) - gammaln(l + m + 1)))
+
+
 def _prepare_colat(colat):
     colat = np.asarray(colat, dtype=np.float64)
     if colat.ndim == 0:
@@ -128,7 +144,7 @@ def _order_values(m, lmax, colat, norm, condon_shortley, want_deriv):
     dout = np.empty((lmax + 1 - m, x.size)) if want_deriv else np.empty((1, 1))
     _kernels.legendre_order(m, lmax, x, s, sectoral_table(lmax)[m], out, dout, want_deriv)
     res = dout if want_deriv else out
-    scale = norm_scale(lmax, norm)[m:, m]
+    scale = _norm_column(lmax, m, norm)
     if norm == "unnorm" and not np.all(np.isfinite(scale)):
         raise ValueError(f"unnormalised functions of order {m} overflow double precision below degree "
                          f"{lmax}: use norm='ortho', '4pi' or 'schmidt' at this degree")
