@@ -870,58 +870,6 @@ def pack_pairs(F, north, south, wn, ws, scale, Er, Ei, Or, Oi):
                 Oi[m, kk, p] = o.imag
 
 
-@nb.njit(parallel=True, fastmath=_FM, **_JIT)
-def legendre_rows(lmax, mlo, mhi, x, s, cm, live, buf, offs, shift):
-    """Write Lambda_lm (ortho, no phase) of orders mlo..mhi into matrix rows.
-
-    Order m owns rows offs[m - mlo] onward: first its even degrees l - m =
-    0, 2, ..., then its odd ones, each row over the latitudes of the band
-    (zero beyond the live ones and for latitudes still in scaled range).  The
-    batched transforms contract these rows with BLAS matrix products.
-    """
-    J = x.size
-    nm = mhi - mlo + 1
-    for i in nb.prange(nm):
-        m = _order_of(i, nm, mlo)
-        mi = m - mlo
-        off = offs[mi]
-        ne = (lmax - m) // 2 + 1
-        nrow = lmax + 1 - m
-        n = live[mi]
-        for r in range(nrow):
-            for j in range(n, J):
-                buf[off + r, j] = 0.0
-        if n == 0:
-            continue
-        a = np.empty(lmax + 1)
-        c = np.empty(lmax + 1)
-        _recursion_coeffs(m, lmax, a, c)
-        P = np.empty(n)
-        Q = np.empty(n)
-        k = np.empty(n, dtype=np.int64)
-        on = np.empty(n)
-        nscaled = _order_start(m, n, x, s, cm[m], shift, P, Q, k)
-        for j in range(n):
-            on[j] = 1.0 if k[j] == 0 else 0.0
-        for l in range(m, lmax + 1):
-            if l > m:
-                al = a[l]
-                cl = c[l]
-                for j in range(n):
-                    t = al * x[j] * P[j] - cl * Q[j]
-                    Q[j] = P[j]
-                    P[j] = t
-            if nscaled > 0 and (l - m) % CHECK_EVERY == 0:
-                for j in range(n):
-                    if _rescale(P, Q, k, j):
-                        nscaled -= 1
-                        on[j] = 1.0
-            d = l - m
-            row = off + (d // 2 if d % 2 == 0 else ne + d // 2)
-            for j in range(n):
-                buf[row, j] = P[j] * on[j]
-
-
 @nb.njit(inline="always", **_JIT)
 def _fac(fl, fm, full, use_full, l, m):
     if use_full:

@@ -214,110 +214,21 @@ def _analysis(values: np.ndarray, grid: Grid, lmax: int, fac: "_Factor") -> np.n
     cm = sectoral_table(lmax)
     offs = _tri_offsets(lmax)
     coef = np.zeros((K, lmax + 1, lmax + 1), dtype=np.complex128)
-    ntri = int(offs[-1])
-    if K >= BATCH_BLAS:
-        R = np.zeros((ntri, 2 * K))
-    else:
-        tri = np.zeros((K, ntri), dtype=np.complex128)
+    tri = np.zeros((K, int(offs[-1])), dtype=np.complex128)
     for b0, b1 in _bands(pairs.n, M):
         band = _Band(pairs, b0, b1)
         block = np.asarray(values[:, band.rows, :], dtype=np.float64)
         F = scipy.fft.rfft(block, axis=-1, workers=_workers())
         del block
-        E = np.empty((M, 2 * K, band.n))
-        O = np.empty((M, 2 * K, band.n))
-        Er, Ei, Or, Oi = E[:, :K], E[:, K:], O[:, :K], O[:, K:]
+        Er, Ei, Or, Oi = (np.empty((M, K, band.n)) for _ in range(4))
         _kernels.pack_pairs(F, band.north, band.south, band.wn, band.ws, scale, Er, Ei, Or, Oi)
         del F
         nlive = np.clip(live - b0, 0, band.n)
-        if K >= BATCH_BLAS:
-            _analysis_blas(E, O, band, lmax, M, nlive, cm, R)
-        else:
-            _kernels.analysis_kernel(lmax, 0, M - 1, band.x, band.s, cm, nlive, Er, Ei, Or, Oi,
-                                     tri, offs, 0)
-    if K >= BATCH_BLAS:
-        tri = np.ascontiguousarray((R[:, :K] + 1j * R[:, K:]).T)
-        del R
+        _kernels.analysis_kernel(lmax, 0, M - 1, band.x, band.s, cm, nlive, Er, Ei, Or, Oi,
+                                 tri, offs, 0)
     _kernels.tri_to_square(tri, *fac.args(), offs, coef)
     coef[:, :, 0] = coef[:, :, 0].real
     return coef
-
-
-BATCH_BLAS = 8  # batches at least this large contract through BLAS matrix products
-
-
-def _order_chunks(lmax: int, mlo: int, mhi: int, J: int):
-    """Consecutive order ranges whose Legendre rows fit in about 4 * BAND_BYTES."""
-    limit = max(4 * BAND_BYTES // (8 * max(J, 1)), lmax + 1)
-    chunks, m0, rows = [], mlo, 0
-    for m in range(mlo, mhi + 1):
-        if rows + lmax + 1 - m > limit and m > m0:
-            chunks.append((m0, m - 1))
-            m0, rows = m, 0
-        rows += lmax + 1 - m
-    chunks.append((m0, mhi))
-    return chunks
-
-
-def _rows_for(lmax, m0, m1, band, cm, nlive, shift=0):
-    """Legendre rows of orders m0..m1 for a band, with per-order row offsets."""
-    counts = lmax + 1 - np.arange(m0, m1 + 1)
-    offs = np.concatenate([[0], np.cumsum(counts)[:-1]]).astype(np.int64)
-    buf = np.empty((int(counts.sum()), band.n))
-    _kernels.legendre_rows(lmax, m0, m1, band.x, band.s, cm, nlive[m0:m1 + 1], buf, offs, shift)
-    return buf, offs
-
-
-def _analysis_blas(F_E, F_O, band, lmax, M, nlive, cm, R):
-    """Batched analysis of one band through BLAS.
-
-    F_E, F_O: (M, 2K, n) even/odd sums, real parts then imaginary parts.
-    R: (ntri, 2K) real accumulator in order-by-order storage."""
-    toffs = _tri_offsets(lmax)
-    for m0, m1 in _order_chunks(lmax, 0, M - 1, band.n):
-        buf, offs = _rows_for(lmax, m0, m1, band, cm, nlive)
-        for m in range(m0, m1 + 1):
-            n = int(nlive[m])
-            if n == 0:
-                continue
-            off = offs[m - m0]
-            t = toffs[m]
-            nrow = lmax + 1 - m
-            ne = (nrow + 1) // 2
-            R[t:t + nrow:2] += buf[off:off + ne, :n] @ F_E[m, :, :n].T
-            if nrow > ne:
-                R[t + 1:t + nrow:2] += buf[off + ne:off + nrow, :n] @ F_O[m, :, :n].T
-
-
-def _synthesis_blas(Rs, band, lmax, nlive, cm, FN, FS):
-    """Batched synthesis of one band into FN/FS (K, n, M) through BLAS.
-
-    Rs: (ntri, 2K) real-stacked coefficients (real parts, then imaginary) in
-    order-by-order storage, already in the kernels' convention."""
-    K = Rs.shape[1] // 2
-    M = lmax + 1
-    toffs = _tri_offsets(lmax)
-    GN = np.zeros((M, band.n, 2 * K))
-    GS = np.zeros((M, band.n, 2 * K))
-    for m0, m1 in _order_chunks(lmax, 0, M - 1, band.n):
-        buf, offs = _rows_for(lmax, m0, m1, band, cm, nlive)
-        for m in range(m0, m1 + 1):
-            n = int(nlive[m])
-            if n == 0:
-                continue
-            off = offs[m - m0]
-            t = toffs[m]
-            nrow = lmax + 1 - m
-            ne = (nrow + 1) // 2
-            ge = buf[off:off + ne, :n].T @ Rs[t:t + nrow:2]
-            GN[m, :n] = ge
-            GS[m, :n] = ge
-            if nrow > ne:
-                go = buf[off + ne:off + nrow, :n].T @ Rs[t + 1:t + nrow:2]
-                GN[m, :n] += go
-                GS[m, :n] -= go
-    FN += (GN[..., :K] + 1j * GN[..., K:]).transpose(2, 1, 0)
-    FS += (GS[..., :K] + 1j * GS[..., K:]).transpose(2, 1, 0)
 
 
 def _synthesis_passes(grid: Grid, K: int, M_out: int, passes, out: np.ndarray) -> None:
@@ -331,20 +242,14 @@ def _synthesis_passes(grid: Grid, K: int, M_out: int, passes, out: np.ndarray) -
     lmax = passes[0][1].shape[-1] - 1
     cm = sectoral_table(lmax)
     offs = _tri_offsets(lmax)
-    blas = [K >= BATCH_BLAS and (p[3], p[4], p[5], p[7]) == (0, lmax, 0, 0) for p in passes]
     tris = [_to_tri(p[1], p[2], p[3], p[4]) for p in passes]
-    tris = [np.concatenate([t.real.T, t.imag.T], axis=1) if b else t for t, b in zip(tris, blas)]
     ntarget = out.shape[0]
     for b0, b1 in _bands(pairs.n, M_out):
         band = _Band(pairs, b0, b1)
         FN = np.zeros((ntarget, K, band.n, M_out), dtype=np.complex128)
         FS = np.zeros((ntarget, K, band.n, M_out), dtype=np.complex128)
-        for (target, coef, fac, mlo, mhi, dm, scale, shift), use_blas, tri in zip(passes, blas, tris):
+        for (target, coef, fac, mlo, mhi, dm, scale, shift), tri in zip(passes, tris):
             if mhi < mlo:
-                continue
-            if use_blas:
-                nlive = np.clip(_live(grid, lmax, 0, lmax, 0) - b0, 0, band.n)
-                _synthesis_blas(tri, band, lmax, nlive, cm, FN[target], FS[target])
                 continue
             nlive = np.clip(_live(grid, lmax, mlo, mhi, shift) - b0, 0, band.n)
             _kernels.synthesis_kernel(lmax, mlo, mhi, band.x, band.s, cm, nlive, tri, offs,
