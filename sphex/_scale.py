@@ -199,7 +199,7 @@ def cpu_count() -> int:
 
 
 def _numba_max() -> int:
-    import numba
+    from sphex._kernels import nb as numba  # sphex sets the vector width before numba loads
 
     return int(numba.config.NUMBA_NUM_THREADS)
 
@@ -268,7 +268,7 @@ def limited_threads(n: int | None) -> Iterator[None]:
     if n is None:
         yield
         return
-    import numba
+    from sphex._kernels import nb as numba  # sphex sets the vector width before numba loads
 
     old = numba.get_num_threads()
     numba.set_num_threads(n)
@@ -345,7 +345,7 @@ def _blas_limit(n: int) -> Any:
 
 
 def _init_pool_thread(n: int) -> None:
-    import numba
+    from sphex._kernels import nb as numba  # sphex sets the vector width before numba loads
 
     numba.set_num_threads(n)
 

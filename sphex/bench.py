@@ -243,7 +243,9 @@ def main(argv=None) -> int:
     if args.scale:
         from sphex import bench_scale
 
-        return bench_scale.main(rest + (["--json"] if args.json else []))
+        return bench_scale.main(rest + (["--json"] if args.json else [])
+                                + (["--no-memory"] if args.no_memory else [])
+                                + (["--repeat", str(args.repeat)] if args.repeat != 3 else []))
     if rest:
         parser.error(f"unrecognized arguments: {' '.join(rest)}")
     batch = None

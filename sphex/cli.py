@@ -144,6 +144,12 @@ def _build_parser() -> _Parser:
                    help="leave out the Condon-Shortley phase (-1)^m")
     q.add_argument("--radius", type=_positive_float, metavar="METRES",
                    help="reference radius to record with the coefficients")
+    q.add_argument("--chunks", type=_chunks, metavar="DIM=N",
+                   help="fields per chunk when streaming a long series (default: about 8 MiB of "
+                        "input per chunk along time)")
+    q.add_argument("--scheduler", metavar="ADDRESS",
+                   help="run on this dask.distributed scheduler (e.g. tcp://10.0.0.5:8786) instead "
+                        "of threads in this process")
     out_args(q, "output coefficient file (.nc, or .txt for a text table)")
     q.set_defaults(func=_cmd_analyze)
 
@@ -244,6 +250,15 @@ def _cap_radius(text: str) -> float:
     if v > 180:
         raise argparse.ArgumentTypeError(f"{text!r} must be at most 180 degrees")
     return v
+
+
+def _chunks(text: str) -> dict[str, int]:
+    from sphex._scale import parse_chunks
+
+    try:
+        return parse_chunks(text)
+    except ValueError as exc:
+        raise argparse.ArgumentTypeError(str(exc)) from None
 
 
 def _degree_range(text: str) -> tuple[int, int]:
@@ -375,11 +390,22 @@ def _cmd_analyze(a: argparse.Namespace) -> int:
     check_output_path(a.output, a.overwrite)
     import sphex.xr as sxr
 
+    is_text = Path(a.output).suffix.lower() in (".txt", ".tab", ".dat")
+    if not is_text:
+        # netCDF output: stream the input chunk by chunk along its non-spatial axes
+        from sphex._scale import stream_analyze
+
+        r = stream_analyze(a.input, a.var, a.output, a.lmax, a.norm, a.chunks, a.scheduler,
+                           a.overwrite, condon_shortley=not a.no_phase, radius=a.radius)
+        _say(f"read  {a.input}: {r.variable!r} on a {r.grid}",
+             f"wrote {a.output}: {r.fields} field{'s' if r.fields != 1 else ''}, degrees "
+             f"0..{r.lmax}, {a.norm} normalisation, "
+             f"{'no phase' if a.no_phase else 'Condon-Shortley phase'}")
+        return 0
     da, _ = _load_var(a.input, a.var)
     info = _grid_info(da, a.input)
     lmax = sxr._check_lmax(a.lmax, info.grid, False, f"variable {da.name!r}")
     n = _n_fields(da, info)
-    is_text = Path(a.output).suffix.lower() in (".txt", ".tab", ".dat")
     if is_text and n != 1:
         raise UserError(f"a text table holds one field but {da.name!r} has {n}; write .nc instead")
     with _progress(n, "analyze") as bar:

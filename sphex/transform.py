@@ -22,7 +22,6 @@ first longitude.
 from __future__ import annotations
 
 import functools
-import os
 
 import numpy as np
 import scipy.fft
@@ -36,7 +35,9 @@ __all__ = ["analyze", "synthesize", "synthesize_gradient", "regrid"]
 
 
 def _workers() -> int:
-    return os.cpu_count() or 1
+    """FFT threads: numba's thread count for the calling thread (all cores in the
+    main thread, fewer inside dask tasks under the rule of :mod:`sphex._scale`)."""
+    return _kernels.nb.get_num_threads()
 
 
 # ---------------------------------------------------------------------------

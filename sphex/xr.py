@@ -48,6 +48,7 @@ from typing import Any
 import numpy as np
 import xarray as xr
 
+from sphex import _scale
 from sphex._io import atomic_output, check_output_path
 from sphex.grids import Grid
 from sphex.harmonics import Harmonics
@@ -791,9 +792,10 @@ def analyze(da: xr.DataArray, lmax: int | None = None, *, norm: str = "ortho",
     where = f"variable {da.name!r}" if da.name is not None else "the field"
     lmax = _check_lmax(lmax, info.grid, allow_aliasing, where)
     _check_complete(da)
+    da = _scale.whole_fields(da, (info.lat_dim, info.lon_dim))
     n = lmax + 1
     c, s = xr.apply_ufunc(
-        _analyze_np, da,
+        _scale.task_function(_analyze_np, da), da,
         input_core_dims=[[info.lat_dim, info.lon_dim]],
         output_core_dims=[["degree", "order"], ["degree", "order"]],
         kwargs={"info": info, "lmax": lmax, "norm": norm, "cs": bool(condon_shortley),
@@ -860,8 +862,9 @@ def synthesize(ds: xr.Dataset | Harmonics, like: Any, *, lmax: int | None = None
     l_file = ds.sizes["degree"] - 1
     if lmax is not None and not 0 <= int(lmax) <= l_file:
         raise ValueError(f"lmax {lmax} is outside the coefficients' range 0..{l_file}")
+    ds = _scale.whole_fields(ds, ("degree", "order"))
     out = xr.apply_ufunc(
-        _synth_np, ds[COS], ds[SIN],
+        _scale.task_function(_synth_np, ds), ds[COS], ds[SIN],
         input_core_dims=[["degree", "order"], ["degree", "order"]],
         output_core_dims=[[info.lat_dim, info.lon_dim]],
         kwargs={"conv": conv, "lmax": None if lmax is None else int(lmax), "info": info},
@@ -958,9 +961,10 @@ def smooth(da: xr.DataArray, *, gaussian_km: float | None = None, cap_deg: float
     where = f"variable {da.name!r}" if da.name is not None else "the field"
     lmax = _check_lmax(lmax, info.grid, False, where)
     _check_complete(da)
+    da = _scale.whole_fields(da, (info.lat_dim, info.lon_dim))
     w, how = _filter_weights(lmax, gaussian_km, cap_deg, band, weights, planet_radius_km)
     out = xr.apply_ufunc(
-        _smooth_np, da, input_core_dims=[[info.lat_dim, info.lon_dim]],
+        _scale.task_function(_smooth_np, da), da, input_core_dims=[[info.lat_dim, info.lon_dim]],
         output_core_dims=[[info.lat_dim, info.lon_dim]],
         kwargs={"info": info, "lmax": lmax, "w": w},
         dask="parallelized", output_dtypes=[np.float64], keep_attrs=True,
@@ -1002,10 +1006,11 @@ def regrid(da: xr.DataArray, like: Any, *, lmax: int | None = None) -> xr.DataAr
         lmax = min(info.grid.lmax_exact, tinfo.grid.lmax_exact)
     lmax = _check_lmax(lmax, info.grid, False, where)
     _check_complete(da)
+    da = _scale.whole_fields(da, (info.lat_dim, info.lon_dim))
     src_dims = {info.lat_dim, info.lon_dim}
     tmp_lat, tmp_lon = "__sphex_lat__", "__sphex_lon__"
     out = xr.apply_ufunc(
-        _smooth_np, da, input_core_dims=[[info.lat_dim, info.lon_dim]],
+        _scale.task_function(_smooth_np, da), da, input_core_dims=[[info.lat_dim, info.lon_dim]],
         output_core_dims=[[tmp_lat, tmp_lon]],
         kwargs={"info": info, "lmax": lmax, "w": None, "out_info": tinfo},
         dask="parallelized", output_dtypes=[np.float64],
