@@ -464,19 +464,10 @@ class StreamResult:
 
 
 def _open_lazy(path: str | os.PathLike) -> Any:
-    import xarray as xr
+    import sphex.xr as sxr
 
-    p = Path(path)
-    if not p.exists():
-        raise FileNotFoundError(f"no such file: {str(p)!r}")
-    if p.is_dir():
-        raise IsADirectoryError(f"{str(p)!r} is a directory, not a netCDF file")
-    try:
-        # cache=False: reading a slice never loads (and keeps) the whole variable
-        return xr.open_dataset(p, engine="netcdf4", cache=False)
-    except Exception as exc:  # netCDF4 reports a damaged or foreign file in several ways
-        msg = " ".join(str(exc).split())
-        raise ValueError(f"{str(p)!r} is not a readable netCDF file ({msg})") from None
+    # cache=False: reading a slice never loads (and keeps) the whole variable
+    return sxr._open(path, cache=False)
 
 
 def _pick_variable(ds: Any, var: str | None, path: str) -> str:

@@ -614,14 +614,16 @@ def write_harmonics(h: Harmonics | xr.Dataset, path: str | os.PathLike, overwrit
     return write_dataset(ds, path, overwrite)
 
 
-def _open(path: str | os.PathLike) -> xr.Dataset:
+def _open(path: str | os.PathLike, cache: bool = True) -> xr.Dataset:
+    """Open a netCDF file with errors that say what is wrong (cache=False reads
+    slices lazily without keeping whole variables)."""
     p = Path(path)
     if not p.exists():
         raise FileNotFoundError(f"no such file: {str(p)!r}")
     if p.is_dir():
         raise IsADirectoryError(f"{str(p)!r} is a directory, not a netCDF file")
     try:
-        return xr.open_dataset(p, engine="netcdf4")
+        return xr.open_dataset(p, engine="netcdf4", cache=cache)
     except Exception as exc:  # netCDF4 reports a damaged or foreign file in several ways
         raise ValueError(f"{str(p)!r} is not a readable netCDF file ({_one_line(exc)})") from None
 
