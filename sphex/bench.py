@@ -15,7 +15,6 @@ from __future__ import annotations
 import argparse
 import json
 import os
-import resource
 import subprocess
 import sys
 import time
@@ -120,7 +119,6 @@ def cold_start(tmpdir: str | None = None) -> dict:
     """First call with an empty numba cache, and a warm command-line call."""
     import tempfile
 
-    from sphex import demo as _demo  # noqa: F401  (the CLI needs it importable)
 
     with tempfile.TemporaryDirectory(dir=tmpdir) as tmp:
         env = dict(os.environ, NUMBA_CACHE_DIR=os.path.join(tmp, "numba-cache"))
