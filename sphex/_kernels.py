@@ -410,6 +410,48 @@ def _rescale(P, Q, k, j):
     return False
 
 
+@nb.njit(inline="always", fastmath=_FM, **_JIT)
+def _advance1(l, n, xl, P, Q, a, c):
+    """One recursion step to degree l on the first n latitudes (P = P_l, Q = P_{l-1})."""
+    al = a[l]
+    cl = c[l]
+    for j in range(n):
+        t = al * xl[j] * P[j] - cl * Q[j]
+        Q[j] = P[j]
+        P[j] = t
+
+
+@nb.njit(inline="always", fastmath=_FM, **_JIT)
+def _advance4_store(l, n, xl, P, Q, a, c, T):
+    """Four recursion steps l+1..l+4, keeping each degree's values in T[0..3]
+    for the per-field contractions of a batch."""
+    a1 = a[l + 1]
+    a2 = a[l + 2]
+    a3 = a[l + 3]
+    a4 = a[l + 4]
+    c1 = c[l + 1]
+    c2 = c[l + 2]
+    c3 = c[l + 3]
+    c4 = c[l + 4]
+    T1 = T[0]
+    T2 = T[1]
+    T3 = T[2]
+    T4 = T[3]
+    for j in range(n):
+        xj = xl[j]
+        p = P[j]
+        t1 = a1 * xj * p - c1 * Q[j]
+        t2 = a2 * xj * t1 - c2 * p
+        t3 = a3 * xj * t2 - c3 * t1
+        t4 = a4 * xj * t3 - c4 * t2
+        T1[j] = t1
+        T2[j] = t2
+        T3[j] = t3
+        T4[j] = t4
+        P[j] = t4
+        Q[j] = t3
+
+
 @nb.njit(parallel=True, fastmath=_FM, **_JIT)
 def analysis_kernel(lmax, mlo, mhi, x, s, cm, live, Er, Ei, Or, Oi, tri, offs, shift):
     """Accumulate ortho, phase-free a_lm from even/odd Fourier sums.
@@ -530,23 +572,11 @@ def analysis_kernel(lmax, mlo, mhi, x, s, cm, live, Er, Ei, Or, Oi, tri, offs, s
                     outr[0, l + 4] += s4r
                     outi[0, l + 4] += s4i
                 else:
+                    _advance4_store(l, n, xl, P, Q, a, c, T)
                     T1 = T[0]
                     T2 = T[1]
                     T3 = T[2]
                     T4 = T[3]
-                    for j in range(n):
-                        xj = xl[j]
-                        p = P[j]
-                        t1 = a1 * xj * p - c1 * Q[j]
-                        t2 = a2 * xj * t1 - c2 * p
-                        t3 = a3 * xj * t2 - c3 * t1
-                        t4 = a4 * xj * t3 - c4 * t2
-                        T1[j] = t1
-                        T2[j] = t2
-                        T3[j] = t3
-                        T4[j] = t4
-                        P[j] = t4
-                        Q[j] = t3
                     for kk in range(K):
                         er = fe[kk, 0]
                         ei = fe[kk, 1]
@@ -584,12 +614,7 @@ def analysis_kernel(lmax, mlo, mhi, x, s, cm, live, Er, Ei, Or, Oi, tri, offs, s
                 l += 4
             else:
                 l += 1
-                al = a[l]
-                cl = c[l]
-                for j in range(n):
-                    t = al * xl[j] * P[j] - cl * Q[j]
-                    Q[j] = P[j]
-                    P[j] = t
+                _advance1(l, n, xl, P, Q, a, c)
                 par = 2 * ((l - m) & 1)
                 for kk in range(K):
                     fr = fe[kk, par]
@@ -762,23 +787,11 @@ def synthesis_kernel(lmax, mlo, mhi, x, s, cm, live, tri, offs, FN, FS, dm, scal
                             P[j] = t4
                             Q[j] = t3
                     else:
+                        _advance4_store(l, n, xl, P, Q, a, c, T)
                         T1 = T[0]
                         T2 = T[1]
                         T3 = T[2]
                         T4 = T[3]
-                        for j in range(n):
-                            xj = xl[j]
-                            p = P[j]
-                            t1 = a1 * xj * p - c1 * Q[j]
-                            t2 = a2 * xj * t1 - c2 * p
-                            t3 = a3 * xj * t2 - c3 * t1
-                            t4 = a4 * xj * t3 - c4 * t2
-                            T1[j] = t1
-                            T2[j] = t2
-                            T3[j] = t3
-                            T4[j] = t4
-                            P[j] = t4
-                            Q[j] = t3
                         for kk in range(K):
                             r1 = Ar[kk, l + 1]
                             r2 = Ar[kk, l + 2]
@@ -800,12 +813,7 @@ def synthesis_kernel(lmax, mlo, mhi, x, s, cm, live, tri, offs, FN, FS, dm, scal
                     l += 4
                 else:
                     l += 1
-                    al = a[l]
-                    cl = c[l]
-                    for j in range(n):
-                        t = al * xl[j] * P[j] - cl * Q[j]
-                        Q[j] = P[j]
-                        P[j] = t
+                    _advance1(l, n, xl, P, Q, a, c)
                     par = 2 * ((l - m) & 1)
                     for kk in range(K):
                         ar = Ar[kk, l]
