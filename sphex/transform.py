@@ -269,12 +269,13 @@ def _fourier_synthesis(G: np.ndarray, grid: Grid) -> np.ndarray:
     """G: (K, nlat, M) with orders 0..M-1 -> real values (K, nlat, nlon)."""
     K, nlat, M = G.shape
     N = grid.nlon
-    G = G * _phase(M, grid)[None, None, :] * N
+    shift = _phase(M, grid) * N
     if M - 1 < (N + 1) // 2:  # no folding needed (Nyquist excluded for even N)
         X = np.zeros((K, nlat, N // 2 + 1), dtype=np.complex128)
-        X[..., :M] = G
-        X[..., 0] = X[..., 0].real
-        return scipy.fft.irfft(X, n=N, axis=-1, workers=_workers())
+        np.multiply(G, shift, out=X[..., :M])
+        X[..., 0].imag = 0.0
+        return scipy.fft.irfft(X, n=N, axis=-1, workers=_workers(), overwrite_x=True)
+    G = G * shift
     # coarse target: fold orders beyond the Nyquist frequency (exact evaluation)
     X = np.zeros((K, nlat, N), dtype=np.complex128)
     m = np.arange(M)
