@@ -71,7 +71,6 @@ TINY_EXP = 500
 TINY = 2.0 ** -TINY_EXP
 UNTINY = 2.0 ** TINY_EXP
 CHECK_EVERY = 16  # degrees between range checks of scaled latitudes
-BLOCK = 16  # latitude pairs processed together
 DD_NODES = 128  # Gauss nodes nearest each pole polished in double-double
 
 

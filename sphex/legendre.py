@@ -76,26 +76,13 @@ def norm_scale(lmax: int, norm: str) -> np.ndarray:
     check for that.
     """
     check_norm(norm)
-    l = np.arange(lmax + 1, dtype=np.float64)[:, None]
-    m = np.arange(lmax + 1, dtype=np.float64)[None, :]
-    if norm == "ortho":
-        f = np.ones((lmax + 1, lmax + 1))
-    elif norm == "4pi":
-        f = np.full((lmax + 1, lmax + 1), np.sqrt(4 * np.pi))
-    elif norm == "schmidt":
-        f = np.broadcast_to(np.sqrt(4 * np.pi / (2 * l + 1)), (lmax + 1, lmax + 1)).copy()
-    else:
-        from scipy.special import gammaln
-
-        with np.errstate(over="ignore", invalid="ignore"):
-            logk = 0.5 * (np.log(2 * l + 1) - np.log(4 * np.pi)
-                          + gammaln(np.maximum(l - m, 0) + 1) - gammaln(l + m + 1))
-            f = np.exp(-logk)
-    f[np.broadcast_to(m > l, f.shape)] = 1.0
+    f = np.ones((lmax + 1, lmax + 1))
+    for m in range(lmax + 1):
+        f[m:, m] = norm_column(lmax, m, norm)
     return f
 
 
-def _norm_column(lmax: int, m: int, norm: str) -> np.ndarray:
+def norm_column(lmax: int, m: int, norm: str) -> np.ndarray:
     """Column m of :func:`norm_scale`, degrees m..lmax, without the full table."""
     l = np.arange(m, lmax + 1, dtype=np.float64)
     if norm == "ortho":
@@ -144,7 +131,7 @@ def _order_values(m, lmax, colat, norm, condon_shortley, want_deriv):
     dout = np.empty((lmax + 1 - m, x.size)) if want_deriv else np.empty((1, 1))
     _kernels.legendre_order(m, lmax, x, s, sectoral_table(lmax)[m], out, dout, want_deriv)
     res = dout if want_deriv else out
-    scale = _norm_column(lmax, m, norm)
+    scale = norm_column(lmax, m, norm)
     if norm == "unnorm" and not np.all(np.isfinite(scale)):
         raise ValueError(f"unnormalised functions of order {m} overflow double precision below degree "
                          f"{lmax}: use norm='ortho', '4pi' or 'schmidt' at this degree")

@@ -29,7 +29,7 @@ import scipy.fft
 from sphex import _kernels
 from sphex.grids import Grid
 from sphex.harmonics import Harmonics, convert_factor
-from sphex.legendre import check_norm, sectoral_table
+from sphex.legendre import check_norm, norm_column, sectoral_table
 
 __all__ = ["analyze", "synthesize", "synthesize_gradient", "regrid"]
 
@@ -370,7 +370,8 @@ class _Factor:
             self.fl = np.ones(lmax + 1)
         else:
             self.full, self.use_full = np.ones((1, 1)), False
-            self.fl = _degree_scale(lmax, norm_from) / _degree_scale(lmax, norm_to)
+            # normalised conventions differ by a function of the degree only
+            self.fl = norm_column(lmax, 0, norm_from) / norm_column(lmax, 0, norm_to)
 
     def args(self):
         return self.fl, self.fm, self.full, self.use_full
@@ -380,16 +381,6 @@ class _Factor:
 
     def array(self) -> np.ndarray:
         return self.full.copy() if self.use_full else np.outer(self.fl, self.fm)
-
-
-def _degree_scale(lmax: int, norm: str) -> np.ndarray:
-    """Lambda^norm / Lambda^ortho for the normalised conventions (a function of l only)."""
-    l = np.arange(lmax + 1, dtype=np.float64)
-    if norm == "ortho":
-        return np.ones(lmax + 1)
-    if norm == "4pi":
-        return np.full(lmax + 1, np.sqrt(4 * np.pi))
-    return np.sqrt(4 * np.pi / (2 * l + 1))  # schmidt
 
 
 @functools.lru_cache(maxsize=16)
