@@ -326,6 +326,14 @@ def legendre_order(m, lmax, x, s, cm, out, dout, want_deriv):
 # Transform kernels
 # ---------------------------------------------------------------------------
 @nb.njit(inline="always", **_JIT)
+def _fac(fl, fm, full, use_full, l, m):
+    """Convention factor f(l, m): full[l, m] when use_full, else fl[l] * fm[m]."""
+    if use_full:
+        return full[l, m]
+    return fl[l] * fm[m]
+
+
+@nb.njit(inline="always", **_JIT)
 def _order_of(i, nm, lo):
     """Balanced order sequence: lo, top, lo+1, top-1, ... (pairs costly and cheap)."""
     h = i // 2
@@ -692,147 +700,170 @@ def _syn8(l, n, xl, P, Q, a, c, ar, ai, g):
 
 
 @nb.njit(parallel=True, fastmath=_FM, **_JIT)
-def synthesis_kernel(lmax, mlo, mhi, x, s, cm, live, tri, offs, FN, FS, dm, scale, shift):
-    """Fourier coefficients on latitude pairs from ortho, phase-free a_lm.
+def synthesis_kernel(lmax, mlo, mhi, x, s, cm, live, coef, fl, fm, full, use_full,
+                     X, rn, rs, dm, scale, shift, accumulate):
+    """Fourier coefficients of grid rows from a_lm, order by order.
 
-    tri: complex (K, ntri), a_lm stored order by order at offs[m] + l - m.
-    FN, FS: complex (K, J, nfreq); column m + dm gets scale[m - mlo] times
-    sum_l a_lm Lambda_lm at the northern / southern latitude of each pair
-    added to it.
+    coef: complex (K, L+1, L+1) indexed [l, m]; times f(l, m) (see
+    :func:`_fac`) it is ortho and phase-free.  X: complex (K, rows, nfreq),
+    ready for an inverse real FFT along its last axis: column m + dm of row
+    rn[j] (northern ring of pair j) and rs[j] (southern ring; -1 for none)
+    gets scale[m - mlo] * sum_l a_lm Lambda_lm, added when ``accumulate``
+    else assigned (zero on latitudes where order m is negligible).  Column 0
+    keeps only the real part.
     Same loop structure as :func:`analysis_kernel`; sums of latitudes still in
     scaled range are discarded when they become plain (their true values were
     below 2^-268, negligible).
     """
-    K = tri.shape[0]
+    K = coef.shape[0]
+    J = x.size
     nm = mhi - mlo + 1
     for i in nb.prange(nm):
         m = _order_of(i, nm, mlo)
         mi = m - mlo
+        mo = m + dm
+        n = live[mi]
+        if not accumulate:
+            for kk in range(K):
+                for j in range(n, J):
+                    if rn[j] >= 0:
+                        X[kk, rn[j], mo] = 0.0
+                    if rs[j] >= 0:
+                        X[kk, rs[j], mo] = 0.0
+        if n == 0:
+            continue
         a = np.empty(lmax + 1)
         c = np.empty(lmax + 1)
         _recursion_coeffs(m, lmax, a, c)
-        n = live[mi]
-        if n == 0:
-            continue
         Ar = np.empty((K, lmax + 1))
         Ai = np.empty((K, lmax + 1))
-        o = offs[m] - m
         for kk in range(K):
             for l in range(m, lmax + 1):
-                v = tri[kk, o + l]
+                v = _fac(fl, fm, full, use_full, l, m) * coef[kk, l, m]
                 Ar[kk, l] = v.real
                 Ai[kk, l] = v.imag
         g = np.zeros((K, 4, n))  # even re, even im, odd re, odd im
-        if True:
-            P = np.empty(n)
-            Q = np.empty(n)
-            k = np.empty(n, dtype=np.int64)
-            nscaled = _order_start(m, n, x, s, cm[m], shift, P, Q, k)
-            T = np.empty((4, n if K > 1 else 1))
-            xl = x[:n]
-            for kk in range(K):
-                ar = Ar[kk, m]
-                ai = Ai[kk, m]
-                gr = g[kk, 0]
-                gi = g[kk, 1]
-                for j in range(n):
-                    gr[j] += ar * P[j]
-                    gi[j] += ai * P[j]
-            l = m
-            while l < lmax:
-                if nscaled > 0 and (l - m) % CHECK_EVERY == 0:
-                    for j in range(n):
-                        if _rescale(P, Q, k, j):
-                            nscaled -= 1
-                            for kk in range(K):
-                                for t in range(4):
-                                    g[kk, t, j] = 0.0
-                if K == 1 and l + 8 <= lmax:
-                    _syn8(l, n, xl, P, Q, a, c, Ar[0], Ai[0], g[0])
-                    l += 8
-                elif l + 4 <= lmax:
-                    a1 = a[l + 1]
-                    a2 = a[l + 2]
-                    a3 = a[l + 3]
-                    a4 = a[l + 4]
-                    c1 = c[l + 1]
-                    c2 = c[l + 2]
-                    c3 = c[l + 3]
-                    c4 = c[l + 4]
-                    if K == 1:
-                        r1 = Ar[0, l + 1]
-                        r2 = Ar[0, l + 2]
-                        r3 = Ar[0, l + 3]
-                        r4 = Ar[0, l + 4]
-                        i1 = Ai[0, l + 1]
-                        i2 = Ai[0, l + 2]
-                        i3 = Ai[0, l + 3]
-                        i4 = Ai[0, l + 4]
-                        ger = g[0, 0]
-                        gei = g[0, 1]
-                        gor = g[0, 2]
-                        goi = g[0, 3]
-                        for j in range(n):
-                            xj = xl[j]
-                            p = P[j]
-                            t1 = a1 * xj * p - c1 * Q[j]
-                            t2 = a2 * xj * t1 - c2 * p
-                            t3 = a3 * xj * t2 - c3 * t1
-                            t4 = a4 * xj * t3 - c4 * t2
-                            gor[j] += r1 * t1 + r3 * t3
-                            goi[j] += i1 * t1 + i3 * t3
-                            ger[j] += r2 * t2 + r4 * t4
-                            gei[j] += i2 * t2 + i4 * t4
-                            P[j] = t4
-                            Q[j] = t3
-                    else:
-                        _advance4_store(l, n, xl, P, Q, a, c, T)
-                        T1 = T[0]
-                        T2 = T[1]
-                        T3 = T[2]
-                        T4 = T[3]
-                        for kk in range(K):
-                            r1 = Ar[kk, l + 1]
-                            r2 = Ar[kk, l + 2]
-                            r3 = Ar[kk, l + 3]
-                            r4 = Ar[kk, l + 4]
-                            i1 = Ai[kk, l + 1]
-                            i2 = Ai[kk, l + 2]
-                            i3 = Ai[kk, l + 3]
-                            i4 = Ai[kk, l + 4]
-                            ger = g[kk, 0]
-                            gei = g[kk, 1]
-                            gor = g[kk, 2]
-                            goi = g[kk, 3]
-                            for j in range(n):
-                                gor[j] += r1 * T1[j] + r3 * T3[j]
-                                goi[j] += i1 * T1[j] + i3 * T3[j]
-                                ger[j] += r2 * T2[j] + r4 * T4[j]
-                                gei[j] += i2 * T2[j] + i4 * T4[j]
-                    l += 4
-                else:
-                    l += 1
-                    _advance1(l, n, xl, P, Q, a, c)
-                    par = 2 * ((l - m) & 1)
-                    for kk in range(K):
-                        ar = Ar[kk, l]
-                        ai = Ai[kk, l]
-                        gr = g[kk, par]
-                        gi = g[kk, par + 1]
-                        for j in range(n):
-                            gr[j] += ar * P[j]
-                            gi[j] += ai * P[j]
+        P = np.empty(n)
+        Q = np.empty(n)
+        k = np.empty(n, dtype=np.int64)
+        nscaled = _order_start(m, n, x, s, cm[m], shift, P, Q, k)
+        T = np.empty((4, n if K > 1 else 1))
+        xl = x[:n]
+        for kk in range(K):
+            ar = Ar[kk, m]
+            ai = Ai[kk, m]
+            gr = g[kk, 0]
+            gi = g[kk, 1]
             for j in range(n):
-                if k[j] < 0:
+                gr[j] += ar * P[j]
+                gi[j] += ai * P[j]
+        l = m
+        while l < lmax:
+            if nscaled > 0 and (l - m) % CHECK_EVERY == 0:
+                for j in range(n):
+                    if _rescale(P, Q, k, j):
+                        nscaled -= 1
+                        for kk in range(K):
+                            for t in range(4):
+                                g[kk, t, j] = 0.0
+            if K == 1 and l + 8 <= lmax:
+                _syn8(l, n, xl, P, Q, a, c, Ar[0], Ai[0], g[0])
+                l += 8
+            elif l + 4 <= lmax:
+                a1 = a[l + 1]
+                a2 = a[l + 2]
+                a3 = a[l + 3]
+                a4 = a[l + 4]
+                c1 = c[l + 1]
+                c2 = c[l + 2]
+                c3 = c[l + 3]
+                c4 = c[l + 4]
+                if K == 1:
+                    r1 = Ar[0, l + 1]
+                    r2 = Ar[0, l + 2]
+                    r3 = Ar[0, l + 3]
+                    r4 = Ar[0, l + 4]
+                    i1 = Ai[0, l + 1]
+                    i2 = Ai[0, l + 2]
+                    i3 = Ai[0, l + 3]
+                    i4 = Ai[0, l + 4]
+                    ger = g[0, 0]
+                    gei = g[0, 1]
+                    gor = g[0, 2]
+                    goi = g[0, 3]
+                    for j in range(n):
+                        xj = xl[j]
+                        p = P[j]
+                        t1 = a1 * xj * p - c1 * Q[j]
+                        t2 = a2 * xj * t1 - c2 * p
+                        t3 = a3 * xj * t2 - c3 * t1
+                        t4 = a4 * xj * t3 - c4 * t2
+                        gor[j] += r1 * t1 + r3 * t3
+                        goi[j] += i1 * t1 + i3 * t3
+                        ger[j] += r2 * t2 + r4 * t4
+                        gei[j] += i2 * t2 + i4 * t4
+                        P[j] = t4
+                        Q[j] = t3
+                else:
+                    _advance4_store(l, n, xl, P, Q, a, c, T)
+                    T1 = T[0]
+                    T2 = T[1]
+                    T3 = T[2]
+                    T4 = T[3]
                     for kk in range(K):
-                        for t in range(4):
-                            g[kk, t, j] = 0.0
-        mo = m + dm
+                        r1 = Ar[kk, l + 1]
+                        r2 = Ar[kk, l + 2]
+                        r3 = Ar[kk, l + 3]
+                        r4 = Ar[kk, l + 4]
+                        i1 = Ai[kk, l + 1]
+                        i2 = Ai[kk, l + 2]
+                        i3 = Ai[kk, l + 3]
+                        i4 = Ai[kk, l + 4]
+                        ger = g[kk, 0]
+                        gei = g[kk, 1]
+                        gor = g[kk, 2]
+                        goi = g[kk, 3]
+                        for j in range(n):
+                            gor[j] += r1 * T1[j] + r3 * T3[j]
+                            goi[j] += i1 * T1[j] + i3 * T3[j]
+                            ger[j] += r2 * T2[j] + r4 * T4[j]
+                            gei[j] += i2 * T2[j] + i4 * T4[j]
+                l += 4
+            else:
+                l += 1
+                _advance1(l, n, xl, P, Q, a, c)
+                par = 2 * ((l - m) & 1)
+                for kk in range(K):
+                    ar = Ar[kk, l]
+                    ai = Ai[kk, l]
+                    gr = g[kk, par]
+                    gi = g[kk, par + 1]
+                    for j in range(n):
+                        gr[j] += ar * P[j]
+                        gi[j] += ai * P[j]
+        for j in range(n):
+            if k[j] < 0:
+                for kk in range(K):
+                    for t in range(4):
+                        g[kk, t, j] = 0.0
         sc = scale[mi]
         for kk in range(K):
             for j in range(n):
-                FN[kk, j, mo] += sc * complex(g[kk, 0, j] + g[kk, 2, j], g[kk, 1, j] + g[kk, 3, j])
-                FS[kk, j, mo] += sc * complex(g[kk, 0, j] - g[kk, 2, j], g[kk, 1, j] - g[kk, 3, j])
+                vn = sc * complex(g[kk, 0, j] + g[kk, 2, j], g[kk, 1, j] + g[kk, 3, j])
+                vs = sc * complex(g[kk, 0, j] - g[kk, 2, j], g[kk, 1, j] - g[kk, 3, j])
+                if mo == 0:
+                    vn = complex(vn.real, 0.0)
+                    vs = complex(vs.real, 0.0)
+                if accumulate:
+                    if rn[j] >= 0:
+                        X[kk, rn[j], mo] += vn
+                    if rs[j] >= 0:
+                        X[kk, rs[j], mo] += vs
+                else:
+                    if rn[j] >= 0:
+                        X[kk, rn[j], mo] = vn
+                    if rs[j] >= 0:
+                        X[kk, rs[j], mo] = vs
 
 
 # ---------------------------------------------------------------------------
@@ -875,25 +906,6 @@ def pack_pairs(F, north, south, wn, ws, scale, Er, Ei, Or, Oi):
                 Ei[m, kk, p] = e.imag
                 Or[m, kk, p] = o.real
                 Oi[m, kk, p] = o.imag
-
-
-@nb.njit(inline="always", **_JIT)
-def _fac(fl, fm, full, use_full, l, m):
-    if use_full:
-        return full[l, m]
-    return fl[l] * fm[m]
-
-
-@nb.njit(parallel=True, **_JIT)
-def square_to_tri(coef, fl, fm, full, use_full, offs, mlo, mhi, tri):
-    """tri[k, offs[m] + l - m] = f(l, m) coef[k, l, m] for orders mlo..mhi.
-
-    f(l, m) = full[l, m] when use_full, else fl[l] * fm[m]."""
-    K, L1, _ = coef.shape
-    for l in nb.prange(L1):
-        for kk in range(K):
-            for m in range(mlo, min(l, mhi) + 1):
-                tri[kk, offs[m] + l - m] = _fac(fl, fm, full, use_full, l, m) * coef[kk, l, m]
 
 
 @nb.njit(parallel=True, **_JIT)

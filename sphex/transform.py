@@ -192,16 +192,6 @@ def _tri_offsets(lmax: int) -> np.ndarray:
     return m * (lmax + 1) - m * (m - 1) // 2
 
 
-def _to_tri(coef: np.ndarray, fac: "_Factor", mlo: int = 0, mhi: int | None = None) -> np.ndarray:
-    """(K, L+1, L+1) square coefficients -> (K, ntri) order-by-order, times fac."""
-    lmax = coef.shape[-1] - 1
-    mhi = lmax if mhi is None else mhi
-    offs = _tri_offsets(lmax)
-    tri = np.zeros((coef.shape[0], int(offs[-1])), dtype=np.complex128)
-    _kernels.square_to_tri(coef, *fac.args(), offs, mlo, mhi, tri)
-    return tri
-
-
 def _analysis(values: np.ndarray, grid: Grid, lmax: int, fac: "_Factor") -> np.ndarray:
     """values: (K, nlat, nlon) of any real dtype -> (K, lmax+1, lmax+1) in fac's convention.
 
@@ -232,57 +222,77 @@ def _analysis(values: np.ndarray, grid: Grid, lmax: int, fac: "_Factor") -> np.n
     return coef
 
 
-def _synthesis_passes(grid: Grid, K: int, M_out: int, passes, out: np.ndarray) -> None:
-    """Legendre synthesis passes band by band, then Fourier synthesis into ``out``.
+def _synthesis_passes(grid: Grid, K: int, M_out: int, passes, ntarget: int) -> list[np.ndarray]:
+    """Legendre synthesis passes band by band, each band followed by its Fourier synthesis.
 
     ``passes``: (target, coef, fac, mlo, mhi, dm, scale, shift) tuples; the
     pass adds ``scale[m - mlo] sum_l fac coef Lambda_lm`` (``/ sin theta``
-    when shift=1) to Fourier order ``m + dm`` of ``out[target]``
-    (``out``: (targets, K, nlat, nlon))."""
+    when shift=1) to Fourier order ``m + dm`` of target ``target``.  Returns
+    one (K, nlat, nlon) array per target.
+
+    The kernel writes each band's Fourier coefficients straight into the
+    buffer of the inverse FFT, rows in grid order, already multiplied by
+    ``nlon`` and the phase of the first longitude; a single band (every grid
+    up to a few thousand degrees) makes the FFT's result the output itself."""
     pairs = _pairs(grid)
     lmax = passes[0][1].shape[-1] - 1
     cm = sectoral_table(lmax)
-    offs = _tri_offsets(lmax)
-    tris = [_to_tri(p[1], p[2], p[3], p[4]) for p in passes]
-    ntarget = out.shape[0]
-    for b0, b1 in _bands(pairs.n, M_out):
+    N = grid.nlon
+    direct = M_out - 1 < (N + 1) // 2  # no folding beyond the Nyquist frequency needed
+    W = N // 2 + 1 if direct else M_out
+    phase = _phase(max(W, M_out), grid) * N
+    bands = _bands(pairs.n, M_out)
+    out: list = [None] * ntarget
+    if len(bands) > 1:
+        out = [np.empty((K,) + grid.shape) for _ in range(ntarget)]
+    for b0, b1 in bands:
         band = _Band(pairs, b0, b1)
-        FN = np.zeros((ntarget, K, band.n, M_out), dtype=np.complex128)
-        FS = np.zeros((ntarget, K, band.n, M_out), dtype=np.complex128)
-        for (target, coef, fac, mlo, mhi, dm, scale, shift), tri in zip(passes, tris):
+        rn = band.north
+        rs = np.where(band.south == band.north, -1, band.south)  # an equator ring once
+        X = [None] * ntarget
+        for target, coef, fac, mlo, mhi, dm, scale, shift in passes:
+            first = X[target] is None
+            if first:
+                X[target] = np.empty((K, band.rows.size, W), dtype=np.complex128)
+                if mhi < mlo:
+                    X[target][...] = 0.0
+                else:
+                    X[target][..., :mlo + dm] = 0.0
+                    X[target][..., mhi + dm + 1:] = 0.0
             if mhi < mlo:
                 continue
             nlive = np.clip(_live(grid, lmax, mlo, mhi, shift) - b0, 0, band.n)
-            _kernels.synthesis_kernel(lmax, mlo, mhi, band.x, band.s, cm, nlive, tri, offs,
-                                      FN[target], FS[target], dm,
-                                      np.asarray(scale, dtype=np.complex128), shift)
-        ok_n = band.north >= 0
-        ok_s = band.south >= 0
+            sc = np.asarray(scale, dtype=np.complex128)[:mhi - mlo + 1] * phase[mlo + dm:mhi + dm + 1]
+            _kernels.synthesis_kernel(lmax, mlo, mhi, band.x, band.s, cm, nlive, coef,
+                                      *fac.args(), X[target], rn, rs, dm, sc, shift,
+                                      not first)
         for t in range(ntarget):
-            vs = _fourier_synthesis(FS[t][:, ok_s, :], grid)
-            out[t][:, band.rows[band.south[ok_s]], :] = vs
-            vn = _fourier_synthesis(FN[t][:, ok_n, :], grid)
-            out[t][:, band.rows[band.north[ok_n]], :] = vn  # an equator ring: north wins
+            if X[t] is None:
+                X[t] = np.zeros((K, band.rows.size, W), dtype=np.complex128)
+            v = _fourier_synthesis(X[t], N, direct)
+            X[t] = None
+            if len(bands) == 1 and band.rows.size == grid.nlat:
+                out[t] = v  # rows of a single band are all rows, in grid order
+            else:
+                out[t][:, band.rows, :] = v
+    return out
 
 
-def _fourier_synthesis(G: np.ndarray, grid: Grid) -> np.ndarray:
-    """G: (K, nlat, M) with orders 0..M-1 -> real values (K, nlat, nlon)."""
-    K, nlat, M = G.shape
-    N = grid.nlon
-    shift = _phase(M, grid) * N
-    if M - 1 < (N + 1) // 2:  # no folding needed (Nyquist excluded for even N)
-        X = np.zeros((K, nlat, N // 2 + 1), dtype=np.complex128)
-        np.multiply(G, shift, out=X[..., :M])
-        X[..., 0].imag = 0.0
+def _fourier_synthesis(X: np.ndarray, N: int, direct: bool) -> np.ndarray:
+    """X: (K, rows, W) scaled Fourier coefficients -> real values (K, rows, N).
+
+    ``direct``: X holds orders 0..N//2 and goes to the inverse real FFT as it
+    is (overwritten).  Otherwise X holds orders 0..W-1 beyond the Nyquist
+    frequency of a coarse target, folded onto the N frequencies first (an
+    exact evaluation of the series at the grid's longitudes)."""
+    if direct:
         return scipy.fft.irfft(X, n=N, axis=-1, workers=_workers(), overwrite_x=True)
-    G = G * shift
-    # coarse target: fold orders beyond the Nyquist frequency (exact evaluation)
-    X = np.zeros((K, nlat, N), dtype=np.complex128)
-    m = np.arange(M)
-    np.add.at(X, (slice(None), slice(None), m % N), G)
-    np.add.at(X, (slice(None), slice(None), (-m[1:]) % N), np.conj(G[..., 1:]))
-    X[..., 0] -= 1j * G[..., 0].imag  # the m = 0 term is real
-    return scipy.fft.ifft(X, axis=-1, workers=_workers()).real
+    K, rows, W = X.shape
+    Y = np.zeros((K, rows, N), dtype=np.complex128)
+    m = np.arange(W)
+    np.add.at(Y, (slice(None), slice(None), m % N), X)
+    np.add.at(Y, (slice(None), slice(None), (-m[1:]) % N), np.conj(X[..., 1:]))
+    return scipy.fft.ifft(Y, axis=-1, workers=_workers()).real
 
 
 # ---------------------------------------------------------------------------
@@ -424,8 +434,7 @@ def synthesize(h: Harmonics, grid: Grid) -> np.ndarray:
     grid = _check_grid(grid)
     c, fac = _batched(h)
     K, L1, _ = c.shape
-    out = np.empty((1, K) + grid.shape)
-    _synthesis_passes(grid, K, L1, [(0, c, fac, 0, L1 - 1, 0, np.ones(L1), 0)], out)
+    out = _synthesis_passes(grid, K, L1, [(0, c, fac, 0, L1 - 1, 0, np.ones(L1), 0)], 1)
     return out[0].reshape(h.batch_shape + grid.shape)
 
 
@@ -469,13 +478,12 @@ def synthesize_gradient(h: Harmonics, grid: Grid) -> tuple[np.ndarray, np.ndarra
     c2 = np.zeros_like(c)
     c2[:, :, 1:] = -c[:, :, :-1] * (full * dn)[None, :, :-1]     # function order mu = m + 1
     one = _factor(lmax, "ortho", False, "ortho", False)
-    out = np.empty((2, K) + grid.shape)
     ones = np.ones(L1)
     passes = [(0, c1, one, 0, lmax - 1, +1, ones, 0),                 # d/dtheta from order m - 1
               (0, c2, one, 1, lmax, -1, ones, 0),                     # d/dtheta from order m + 1
               (1, c, fac, 1, lmax, 0, 1j * np.arange(1, L1), 1)]      # (1/sin theta) d/dphi
-    _synthesis_passes(grid, K, L1, passes, out)
-    north = -out[0]
+    out = _synthesis_passes(grid, K, L1, passes, 2)
+    north = np.negative(out[0], out=out[0])
     east = out[1]
     return east.reshape(shape), north.reshape(shape)
 
