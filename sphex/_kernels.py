@@ -459,26 +459,42 @@ def _advance4_store(l, n, xl, P, Q, a, c, T):
         Q[j] = t3
 
 
+@nb.njit(inline="always", **_JIT)
+def _pair_sums(F, kk, rn, rs, wn, ws, sc, j, col):
+    """sc (wn F[north] + ws F[south]) and sc (wn F[north] - ws F[south]) of pair j."""
+    vn = 0j
+    vs = 0j
+    if rn[j] >= 0:
+        vn = wn[j] * F[kk, rn[j], col]
+    if rs[j] >= 0:
+        vs = ws[j] * F[kk, rs[j], col]
+    return sc * (vn + vs), sc * (vn - vs)
+
+
 @nb.njit(parallel=True, fastmath=_FM, **_JIT)
-def analysis_kernel(lmax, mlo, mhi, x, s, cm, live, Er, Ei, Or, Oi, tri, offs, shift):
-    """Accumulate ortho, phase-free a_lm from even/odd Fourier sums.
+def analysis_kernel(lmax, mlo, mhi, x, s, cm, live, F, rn, rs, wn, ws, scale,
+                    fl, fm, full, use_full, coef, shift):
+    """Add f(l, m) a_lm (see :func:`_fac`) of the rows' Fourier coefficients to coef.
 
     x, s: (J,) cos and sin of the northern colatitude of each latitude pair,
-    ordered from the equator toward the pole.  Er, Ei, Or, Oi: (M, K, J),
-    M = mhi - mlo + 1: quadrature-weighted north + south (E) and north - south
-    (O) sums of the Fourier coefficient of order m.  live: (M,) number of
-    latitudes (a prefix) on which order m is not negligible.  tri: complex
-    (K, ntri) coefficients stored order by order (a_lm at offs[m] + l - m),
-    added to.
+    ordered from the equator toward the pole.  F: complex (K, rows, nfreq),
+    the forward real FFT of the rows; pair j has its northern ring in row
+    rn[j] and its southern one in row rs[j] (-1 for a missing ring) with
+    quadrature weights wn[j], ws[j].  Column m of F times scale[m - mlo]
+    gives order m.  live: number of latitudes (a prefix) on which order m is
+    not negligible.  coef: complex (K, L+1, L+1) indexed [l, m], added to;
+    order 0 gets real parts only.
     shift = 1 evaluates Lambda / sin(theta).
 
-    Each pass over the latitudes advances the recursion by four degrees in
-    registers (loads and stores once per four degrees), and the latitude loop
-    is long, contiguous and vectorised.  Latitudes still in scaled range take
-    part in the recursion but are masked out of the sums until their values
-    become plain doubles (checked every CHECK_EVERY degrees).
+    Per order, the pair sums north + south (even degrees) and north - south
+    (odd degrees) are formed once; each pass over the latitudes then
+    advances the recursion by four degrees in registers (loads and stores
+    once per four degrees), and the latitude loop is long, contiguous and
+    vectorised.  Latitudes still in scaled range take part in the recursion
+    but are masked out of the sums until their values become plain doubles
+    (checked every CHECK_EVERY degrees).
     """
-    K = Er.shape[1]
+    K = F.shape[0]
     nm = mhi - mlo + 1
     for i in nb.prange(nm):
         m = _order_of(i, nm, mlo)
@@ -489,6 +505,7 @@ def analysis_kernel(lmax, mlo, mhi, x, s, cm, live, Er, Ei, Or, Oi, tri, offs, s
         n = live[mi]
         if n == 0:
             continue
+        sc = scale[mi]
         outr = np.zeros((K, lmax + 1))
         outi = np.zeros((K, lmax + 1))
         P = np.empty(n)
@@ -498,11 +515,12 @@ def analysis_kernel(lmax, mlo, mhi, x, s, cm, live, Er, Ei, Or, Oi, tri, offs, s
         fe = np.empty((K, 4, n))
         for kk in range(K):
             for j in range(n):
+                e, o = _pair_sums(F, kk, rn, rs, wn, ws, sc, j, m)
                 on = 1.0 if k[j] == 0 else 0.0
-                fe[kk, 0, j] = Er[mi, kk, j] * on
-                fe[kk, 1, j] = Ei[mi, kk, j] * on
-                fe[kk, 2, j] = Or[mi, kk, j] * on
-                fe[kk, 3, j] = Oi[mi, kk, j] * on
+                fe[kk, 0, j] = e.real * on
+                fe[kk, 1, j] = e.imag * on
+                fe[kk, 2, j] = o.real * on
+                fe[kk, 3, j] = o.imag * on
         T = np.empty((4, n if K > 1 else 1))
         xl = x[:n]
         # degree m (even)
@@ -523,10 +541,11 @@ def analysis_kernel(lmax, mlo, mhi, x, s, cm, live, Er, Ei, Or, Oi, tri, offs, s
                     if _rescale(P, Q, k, j):
                         nscaled -= 1
                         for kk in range(K):
-                            fe[kk, 0, j] = Er[mi, kk, j]
-                            fe[kk, 1, j] = Ei[mi, kk, j]
-                            fe[kk, 2, j] = Or[mi, kk, j]
-                            fe[kk, 3, j] = Oi[mi, kk, j]
+                            e, o = _pair_sums(F, kk, rn, rs, wn, ws, sc, j, m)
+                            fe[kk, 0, j] = e.real
+                            fe[kk, 1, j] = e.imag
+                            fe[kk, 2, j] = o.real
+                            fe[kk, 3, j] = o.imag
             if l + 4 <= lmax:
                 a1 = a[l + 1]
                 a2 = a[l + 2]
@@ -633,10 +652,10 @@ def analysis_kernel(lmax, mlo, mhi, x, s, cm, live, Er, Ei, Or, Oi, tri, offs, s
                         si += P[j] * fi[j]
                     outr[kk, l] += sr
                     outi[kk, l] += si
-        o = offs[m] - m
         for kk in range(K):
             for l in range(m, lmax + 1):
-                tri[kk, o + l] += complex(outr[kk, l], outi[kk, l])
+                im = outi[kk, l] if m > 0 else 0.0
+                coef[kk, l, m] += _fac(fl, fm, full, use_full, l, m) * complex(outr[kk, l], im)
 
 
 @nb.njit(inline="always", fastmath=_FM, **_JIT)
@@ -880,40 +899,3 @@ def live_counts(lmax, mlo, mhi, x, s, cm, shift, out):
         c = np.empty(lmax + 1)
         _recursion_coeffs(m, lmax, a, c)
         out[m - mlo] = _live_count(m, lmax, x, s, cm[m], shift, a, c)
-
-
-@nb.njit(parallel=True, **_JIT)
-def pack_pairs(F, north, south, wn, ws, scale, Er, Ei, Or, Oi):
-    """E/O[m, k, p] = scale[m] (wn F[k, north_p, m] +- ws F[k, south_p, m]).
-
-    F: (K, rows, nfreq) complex; a row index of -1 stands for a missing ring."""
-    M = Er.shape[0]
-    K = F.shape[0]
-    J = north.size
-    for m in nb.prange(M):
-        sc = scale[m]
-        for kk in range(K):
-            for p in range(J):
-                vn = 0j
-                vs = 0j
-                if north[p] >= 0:
-                    vn = wn[p] * sc * F[kk, north[p], m]
-                if south[p] >= 0:
-                    vs = ws[p] * sc * F[kk, south[p], m]
-                e = vn + vs
-                o = vn - vs
-                Er[m, kk, p] = e.real
-                Ei[m, kk, p] = e.imag
-                Or[m, kk, p] = o.real
-                Oi[m, kk, p] = o.imag
-
-
-@nb.njit(parallel=True, **_JIT)
-def tri_to_square(tri, fl, fm, full, use_full, offs, coef):
-    """coef[k, l, m] = f(l, m) tri[k, offs[m] + l - m]; m = 0 made real."""
-    K, L1, _ = coef.shape
-    for l in nb.prange(L1):
-        for kk in range(K):
-            coef[kk, l, 0] = _fac(fl, fm, full, use_full, l, 0) * tri[kk, offs[0] + l].real
-            for m in range(1, l + 1):
-                coef[kk, l, m] = _fac(fl, fm, full, use_full, l, m) * tri[kk, offs[m] + l - m]

@@ -186,39 +186,32 @@ class _Band:
         self.n = b1 - b0
 
 
-def _tri_offsets(lmax: int) -> np.ndarray:
-    """Start of order m in order-by-order (triangular) storage; last entry is the size."""
-    m = np.arange(lmax + 2, dtype=np.int64)
-    return m * (lmax + 1) - m * (m - 1) // 2
-
-
 def _analysis(values: np.ndarray, grid: Grid, lmax: int, fac: "_Factor") -> np.ndarray:
     """values: (K, nlat, nlon) of any real dtype -> (K, lmax+1, lmax+1) in fac's convention.
 
-    Latitude bands are transformed one at a time (FFT, packing, Legendre
-    stage), so memory beyond input and output stays small at any degree."""
+    Latitude bands are transformed one at a time (FFT, then the Legendre
+    stage reading the FFT's rows), so memory beyond input and output stays
+    small at any degree; a single band (every grid up to a few thousand
+    degrees) hands the FFT the input itself."""
     pairs = _pairs(grid)
     K = values.shape[0]
     M = min(lmax, grid.nlon // 2) + 1
     live = _live(grid, lmax, 0, M - 1, 0)
     scale = (2 * np.pi / grid.nlon) * np.conj(_phase(M, grid))
     cm = sectoral_table(lmax)
-    offs = _tri_offsets(lmax)
     coef = np.zeros((K, lmax + 1, lmax + 1), dtype=np.complex128)
-    tri = np.zeros((K, int(offs[-1])), dtype=np.complex128)
-    for b0, b1 in _bands(pairs.n, M):
+    bands = _bands(pairs.n, M)
+    for b0, b1 in bands:
         band = _Band(pairs, b0, b1)
-        block = np.asarray(values[:, band.rows, :], dtype=np.float64)
-        F = scipy.fft.rfft(block, axis=-1, workers=_workers())
+        if len(bands) == 1 and band.rows.size == grid.nlat:
+            block = values  # every row, in grid order
+        else:
+            block = values[:, band.rows, :]
+        F = scipy.fft.rfft(np.asarray(block, dtype=np.float64), axis=-1, workers=_workers())
         del block
-        Er, Ei, Or, Oi = (np.empty((M, K, band.n)) for _ in range(4))
-        _kernels.pack_pairs(F, band.north, band.south, band.wn, band.ws, scale, Er, Ei, Or, Oi)
-        del F
         nlive = np.clip(live - b0, 0, band.n)
-        _kernels.analysis_kernel(lmax, 0, M - 1, band.x, band.s, cm, nlive, Er, Ei, Or, Oi,
-                                 tri, offs, 0)
-    _kernels.tri_to_square(tri, *fac.args(), offs, coef)
-    coef[:, :, 0] = coef[:, :, 0].real
+        _kernels.analysis_kernel(lmax, 0, M - 1, band.x, band.s, cm, nlive, F, band.north,
+                                 band.south, band.wn, band.ws, scale, *fac.args(), coef, 0)
     return coef
 
 
