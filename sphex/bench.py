@@ -98,28 +98,36 @@ def _peak_memory(lmax: int) -> dict:
             "def reset(): open('/proc/self/clear_refs', 'w').write('5')\n"
             f"L = {lmax}\n"
             "g = Grid.gauss(L)\n"
-            "rng = np.random.default_rng(1)\n"
-            "c = np.zeros((L + 1, L + 1), complex)\n"
-            "for l0 in range(0, L + 1, 256):\n"
-            "    l1 = min(L + 1, l0 + 256)\n"
+            "def rows(l0, l1, rng):\n"
             "    b = rng.standard_normal((l1 - l0, L + 1)) + 1j * rng.standard_normal((l1 - l0, L + 1))\n"
             "    b[np.arange(l0, l1)[:, None] < np.arange(L + 1)[None, :]] = 0\n"
             "    b[:, 0] = b[:, 0].real\n"
-            "    c[l0:l1] = b\n"
-            "del b\n"
+            "    return b\n"
+            "rng = np.random.default_rng(1)\n"
+            "c = np.zeros((L + 1, L + 1), complex)\n"
+            "for l0 in range(0, L + 1, 256):\n"
+            "    c[l0:l0 + 256] = rows(l0, min(L + 1, l0 + 256), rng)\n"
             "base = hwm()\n"
             "h = Harmonics(c); del c\n"
             "reset(); t = time.perf_counter(); v = synthesize(h, g); ts = time.perf_counter() - t\n"
             "peak_s = hwm()\n"
-            "ref = h.coef[:, :64].copy(); amax = float(np.abs(h.coef).max()); del h\n"
+            "del h\n"
             "reset(); t = time.perf_counter(); h2 = analyze(v, g); ta = time.perf_counter() - t\n"
             "peak_a = hwm()\n"
-            "print(base, peak_s, peak_a, ts, ta)\n")
+            "del v\n"
+            "# round trip: the same random rows again, compared block by block\n"
+            "rng = np.random.default_rng(1); err = 0.0; amax = 0.0\n"
+            "for l0 in range(0, L + 1, 256):\n"
+            "    b = rows(l0, min(L + 1, l0 + 256), rng)\n"
+            "    err = max(err, float(np.abs(h2.coef[l0:l0 + 256] - b).max()))\n"
+            "    amax = max(amax, float(np.abs(b).max()))\n"
+            "print(base, peak_s, peak_a, ts, ta, err / amax)\n")
     out = subprocess.run([sys.executable, "-c", code], capture_output=True, text=True, check=True)
-    base, peak_s, peak_a, ts, ta = out.stdout.split()[-5:]
+    base, peak_s, peak_a, ts, ta, err = out.stdout.split()[-6:]
     return {"baseline_rss_bytes": int(base), "peak_rss_synthesis_bytes": int(peak_s),
             "peak_rss_analysis_bytes": int(peak_a), "peak_rss_bytes": max(int(peak_s), int(peak_a)),
-            "subprocess_synthesis_s": float(ts), "subprocess_analysis_s": float(ta)}
+            "subprocess_synthesis_s": float(ts), "subprocess_analysis_s": float(ta),
+            "subprocess_roundtrip_error": float(err)}
 
 
 def cold_start(tmpdir: str | None = None) -> dict:
@@ -194,7 +202,7 @@ def run(sizes=DEFAULT_SIZES, batch: tuple[int, int] | None = (511, 32), memory: 
                  synthesis_ratio=r["synthesis_s"] / roof,
                  analysis_ns_per_element=r["analysis_s"] / r["elements"] * 1e9,
                  synthesis_ns_per_element=r["synthesis_s"] / r["elements"] * 1e9,
-                 roundtrip_error=float("nan"))
+                 roundtrip_error=r["subprocess_roundtrip_error"])
         rows.append(r)
     if cold:
         result["cold_start"] = cold_start()
