@@ -335,7 +335,7 @@ def _fac(fl, fm, full, use_full, l, m):
 
 @nb.njit(inline="always", **_JIT)
 def _order_of(i, nm, lo):
-    """Balanced order sequence: lo, top, lo+1, top-1, ... (pairs costly and cheap)."""
+    """Order sequence lo, top, lo+1, top-1, ... (costly and cheap in pairs)."""
     h = i // 2
     if i % 2 == 0:
         return lo + h
@@ -472,7 +472,7 @@ def _pair_sums(F, kk, rn, rs, wn, ws, sc, j, col):
 
 
 @nb.njit(parallel=True, fastmath=_FM, **_JIT)
-def analysis_kernel(lmax, mlo, mhi, x, s, cm, live, F, rn, rs, wn, ws, scale,
+def analysis_kernel(lmax, mlo, seq, x, s, cm, live, F, rn, rs, wn, ws, scale,
                     fl, fm, full, use_full, coef, shift):
     """Add f(l, m) a_lm (see :func:`_fac`) of the rows' Fourier coefficients to coef.
 
@@ -480,8 +480,9 @@ def analysis_kernel(lmax, mlo, mhi, x, s, cm, live, F, rn, rs, wn, ws, scale,
     ordered from the equator toward the pole.  F: complex (K, rows, nfreq),
     the forward real FFT of the rows; pair j has its northern ring in row
     rn[j] and its southern one in row rs[j] (-1 for a missing ring) with
-    quadrature weights wn[j], ws[j].  Column m of F times scale[m - mlo]
-    gives order m.  live: number of latitudes (a prefix) on which order m is
+    quadrature weights wn[j], ws[j].  seq: the orders, mlo and up, in the
+    sequence the threads take them (see transform._order_sequence).  Column m
+    of F times scale[m - mlo] gives order m.  live: number of latitudes (a prefix) on which order m is
     not negligible.  coef: complex (K, L+1, L+1) indexed [l, m], added to;
     order 0 gets real parts only.
     shift = 1 evaluates Lambda / sin(theta).
@@ -495,9 +496,8 @@ def analysis_kernel(lmax, mlo, mhi, x, s, cm, live, F, rn, rs, wn, ws, scale,
     (checked every CHECK_EVERY degrees).
     """
     K = F.shape[0]
-    nm = mhi - mlo + 1
-    for i in nb.prange(nm):
-        m = _order_of(i, nm, mlo)
+    for i in nb.prange(seq.size):
+        m = seq[i]
         mi = m - mlo
         a = np.empty(lmax + 1)
         c = np.empty(lmax + 1)
@@ -719,12 +719,14 @@ def _syn8(l, n, xl, P, Q, a, c, ar, ai, g):
 
 
 @nb.njit(parallel=True, fastmath=_FM, **_JIT)
-def synthesis_kernel(lmax, mlo, mhi, x, s, cm, live, coef, fl, fm, full, use_full,
+def synthesis_kernel(lmax, mlo, seq, x, s, cm, live, coef, fl, fm, full, use_full,
                      X, rn, rs, dm, scale, shift, accumulate):
     """Fourier coefficients of grid rows from a_lm, order by order.
 
     coef: complex (K, L+1, L+1) indexed [l, m]; times f(l, m) (see
-    :func:`_fac`) it is ortho and phase-free.  X: complex (K, rows, nfreq),
+    :func:`_fac`) it is ortho and phase-free.  seq: the orders, mlo and up,
+    in the sequence the threads take them (see transform._order_sequence).
+    X: complex (K, rows, nfreq),
     ready for an inverse real FFT along its last axis: column m + dm of row
     rn[j] (northern ring of pair j) and rs[j] (southern ring; -1 for none)
     gets scale[m - mlo] * sum_l a_lm Lambda_lm, added when ``accumulate``
@@ -736,9 +738,8 @@ def synthesis_kernel(lmax, mlo, mhi, x, s, cm, live, coef, fl, fm, full, use_ful
     """
     K = coef.shape[0]
     J = x.size
-    nm = mhi - mlo + 1
-    for i in nb.prange(nm):
-        m = _order_of(i, nm, mlo)
+    for i in nb.prange(seq.size):
+        m = seq[i]
         mi = m - mlo
         mo = m + dm
         n = live[mi]

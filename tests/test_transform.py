@@ -399,6 +399,23 @@ def test_latitude_bands_give_the_same_fields(rng, monkeypatch, grid):
     assert rel_err(coef, h.coef) < 1e-11
 
 
+@pytest.mark.parametrize("nthreads", [1, 2, 3, 4])
+def test_order_sequence_covers_each_order_once_and_balances_threads(nthreads):
+    # the kernels take orders in this sequence; numba hands each thread an equal contiguous
+    # chunk of the parallel loop, so each chunk must carry about the same work
+    from sphex import transform
+
+    lmax = 1023
+    grid = Grid.gauss(lmax)
+    live = transform._live(grid, lmax, 0, lmax, 0)
+    work = (lmax + 1 - np.arange(lmax + 1)) * live
+    seq = transform._order_sequence(0, lmax, nthreads)
+    assert sorted(seq.tolist()) == list(range(lmax + 1))
+    loads = [work[chunk].sum() for chunk in np.array_split(seq, nthreads)]
+    assert max(loads) / np.mean(loads) < 1.01
+    assert sorted(transform._order_sequence(1, 20, nthreads).tolist()) == list(range(1, 21))
+
+
 # --------------------------------------------------------------------------------------
 # Gradient and regridding
 # --------------------------------------------------------------------------------------
