@@ -178,13 +178,13 @@ def _build_parser() -> _Parser:
     q.add_argument("input", metavar="IN.nc")
     q.add_argument("-v", "--var", metavar="VAR", help="variable (optional if only one is gridded)")
     g = q.add_mutually_exclusive_group(required=True)
-    g.add_argument("--gaussian", type=_positive_float, metavar="RADIUS_KM",
+    g.add_argument("--gaussian", type=_km, metavar="RADIUS_KM",
                    help="Gaussian kernel, weight 1/2 at this distance")
     g.add_argument("--cap", type=_cap_radius, metavar="RADIUS_DEG",
                    help="average over spherical caps of this radius")
     g.add_argument("--band", type=_degree_range, metavar="L1:L2",
                    help="keep degrees <= L1, smooth roll-off to 0 at L2")
-    q.add_argument("--planet-radius", type=_positive_float, metavar="KM",
+    q.add_argument("--planet-radius", type=_km, metavar="KM",
                    help="sphere radius for --gaussian")
     q.add_argument("--lmax", type=_nonneg_int, metavar="N", help="degree limit of the analysis")
     out_args(q)
@@ -245,8 +245,24 @@ def _positive_float(text: str) -> float:
     return v
 
 
+def _strip_unit(text: str, units: tuple[str, ...]) -> str:
+    """'300km' or '300 km' -> '300' for an option measured in units[0]."""
+    t = text.strip()
+    for u in units:
+        if t.lower().endswith(u):
+            return t[: len(t) - len(u)].strip()
+    return t
+
+
+def _km(text: str) -> float:
+    t = _strip_unit(text, ("km",))
+    if t != text.strip() or not t.lower().endswith("m"):
+        return _positive_float(t)
+    raise argparse.ArgumentTypeError(f"{text!r}: give the distance in km (a number, 'km' optional)")
+
+
 def _cap_radius(text: str) -> float:
-    v = _positive_float(text)
+    v = _positive_float(_strip_unit(text, ("degrees", "degree", "deg", "\u00b0")))
     if v > 180:
         raise argparse.ArgumentTypeError(f"{text!r} must be at most 180 degrees")
     return v

@@ -119,6 +119,17 @@ def test_spectrum_csv_and_plot(files):
     assert "slope" in r.stdout
 
 
+@pytest.mark.parametrize("text,value", [("300", 300.0), ("300km", 300.0), ("300 km", 300.0),
+                                        ("2.5KM", 2.5)])
+def test_distances_in_km_may_carry_the_unit(text, value):
+    assert cli._km(text) == value
+
+
+@pytest.mark.parametrize("text", ["10", "10deg", "10 degrees", "10\u00b0"])
+def test_cap_radius_may_carry_the_unit(text):
+    assert cli._cap_radius(text) == 10.0
+
+
 def test_smooth_regrid_and_text_table(files):
     d = files["dir"]
     sm = d / "smooth.nc"
@@ -168,6 +179,8 @@ ERRORS = [
     (("analyze", "{series}", "-v", "tsurf", "--lmax", "45", "-o", "{out}"), ("exact limit 44",)),
     (("analyze", "{series}", "-v", "tsurf", "--norm", "geodesy", "-o", "{out}"), ("invalid choice",)),
     (("regrid", "{series}", "-v", "tsurf", "--grid", "gauss", "-o", "{out}"), ("gauss:LMAX",)),
+    (("smooth", "{series}", "-v", "tsurf", "--gaussian", "300m", "-o", "{out}"), ("in km",)),
+    (("smooth", "{series}", "-v", "tsurf", "--cap", "200deg", "-o", "{out}"), ("at most 180",)),
 ]
 
 
