@@ -180,11 +180,16 @@ def _order_sequence(mlo: int, mhi: int, nthreads: int) -> np.ndarray:
     return out
 
 
-BAND_BYTES = 1 << 25  # about 32 MB per packed array of a latitude band
+BAND_BYTES = 1 << 25  # pairs per band: BAND_BYTES / (8 M); see _bands
 
 
 def _bands(npairs: int, M: int) -> list[tuple[int, int]]:
-    """Latitude-pair bands (start, stop) small enough to bound memory."""
+    """Latitude-pair bands (start, stop) small enough to bound memory.
+
+    A band of BAND_BYTES / (8 M) pairs holds 4 BAND_BYTES (128 MB) of complex
+    FFT data per field (two rings per pair, about M frequencies each); every
+    grid with M * npairs up to about 4 million (lmax near 2900 on a Gauss
+    grid) is one band."""
     size = int(np.clip(BAND_BYTES // (8 * max(M, 1)), 64, max(npairs, 1)))
     if size < npairs:
         size -= size % 8
