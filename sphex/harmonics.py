@@ -45,6 +45,29 @@ def _real_form_factor(lmax: int, norm: str) -> np.ndarray:
     return r
 
 
+IMAG_TOL = 1e-10  # |Im a_l0| allowed, relative to the largest coefficient
+
+
+def _check_real_order_zero(coef: np.ndarray) -> None:
+    """A real field has real a_l0.  Rounding-level imaginary parts (below
+    IMAG_TOL of the largest coefficient) are tolerated and ignored by the
+    transforms; larger ones mean the input is not what the caller thinks."""
+    im = np.abs(coef[..., :, 0].imag)
+    if im.size == 0:
+        return
+    worst = float(np.max(im))
+    if not worst > 0:  # all zero (the usual case, O(lmax) to check) or NaN (refused later)
+        return
+    top = float(np.max(np.abs(coef)))
+    if worst > IMAG_TOL * top:
+        raise ValueError(
+            f"the order-0 coefficients a_l0 have imaginary parts up to {worst:.3g} "
+            f"({worst / top:.1e} of the largest coefficient): a real field has real a_l0. "
+            "Check the source of the coefficients (for real-form C, S use "
+            "Harmonics.from_cos_sin); to drop the imaginary parts set "
+            "coef[..., :, 0] = coef[..., :, 0].real")
+
+
 class Harmonics:
     """Spherical-harmonic coefficients of one real field or a batch of them.
 
@@ -52,7 +75,9 @@ class Harmonics:
     ----------
     coef : array_like, complex
         ``(..., lmax + 1, lmax + 1)`` indexed ``[..., l, m]`` for ``m >= 0``;
-        entries with ``m > l`` must be zero and ``a_l0`` real.
+        entries with ``m > l`` must be zero (they are ignored) and ``a_l0``
+        real (``ValueError`` when an imaginary part exceeds 1e-10 of the
+        largest coefficient; smaller ones are ignored).
     norm : {"ortho", "4pi", "schmidt", "unnorm"}
     condon_shortley : bool
         Whether the functions include the phase ``(-1)^m``.
@@ -78,6 +103,7 @@ class Harmonics:
         if coef.ndim < 2 or coef.shape[-1] != coef.shape[-2]:
             raise ValueError(f"coef must have shape (..., lmax+1, lmax+1), got {coef.shape}")
         self.coef = coef.astype(np.complex128, copy=False)
+        _check_real_order_zero(self.coef)
         self.norm = check_norm(norm)
         self.condon_shortley = bool(condon_shortley)
         if radius is not None:

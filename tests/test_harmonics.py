@@ -63,6 +63,27 @@ def test_non_square_coefficients_rejected():
         Harmonics(np.zeros((4, 5), complex))
 
 
+def test_imaginary_order_zero_coefficients_rejected():
+    # a real field has real a_l0 (common practice: a_l,-m = (-1)^m conj(a_lm) at m = 0)
+    c = np.tril(np.ones((4, 4), complex))
+    c[2, 0] = 1.0 + 0.5j
+    with pytest.raises(ValueError, match=r"a_l0.*imaginary.*coef\[\.\.\., :, 0\]"):
+        Harmonics(c)
+    with pytest.raises(ValueError, match="a_l0"):
+        Harmonics(np.stack([np.tril(np.ones((4, 4), complex)), c]))  # one field of a batch
+
+
+def test_rounding_level_imaginary_order_zero_is_tolerated_and_ignored():
+    from sphex import Grid, synthesize
+
+    c = np.tril(np.ones((4, 4), complex))
+    h_real = Harmonics(c)
+    c[1, 0] += 1e-14j
+    h = Harmonics(c)
+    grid = Grid.gauss(3)
+    assert np.array_equal(synthesize(h, grid), synthesize(h_real, grid))
+
+
 # --------------------------------------------------------------------------------------
 # Convention conversion
 # --------------------------------------------------------------------------------------
