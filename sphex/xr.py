@@ -682,9 +682,26 @@ def _blocks(total: int) -> int:
     return max(1, min(64, math.ceil(total / 20)))
 
 
-def _analyze_np(values: np.ndarray, *, info: GridInfo, lmax: int, norm: str, cs: bool,
-                allow_aliasing: bool, progress: Callable[[int, int], None] | None
-                ) -> tuple[np.ndarray, np.ndarray]:
+def _check_block(block: np.ndarray, start: int, pos: np.ndarray | None,
+                 batch: tuple[int, ...], where: "_FieldNames | None") -> None:
+    """In a dask task: name the fields of ``block`` (fields start.. of the
+    task's batch) that hold NaN or inf.  ``pos`` holds the flat positions of
+    the task's fields in the whole batch."""
+    if where is None or np.isfinite(block.sum()):  # the sum: one cheap pass when all is well
+        return
+    finite = np.isfinite(block)
+    bad = ~finite.reshape(block.shape[0], -1).all(axis=1)
+    if bad.any():
+        idx = np.arange(start, start + block.shape[0])[bad]
+        if pos is not None:
+            idx = np.broadcast_to(pos, batch).reshape(-1)[idx]
+        raise ValueError(where.message(idx, int(finite.size - np.count_nonzero(finite))))
+
+
+def _analyze_np(values: np.ndarray, pos: np.ndarray | None = None, *, info: GridInfo,
+                lmax: int, norm: str, cs: bool, allow_aliasing: bool,
+                progress: Callable[[int, int], None] | None,
+                where: "_FieldNames | None" = None) -> tuple[np.ndarray, np.ndarray]:
     from sphex.transform import analyze as _analyze
 
     values = np.asarray(values)[..., list(info.take)]
@@ -697,6 +714,7 @@ def _analyze_np(values: np.ndarray, *, info: GridInfo, lmax: int, norm: str, cs:
     for i in range(0, n, step):
         block = np.ascontiguousarray(flat[i:i + step], dtype=np.float64)
         kw = {"allow_aliasing": True} if allow_aliasing else {}
+        _check_block(block, i, pos, batch, where)
         h = _analyze(block, info.grid, lmax=lmax, norm=norm, condon_shortley=cs, **kw)
         c, s = h.cos_sin()
         c_out[i:i + step] = c
@@ -741,13 +759,72 @@ def _maybe_grid(da: xr.DataArray) -> bool:
     return True
 
 
-def _check_complete(da: xr.DataArray) -> None:
+class _FieldNames:
+    """Turns flat field indices of a batch into names like ``time=2001-03-04``.
+
+    Small and picklable: it travels with dask tasks, which see only their own
+    block of fields (their flat positions come in as an extra input)."""
+
+    MAX_LISTED = 5
+
+    def __init__(self, da: xr.DataArray, core: tuple[Hashable, Hashable]):
+        self.name = repr(da.name) if da.name is not None else "the field"
+        self.dims = [d for d in da.dims if d not in core]
+        self.shape = tuple(int(da.sizes[d]) for d in self.dims)
+        self.coords = {d: (np.asarray(da[d].values) if d in da.coords else None)
+                       for d in self.dims}
+
+    def _label(self, flat: int) -> str:
+        if not self.dims:
+            return "the only field"
+        at = np.unravel_index(int(flat), self.shape)
+        parts = []
+        for d, k in zip(self.dims, at):
+            c = self.coords[d]
+            if c is None:
+                parts.append(f"{d} index {int(k)}")
+                continue
+            v = c[k]
+            if np.issubdtype(c.dtype, np.datetime64):
+                v = np.datetime_as_string(v, unit="s").replace("T00:00:00", "")
+            parts.append(f"{d}={v} (index {int(k)})")
+        return ", ".join(parts)
+
+    def message(self, flat_positions: np.ndarray, nbad: int | None = None) -> str:
+        flat_positions = np.asarray(flat_positions).reshape(-1)
+        listed = "; ".join(self._label(p) for p in flat_positions[: self.MAX_LISTED])
+        more = len(flat_positions) - self.MAX_LISTED
+        tail = f" and {more} more fields" if more > 0 else ""
+        count = "missing values (NaN or inf)" if nbad is None else \
+            f"{nbad} missing value{'s' if nbad != 1 else ''} (NaN or inf)"
+        return (f"{self.name} has {count}, in {listed}{tail}; spherical-harmonic analysis "
+                "needs complete global fields (fill the gaps first, or select the complete "
+                "steps with .sel / .isel)")
+
+
+def _positions(da: xr.DataArray, core: tuple[Hashable, Hashable]
+               ) -> tuple[xr.DataArray, "_FieldNames | None"]:
+    """Flat field positions over the non-core dimensions (chunked like ``da``),
+    and the namer the tasks use with them; for numpy input, which is checked
+    whole before any task runs, a 0-d position and no namer."""
+    if isinstance(da.data, np.ndarray):
+        return xr.DataArray(0), None
+    names = _FieldNames(da, core)
+    pos = xr.DataArray(np.arange(math.prod(names.shape), dtype=np.int64).reshape(names.shape),
+                       dims=names.dims)
+    chunks = {d: da.chunksizes[d] for d in names.dims}
+    return (pos.chunk(chunks) if chunks else pos), names
+
+
+def _check_complete(da: xr.DataArray, core: tuple[Hashable, Hashable]) -> None:
     if isinstance(da.data, np.ndarray) and da.dtype.kind in "fc":
-        bad = int(np.count_nonzero(~np.isfinite(da.values)))
+        finite = np.isfinite(da.values)
+        bad = int(finite.size - np.count_nonzero(finite))
         if bad:
-            name = repr(da.name) if da.name is not None else "the field"
-            raise ValueError(f"{name} has {bad} missing or non-finite values; spherical-harmonic "
-                             "analysis needs complete global fields (fill the gaps first)")
+            axes = tuple(da.get_axis_num(d) for d in core)
+            per_field = ~finite.all(axis=axes)
+            # flat positions in the order of the non-core dimensions
+            raise ValueError(_FieldNames(da, core).message(np.flatnonzero(per_field), bad))
 
 
 def analyze(da: xr.DataArray, lmax: int | None = None, *, norm: str = "ortho",
@@ -793,15 +870,17 @@ def analyze(da: xr.DataArray, lmax: int | None = None, *, norm: str = "ortho",
     info = find_grid(da)
     where = f"variable {da.name!r}" if da.name is not None else "the field"
     lmax = _check_lmax(lmax, info.grid, allow_aliasing, where)
-    _check_complete(da)
-    da = _scale.whole_fields(da, (info.lat_dim, info.lon_dim))
+    core = (info.lat_dim, info.lon_dim)
+    _check_complete(da, core)
+    da = _scale.whole_fields(da, core)
+    pos, names = _positions(da, core)
     n = lmax + 1
     c, s = xr.apply_ufunc(
-        _scale.task_function(_analyze_np, da), da,
-        input_core_dims=[[info.lat_dim, info.lon_dim]],
+        _scale.task_function(_analyze_np, da), da, pos,
+        input_core_dims=[[info.lat_dim, info.lon_dim], []],
         output_core_dims=[["degree", "order"], ["degree", "order"]],
         kwargs={"info": info, "lmax": lmax, "norm": norm, "cs": bool(condon_shortley),
-                "allow_aliasing": allow_aliasing,
+                "allow_aliasing": allow_aliasing, "where": names,
                 "progress": progress if isinstance(da.data, np.ndarray) else None},
         dask="parallelized", output_dtypes=[np.float64, np.float64],
         dask_gufunc_kwargs={"output_sizes": {"degree": n, "order": n}},
@@ -915,11 +994,13 @@ def _filter_weights(lmax: int, gaussian_km: float | None, cap_deg: float | None,
     return w[: lmax + 1], how
 
 
-def _smooth_np(values: np.ndarray, *, info: GridInfo, lmax: int, w: np.ndarray,
-               out_info: GridInfo | None = None) -> np.ndarray:
+def _smooth_np(values: np.ndarray, pos: np.ndarray | None = None, *, info: GridInfo,
+               lmax: int, w: np.ndarray, out_info: GridInfo | None = None,
+               where: "_FieldNames | None" = None) -> np.ndarray:
     from sphex.transform import analyze as _analyze, synthesize as _synthesize
 
     v = np.ascontiguousarray(np.asarray(values)[..., list(info.take)], dtype=np.float64)
+    _check_block(v.reshape((-1,) + v.shape[-2:]), 0, pos, v.shape[:-2], where)
     h = _analyze(v, info.grid, lmax=lmax)
     if w is not None:
         h = h.filter(w)
@@ -962,13 +1043,16 @@ def smooth(da: xr.DataArray, *, gaussian_km: float | None = None, cap_deg: float
     info = find_grid(da)
     where = f"variable {da.name!r}" if da.name is not None else "the field"
     lmax = _check_lmax(lmax, info.grid, False, where)
-    _check_complete(da)
-    da = _scale.whole_fields(da, (info.lat_dim, info.lon_dim))
+    core = (info.lat_dim, info.lon_dim)
+    _check_complete(da, core)
+    da = _scale.whole_fields(da, core)
+    pos, names = _positions(da, core)
     w, how = _filter_weights(lmax, gaussian_km, cap_deg, band, weights, planet_radius_km)
     out = xr.apply_ufunc(
-        _scale.task_function(_smooth_np, da), da, input_core_dims=[[info.lat_dim, info.lon_dim]],
+        _scale.task_function(_smooth_np, da), da, pos,
+        input_core_dims=[[info.lat_dim, info.lon_dim], []],
         output_core_dims=[[info.lat_dim, info.lon_dim]],
-        kwargs={"info": info, "lmax": lmax, "w": w},
+        kwargs={"info": info, "lmax": lmax, "w": w, "where": names},
         dask="parallelized", output_dtypes=[np.float64], keep_attrs=True,
     )
     out = out.transpose(*da.dims)
@@ -1007,14 +1091,17 @@ def regrid(da: xr.DataArray, like: Any, *, lmax: int | None = None) -> xr.DataAr
     if lmax is None:
         lmax = min(info.grid.lmax_exact, tinfo.grid.lmax_exact)
     lmax = _check_lmax(lmax, info.grid, False, where)
-    _check_complete(da)
-    da = _scale.whole_fields(da, (info.lat_dim, info.lon_dim))
+    core = (info.lat_dim, info.lon_dim)
+    _check_complete(da, core)
+    da = _scale.whole_fields(da, core)
+    pos, names = _positions(da, core)
     src_dims = {info.lat_dim, info.lon_dim}
     tmp_lat, tmp_lon = "__sphex_lat__", "__sphex_lon__"
     out = xr.apply_ufunc(
-        _scale.task_function(_smooth_np, da), da, input_core_dims=[[info.lat_dim, info.lon_dim]],
+        _scale.task_function(_smooth_np, da), da, pos,
+        input_core_dims=[[info.lat_dim, info.lon_dim], []],
         output_core_dims=[[tmp_lat, tmp_lon]],
-        kwargs={"info": info, "lmax": lmax, "w": None, "out_info": tinfo},
+        kwargs={"info": info, "lmax": lmax, "w": None, "out_info": tinfo, "where": names},
         dask="parallelized", output_dtypes=[np.float64],
         dask_gufunc_kwargs={"output_sizes": {tmp_lat: len(lat), tmp_lon: len(lon)}},
         keep_attrs=True,

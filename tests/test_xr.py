@@ -272,6 +272,44 @@ def test_parse_grid_and_lmax_errors():
         sxr.analyze(bad)
 
 
+def _holey(rng):
+    """(member, time, lat, lon) fields with NaN or inf in member 1 at times 2 and 5..10."""
+    grid = sphex.Grid.gauss(6)
+    v = sphex.synthesize(_random_harmonics(rng, 6, batch=(2, 12)), grid)
+    v[1, 2, 0, 0] = np.nan
+    v[1, 5:11, 3, 3] = np.inf
+    time = np.arange("2040-01-01", "2040-01-13", dtype="datetime64[D]")
+    return xr.DataArray(v, dims=("member", "time", "lat", "lon"), name="ssh",
+                        coords={"time": time, "lat": grid.lat, "lon": grid.lon})
+
+
+def test_missing_values_name_the_fields_in_memory(rng):
+    da = _holey(rng)
+    msg = r"'ssh' has 7 missing values \(NaN or inf\), in member index 1, time=2040-01-03 " \
+          r"\(index 2\); member index 1, time=2040-01-06 \(index 5\);.* and 2 more fields"
+    for call in (sxr.analyze, lambda d: sxr.smooth(d, band=(2, 4)),
+                 lambda d: sxr.regrid(d, sphex.Grid.gauss(4))):
+        with pytest.raises(ValueError, match=msg):
+            call(da)
+
+
+def test_missing_values_name_the_fields_from_dask_tasks(rng):
+    # each task sees only its own chunk; the positions it is given name the global step
+    pytest.importorskip("dask")
+    lazy = _holey(rng).chunk({"time": 4, "member": 1})
+    first = lazy.isel(time=slice(0, 5))  # one bad field, in the task of times 0..3 of member 1
+    with pytest.raises(ValueError, match=r"'ssh' has 1 missing value \(NaN or inf\), in "
+                                         r"member index 1, time=2040-01-03 \(index 2\);"):
+        sxr.analyze(first).compute()
+    later = lazy.isel(time=slice(4, 8), member=1)  # one task, bad at its times 1..3
+    with pytest.raises(ValueError, match=r"in time=2040-01-06 \(index 1\); time=2040-01-07 "
+                                         r"\(index 2\); time=2040-01-08 \(index 3\);"):
+        sxr.smooth(later, band=(2, 4)).compute()
+    ok = lazy.isel(member=0)
+    np.testing.assert_allclose(sxr.analyze(ok)[sxr.COS].values,
+                               sxr.analyze(ok.load())[sxr.COS].values, atol=1e-14)
+
+
 def test_dask_backed_input_stays_lazy_and_agrees(rng):
     pytest.importorskip("dask")
     grid = sphex.Grid.gauss(8)
