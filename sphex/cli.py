@@ -256,9 +256,9 @@ def _strip_unit(text: str, units: tuple[str, ...]) -> str:
 
 def _km(text: str) -> float:
     t = _strip_unit(text, ("km",))
-    if t != text.strip() or not t.lower().endswith("m"):
-        return _positive_float(t)
-    raise argparse.ArgumentTypeError(f"{text!r}: give the distance in km (a number, 'km' optional)")
+    if t == text.strip() and t.lower().endswith("m"):  # metres, or another unit
+        raise argparse.ArgumentTypeError(f"{text!r}: give the distance in km (a number, 'km' optional)")
+    return _positive_float(t)
 
 
 def _cap_radius(text: str) -> float:

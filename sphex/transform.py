@@ -250,8 +250,9 @@ def _synthesis_passes(grid: Grid, K: int, M_out: int, passes, ntarget: int) -> l
 
     ``passes``: (target, coef, fac, mlo, mhi, dm, scale, shift) tuples; the
     pass adds ``scale[m - mlo] sum_l fac coef Lambda_lm`` (``/ sin theta``
-    when shift=1) to Fourier order ``m + dm`` of target ``target``.  Returns
-    one (K, nlat, nlon) array per target.
+    when shift=1) to Fourier order ``m + dm`` of target ``target``.  Every
+    target has at least one pass, and every pass at least one order
+    (mlo <= mhi).  Returns one (K, nlat, nlon) array per target.
 
     The kernel writes each band's Fourier coefficients straight into the
     buffer of the inverse FFT, rows in grid order, already multiplied by
@@ -275,15 +276,10 @@ def _synthesis_passes(grid: Grid, K: int, M_out: int, passes, ntarget: int) -> l
         X = [None] * ntarget
         for target, coef, fac, mlo, mhi, dm, scale, shift in passes:
             first = X[target] is None
-            if first:
+            if first:  # the kernel assigns the pass's columns; the others are zero
                 X[target] = np.empty((K, band.rows.size, W), dtype=np.complex128)
-                if mhi < mlo:
-                    X[target][...] = 0.0
-                else:
-                    X[target][..., :mlo + dm] = 0.0
-                    X[target][..., mhi + dm + 1:] = 0.0
-            if mhi < mlo:
-                continue
+                X[target][..., :mlo + dm] = 0.0
+                X[target][..., mhi + dm + 1:] = 0.0
             nlive = np.clip(_live(grid, lmax, mlo, mhi, shift) - b0, 0, band.n)
             sc = np.asarray(scale, dtype=np.complex128)[:mhi - mlo + 1] * phase[mlo + dm:mhi + dm + 1]
             seq = _order_sequence(mlo, mhi, _workers())
@@ -291,8 +287,6 @@ def _synthesis_passes(grid: Grid, K: int, M_out: int, passes, ntarget: int) -> l
                                       *fac.args(), X[target], rn, rs, dm, sc, shift,
                                       not first)
         for t in range(ntarget):
-            if X[t] is None:
-                X[t] = np.zeros((K, band.rows.size, W), dtype=np.complex128)
             v = _fourier_synthesis(X[t], N, direct)
             X[t] = None
             if len(bands) == 1 and band.rows.size == grid.nlat:

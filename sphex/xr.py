@@ -802,6 +802,18 @@ class _FieldNames:
                 "steps with .sel / .isel)")
 
 
+def _prepare_fields(da: xr.DataArray, info: GridInfo
+                    ) -> tuple[xr.DataArray, xr.DataArray, "_FieldNames | None"]:
+    """What every gridded adapter does before its apply_ufunc: refuse missing
+    values (in memory), give each dask chunk whole fields, and hand out the
+    field positions and namer its tasks report missing values with."""
+    core = (info.lat_dim, info.lon_dim)
+    _check_complete(da, core)
+    da = _scale.whole_fields(da, core)
+    pos, names = _positions(da, core)
+    return da, pos, names
+
+
 def _positions(da: xr.DataArray, core: tuple[Hashable, Hashable]
                ) -> tuple[xr.DataArray, "_FieldNames | None"]:
     """Flat field positions over the non-core dimensions (chunked like ``da``),
@@ -870,10 +882,7 @@ def analyze(da: xr.DataArray, lmax: int | None = None, *, norm: str = "ortho",
     info = find_grid(da)
     where = f"variable {da.name!r}" if da.name is not None else "the field"
     lmax = _check_lmax(lmax, info.grid, allow_aliasing, where)
-    core = (info.lat_dim, info.lon_dim)
-    _check_complete(da, core)
-    da = _scale.whole_fields(da, core)
-    pos, names = _positions(da, core)
+    da, pos, names = _prepare_fields(da, info)
     n = lmax + 1
     c, s = xr.apply_ufunc(
         _scale.task_function(_analyze_np, da), da, pos,
@@ -1043,10 +1052,7 @@ def smooth(da: xr.DataArray, *, gaussian_km: float | None = None, cap_deg: float
     info = find_grid(da)
     where = f"variable {da.name!r}" if da.name is not None else "the field"
     lmax = _check_lmax(lmax, info.grid, False, where)
-    core = (info.lat_dim, info.lon_dim)
-    _check_complete(da, core)
-    da = _scale.whole_fields(da, core)
-    pos, names = _positions(da, core)
+    da, pos, names = _prepare_fields(da, info)
     w, how = _filter_weights(lmax, gaussian_km, cap_deg, band, weights, planet_radius_km)
     out = xr.apply_ufunc(
         _scale.task_function(_smooth_np, da), da, pos,
@@ -1091,10 +1097,7 @@ def regrid(da: xr.DataArray, like: Any, *, lmax: int | None = None) -> xr.DataAr
     if lmax is None:
         lmax = min(info.grid.lmax_exact, tinfo.grid.lmax_exact)
     lmax = _check_lmax(lmax, info.grid, False, where)
-    core = (info.lat_dim, info.lon_dim)
-    _check_complete(da, core)
-    da = _scale.whole_fields(da, core)
-    pos, names = _positions(da, core)
+    da, pos, names = _prepare_fields(da, info)
     src_dims = {info.lat_dim, info.lon_dim}
     tmp_lat, tmp_lon = "__sphex_lat__", "__sphex_lon__"
     out = xr.apply_ufunc(
