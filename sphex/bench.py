@@ -165,7 +165,7 @@ def cold_start(tmpdir: str | None = None) -> dict:
 
 def run(sizes=DEFAULT_SIZES, batch: tuple[int, int] | None = (511, 32), memory: bool = True,
         repeat: int = 3, huge: int | None = None, cold: bool = False) -> dict:
-    from sphex._kernels import nb as numba  # sphex sets the vector width before numba loads
+    from sphex.kernels import numba  # sphex sets the vector width before numba loads
 
     # BLAS worker threads keep spinning for a moment after a product and would
     # compete with the transforms: time the transforms first, the matrix

@@ -64,7 +64,7 @@ def throughput(lmax: int = LMAX, fields: int = FIELDS, block: int = BLOCK,
     """Fields per second for several (dask threads, numba threads) settings."""
     import dask
     import dask.array as dsa
-    from sphex._kernels import nb as numba  # sphex sets the vector width before numba loads
+    from sphex.kernels import numba  # sphex sets the vector width before numba loads
 
     from sphex import Grid, Harmonics, synthesize
     from concurrent.futures import ThreadPoolExecutor

@@ -292,9 +292,9 @@ def gauss_nodes(n: int) -> tuple[np.ndarray, np.ndarray]:
     Newton's method in colatitude on P_n, started from Tricomi's asymptotic
     estimate; weights ``2 sin^2(theta) / (n P_{n-1})^2``.
     """
-    from sphex import _kernels
+    from sphex.kernels.gauss import gauss_legendre
 
-    return _kernels.gauss_legendre(int(n))
+    return gauss_legendre(int(n))
 
 
 def equiangular_nodes(nlat: int, layout: str) -> tuple[np.ndarray, np.ndarray]:
