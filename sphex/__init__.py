@@ -5,7 +5,7 @@ The numeric core works on plain numpy arrays::
     >>> import numpy as np, sphex
     >>> grid = sphex.Grid.gauss(31)
     >>> h = sphex.analyze(np.ones((grid.nlat, grid.nlon)), grid)
-    >>> round(float(h[0, 0].real), 12)   # sqrt(4 pi) for the "ortho" normalisation
+    >>> round(float(h[0, 0].real), 12)   # sqrt(4 pi) for the "orthonormal" normalisation
     3.544907701811
 
 Submodules: :mod:`sphex.grids`, :mod:`sphex.legendre`, :mod:`sphex.transform`,

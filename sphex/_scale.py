@@ -199,7 +199,7 @@ def cpu_count() -> int:
 
 
 def _numba_max() -> int:
-    from sphex._kernels import nb as numba  # sphex sets the vector width before numba loads
+    from sphex.kernels import numba  # sphex sets the vector width before numba loads
 
     return int(numba.config.NUMBA_NUM_THREADS)
 
@@ -268,7 +268,7 @@ def limited_threads(n: int | None) -> Iterator[None]:
     if n is None:
         yield
         return
-    from sphex._kernels import nb as numba  # sphex sets the vector width before numba loads
+    from sphex.kernels import numba  # sphex sets the vector width before numba loads
 
     old = numba.get_num_threads()
     numba.set_num_threads(n)
@@ -345,7 +345,7 @@ def _blas_limit(n: int) -> Any:
 
 
 def _init_pool_thread(n: int) -> None:
-    from sphex._kernels import nb as numba  # sphex sets the vector width before numba loads
+    from sphex.kernels import numba  # sphex sets the vector width before numba loads
 
     numba.set_num_threads(n)
 
@@ -639,7 +639,7 @@ def _client(address: str) -> Any:
 
 
 def stream_analyze(input: str | os.PathLike, var: str | None, output: str | os.PathLike,
-                   lmax: int | None = None, norm: str = "ortho",
+                   lmax: int | None = None, norm: str = "orthonormal",
                    chunks: Mapping[str, int] | str | None = None, scheduler: str | None = None,
                    overwrite: bool = False, *, condon_shortley: bool = True,
                    radius: float | None = None, progress: bool = True,
@@ -664,7 +664,7 @@ def stream_analyze(input: str | os.PathLike, var: str | None, output: str | os.P
         Coefficient file to write.
     lmax : int, optional
         Highest degree (default the grid's exact limit).
-    norm : {"ortho", "4pi", "schmidt", "unnorm"}
+    norm : {"orthonormal", "full", "schmidt", "unnormalized"}
     chunks : mapping or str, optional
         Fields per chunk along a dimension, e.g. ``{"time": 64}`` or
         ``"time=64"``; default about 8 MiB of float64 input per chunk along

@@ -138,8 +138,8 @@ def _build_parser() -> _Parser:
     q.add_argument("input", metavar="IN.nc", help="netCDF file with a global gridded variable")
     q.add_argument("-v", "--var", metavar="VAR", help="variable (optional if only one is gridded)")
     q.add_argument("--lmax", type=_nonneg_int, metavar="N", help="highest degree (default: the grid's exact limit)")
-    q.add_argument("--norm", default="ortho", choices=["ortho", "4pi", "schmidt", "unnorm"],
-                   help="normalisation (default ortho)")
+    q.add_argument("--norm", default="orthonormal", choices=["orthonormal", "full", "schmidt", "unnormalized"],
+                   help="normalisation (default orthonormal)")
     q.add_argument("--no-phase", action="store_true",
                    help="leave out the Condon-Shortley phase (-1)^m")
     q.add_argument("--radius", type=_positive_float, metavar="METRES",
@@ -690,7 +690,7 @@ def _describe_coefficients(ds) -> list[str]:
     at = ds.attrs
     extra = [d for d in ds["cos_coef"].dims if d not in ("degree", "order")]
     lines = [f"  coefficients of {at.get('field_name', 'a field')!r} to degree {ds.sizes['degree'] - 1}",
-             f"  normalisation {at.get('normalization', 'ortho')}, phase "
+             f"  normalisation {at.get('normalization', 'orthonormal')}, phase "
              f"{at.get('phase_convention', 'condon-shortley')}"]
     if "reference_radius" in at:
         lines.append(f"  reference radius {float(at['reference_radius']):g} m")

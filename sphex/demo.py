@@ -317,7 +317,7 @@ def _run(out: Path, names: dict[str, str], overwrite: bool) -> int:
     rms = float(np.sqrt(p_raw.sum()))
     rows = [
         ("topography", f"{info.describe()}"),
-        ("coefficients", f"{out / names['coef']}  (degrees 0..{lmax}, ortho, radius {RADIUS_KM:g} km)"),
+        ("coefficients", f"{out / names['coef']}  (degrees 0..{lmax}, orthonormal, radius {RADIUS_KM:g} km)"),
         ("map", str(out / names["map"])),
         ("smoothed map", f"{out / names['smooth_png']}  (data: {out / names['smooth_nc']})"),
         ("spectrum plot", f"{out / names['spectrum']}  (power-law slope {slope:.2f} over degrees {fit[0]}-{fit[1]})"),

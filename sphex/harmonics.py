@@ -12,7 +12,7 @@ The real (cosine/sine) form is
 
 with ``r_0 = 1``, ``r_m = sqrt(2)`` for m > 0 in the normalised conventions
 (so each real basis function has the same mean square as the complex one) and
-``r_m = 1`` for ``"unnorm"``.  Hence ``C_lm = (2/r_m) Re a_lm`` and
+``r_m = 1`` for ``"unnormalized"``.  Hence ``C_lm = (2/r_m) Re a_lm`` and
 ``S_lm = -(2/r_m) Im a_lm`` for m > 0, and ``C_l0 = a_l0``, ``S_l0 = 0``.
 """
 from __future__ import annotations
@@ -30,7 +30,7 @@ def convert_factor(lmax: int, norm_from: str, cs_from: bool, norm_to: str, cs_to
     """Factor G[l, m] with a^to_lm = G[l, m] a^from_lm for the same field.
 
     Since ``a Lambda`` is invariant, ``G = F_from / F_to`` where
-    ``Lambda^norm = F * Lambda^ortho`` (:func:`sphex.legendre.norm_scale`),
+    ``Lambda^norm = F * Lambda^orthonormal`` (:func:`sphex.legendre.norm_scale`),
     times ``(-1)^m`` when the phase convention changes.
     """
     g = norm_scale(lmax, norm_from) / norm_scale(lmax, norm_to)
@@ -40,7 +40,7 @@ def convert_factor(lmax: int, norm_from: str, cs_from: bool, norm_to: str, cs_to
 
 
 def _real_form_factor(lmax: int, norm: str) -> np.ndarray:
-    r = np.full(lmax + 1, 1.0 if norm == "unnorm" else np.sqrt(2.0))
+    r = np.full(lmax + 1, 1.0 if norm == "unnormalized" else np.sqrt(2.0))
     r[0] = 1.0
     return r
 
@@ -78,7 +78,7 @@ class Harmonics:
         entries with ``m > l`` must be zero (they are ignored) and ``a_l0``
         real (``ValueError`` when an imaginary part exceeds 1e-10 of the
         largest coefficient; smaller ones are ignored).
-    norm : {"ortho", "4pi", "schmidt", "unnorm"}
+    norm : {"orthonormal", "full", "schmidt", "unnormalized"}
     condon_shortley : bool
         Whether the functions include the phase ``(-1)^m``.
     radius : float, optional
@@ -91,13 +91,13 @@ class Harmonics:
     >>> import numpy as np
     >>> c = np.zeros((3, 3), complex); c[1, 0] = 1.0
     >>> h = Harmonics(c)
-    >>> h.lmax, h[1, 0], h.to("4pi")[1, 0]
+    >>> h.lmax, h[1, 0], h.to("full")[1, 0]
     (2, (1+0j), (0.28209479177387814+0j))
     """
 
     __array_priority__ = 1000
 
-    def __init__(self, coef, norm: str = "ortho", condon_shortley: bool = True,
+    def __init__(self, coef, norm: str = "orthonormal", condon_shortley: bool = True,
                  radius: float | None = None, units: str | None = None):
         coef = np.asarray(coef)
         if coef.ndim < 2 or coef.shape[-1] != coef.shape[-2]:
@@ -181,7 +181,7 @@ class Harmonics:
         return C, S
 
     @classmethod
-    def from_cos_sin(cls, C, S, norm: str = "ortho", condon_shortley: bool = True,
+    def from_cos_sin(cls, C, S, norm: str = "orthonormal", condon_shortley: bool = True,
                      radius: float | None = None, units: str | None = None) -> "Harmonics":
         """Build from real-form coefficients (see the module docstring for the definition)."""
         C = np.asarray(C, dtype=np.float64)

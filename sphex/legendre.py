@@ -8,10 +8,10 @@
 
 with ``cs = -1`` when ``condon_shortley`` is true and ``+1`` otherwise, and
 
-    ``"ortho"``    K = sqrt((2l+1)/(4 pi) (l-m)!/(l+m)!)   (integral of |Y|^2 = 1)
-    ``"4pi"``      K = sqrt((2l+1) (l-m)!/(l+m)!)          (integral = 4 pi)
+    ``"orthonormal"``    K = sqrt((2l+1)/(4 pi) (l-m)!/(l+m)!)   (integral of |Y|^2 = 1)
+    ``"full"``      K = sqrt((2l+1) (l-m)!/(l+m)!)          (integral = 4 pi)
     ``"schmidt"``  K = sqrt((l-m)!/(l+m)!)                  (integral = 4 pi/(2l+1))
-    ``"unnorm"``   K = 1                                    (plain P_l^m)
+    ``"unnormalized"``   K = 1                                    (plain P_l^m)
 
 The real-form functions used with cosine/sine coefficients carry an extra
 factor sqrt(2) for m > 0 in the three normalised conventions (see
@@ -19,7 +19,7 @@ factor sqrt(2) for m > 0 in the three normalised conventions (see
 
 Values come from the standard three-term recursion in degree, fully
 normalised, started from ``P_mm = c_m sin^m(theta)`` kept in extended range
-(see :mod:`sphex._kernels`), so nothing underflows or overflows to degree
+(see :mod:`sphex.kernels.recursion`), so nothing underflows or overflows to degree
 10800 and beyond at any colatitude.  The colatitude derivative comes from the
 same recursion differentiated term by term.
 """
@@ -29,16 +29,27 @@ import functools
 
 import numpy as np
 
-from sphex import _kernels
+from sphex.kernels.recursion import legendre_order
 
 __all__ = ["for_order", "all_orders", "derivative_for_order", "NORMS", "norm_scale",
            "check_norm"]
 
-NORMS = ("ortho", "4pi", "schmidt", "unnorm")
+NORMS = ("orthonormal", "full", "schmidt", "unnormalized")
+
+
+# clipped spellings that earlier versions accepted, mapped to the full words
+_RETIRED_NORMS = {'ortho': 'orthonormal', '4pi': 'full', 'unnorm': 'unnormalized'}
 
 
 def check_norm(norm) -> str:
-    """Validate a normalisation name and return it."""
+    """Validate a normalisation name and return it.
+
+    The names are the trade's full words (``NORMS``); clipped spellings are
+    refused with the word that replaces them.
+    """
+    if isinstance(norm, str) and norm in _RETIRED_NORMS:
+        raise ValueError(f"normalisation {norm!r} is no longer accepted: use "
+                         f"{_RETIRED_NORMS[norm]!r} (valid: {', '.join(repr(n) for n in NORMS)})")
     if norm not in NORMS:
         raise ValueError(f"unknown normalisation {norm!r}; valid: {', '.join(repr(n) for n in NORMS)}")
     return norm
@@ -71,7 +82,7 @@ def _round_up(n: int) -> int:
 def norm_scale(lmax: int, norm: str) -> np.ndarray:
     """Factor F[l, m] with Lambda^norm_lm = F[l, m] * Lambda^ortho_lm (no phase).
 
-    ``(lmax+1, lmax+1)``; entries with m > l are 1.  For ``"unnorm"`` the
+    ``(lmax+1, lmax+1)``; entries with m > l are 1.  For ``"unnormalized"`` the
     factor is 1/K_ortho, which leaves double range above degree ~150; callers
     check for that.
     """
@@ -85,9 +96,9 @@ def norm_scale(lmax: int, norm: str) -> np.ndarray:
 def norm_column(lmax: int, m: int, norm: str) -> np.ndarray:
     """Column m of :func:`norm_scale`, degrees m..lmax, without the full table."""
     l = np.arange(m, lmax + 1, dtype=np.float64)
-    if norm == "ortho":
+    if norm == "orthonormal":
         return np.ones(l.size)
-    if norm == "4pi":
+    if norm == "full":
         return np.full(l.size, np.sqrt(4 * np.pi))
     if norm == "schmidt":
         return np.sqrt(4 * np.pi / (2 * l + 1))
@@ -129,17 +140,17 @@ def _order_values(m, lmax, colat, norm, condon_shortley, want_deriv):
     x, s = _prepare_colat(colat)
     out = np.empty((lmax + 1 - m, x.size))
     dout = np.empty((lmax + 1 - m, x.size)) if want_deriv else np.empty((1, 1))
-    _kernels.legendre_order(m, lmax, x, s, sectoral_table(lmax)[m], out, dout, want_deriv)
+    legendre_order(m, lmax, x, s, sectoral_table(lmax)[m], out, dout, want_deriv)
     res = dout if want_deriv else out
     scale = norm_column(lmax, m, norm)
-    if norm == "unnorm" and not np.all(np.isfinite(scale)):
+    if norm == "unnormalized" and not np.all(np.isfinite(scale)):
         raise ValueError(f"unnormalised functions of order {m} overflow double precision below degree "
-                         f"{lmax}: use norm='ortho', '4pi' or 'schmidt' at this degree")
+                         f"{lmax}: use norm='orthonormal', 'full' or 'schmidt' at this degree")
     sign = -1.0 if (condon_shortley and m % 2 == 1) else 1.0
     return res * (sign * scale)[:, None]
 
 
-def for_order(m: int, lmax: int, colat, norm: str = "ortho", condon_shortley: bool = True) -> np.ndarray:
+def for_order(m: int, lmax: int, colat, norm: str = "orthonormal", condon_shortley: bool = True) -> np.ndarray:
     """Lambda_lm(colat) for one order m and degrees l = m..lmax.
 
     Parameters
@@ -148,7 +159,7 @@ def for_order(m: int, lmax: int, colat, norm: str = "ortho", condon_shortley: bo
         Order and highest degree, ``0 <= m <= lmax``.
     colat : array_like
         Colatitudes in radians, 1-D, within [0, pi].
-    norm : {"ortho", "4pi", "schmidt", "unnorm"}
+    norm : {"orthonormal", "full", "schmidt", "unnormalized"}
     condon_shortley : bool
         Include the phase ``(-1)^m``.
 
@@ -160,20 +171,20 @@ def for_order(m: int, lmax: int, colat, norm: str = "ortho", condon_shortley: bo
     Examples
     --------
     >>> import numpy as np
-    >>> v = for_order(0, 2, [0.0], norm="unnorm")
+    >>> v = for_order(0, 2, [0.0], norm="unnormalized")
     >>> np.allclose(v[:, 0], [1, 1, 1])
     True
     """
     return _order_values(m, lmax, colat, norm, condon_shortley, False)
 
 
-def derivative_for_order(m: int, lmax: int, colat, norm: str = "ortho",
+def derivative_for_order(m: int, lmax: int, colat, norm: str = "orthonormal",
                          condon_shortley: bool = True) -> np.ndarray:
     """d Lambda_lm / d theta (colatitude), same layout as :func:`for_order`."""
     return _order_values(m, lmax, colat, norm, condon_shortley, True)
 
 
-def all_orders(lmax: int, colat, norm: str = "ortho", condon_shortley: bool = True) -> np.ndarray:
+def all_orders(lmax: int, colat, norm: str = "orthonormal", condon_shortley: bool = True) -> np.ndarray:
     """Lambda_lm(colat) for every degree and order up to lmax.
 
     Returns

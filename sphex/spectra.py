@@ -1,7 +1,7 @@
 """Degree power spectra, cross spectra, correlation and power-law slopes.
 
 All spectra here are physical quantities: they are computed from the
-coefficients converted to the ``"ortho"`` normalisation with the
+coefficients converted to the ``"orthonormal"`` normalisation with the
 Condon-Shortley phase, so the same field gives the same spectrum whatever
 convention its :class:`~sphex.harmonics.Harmonics` carries.
 
@@ -43,10 +43,10 @@ def _check_harmonics(h: object, name: str = "h") -> Harmonics:
 
 
 def _ortho_coef(h: Harmonics) -> np.ndarray:
-    """Coefficients of the same field in the 'ortho', Condon-Shortley convention."""
-    if h.norm == "ortho" and h.condon_shortley:
+    """Coefficients of the same field in the 'orthonormal', Condon-Shortley convention."""
+    if h.norm == "orthonormal" and h.condon_shortley:
         return h.coef
-    return h.to(norm="ortho", condon_shortley=True).coef
+    return h.to(norm="orthonormal", condon_shortley=True).coef
 
 
 def _degree_sum(prod: np.ndarray) -> np.ndarray:
@@ -70,12 +70,12 @@ def degree_power(h: Harmonics) -> np.ndarray:
 
     Notes
     -----
-    With the coefficients :math:`a_{lm}` of the "ortho" normalisation,
+    With the coefficients :math:`a_{lm}` of the "orthonormal" normalisation,
 
     .. math:: P_l = \frac{1}{4\pi}\Big(a_{l0}^2 + 2\sum_{m=1}^{l} |a_{lm}|^2\Big),
 
     so that :math:`\sum_l P_l = \frac{1}{4\pi}\int f^2\,d\Omega`, the area
-    mean of :math:`f^2` (Parseval). In the real "4pi" form this is
+    mean of :math:`f^2` (Parseval). In the real "full" form this is
     :math:`\sum_m (C_{lm}^2 + S_{lm}^2)`, the geodesists' degree variance.
 
     Examples
@@ -96,7 +96,7 @@ def degree_power(h: Harmonics) -> np.ndarray:
 def power_per_coefficient(h: Harmonics) -> np.ndarray:
     r"""Degree power divided by the number of coefficients of the degree.
 
-    :math:`P_l / (2l+1)`: the mean square of one "4pi"-normalised
+    :math:`P_l / (2l+1)`: the mean square of one "full"-normalised
     coefficient of degree l (the power spectral density per degree and
     order). Units squared of ``h.units``; shape ``(..., lmax+1)``.
     """
@@ -114,7 +114,7 @@ def degree_rms(h: Harmonics) -> np.ndarray:
 
 
 def coefficient_rms(h: Harmonics) -> np.ndarray:
-    r"""RMS of a "4pi"-normalised coefficient at each degree, :math:`\sqrt{P_l/(2l+1)}`.
+    r"""RMS of a "full"-normalised coefficient at each degree, :math:`\sqrt{P_l/(2l+1)}`.
 
     This is the per-degree amplitude geodesists compare with a power rule
     (for example :math:`10^{-5}/l^2` for planetary gravity). Units of
@@ -169,7 +169,7 @@ def cross_power(h1: Harmonics, h2: Harmonics) -> np.ndarray:
     .. math:: X_l = \frac{1}{4\pi}\,\mathrm{Re}\Big(a_{l0} b_{l0} +
               2\sum_{m=1}^{l} a_{lm}\,\overline{b_{lm}}\Big),
 
-    with "ortho" coefficients, so :math:`\sum_l X_l` is the area mean of
+    with "orthonormal" coefficients, so :math:`\sum_l X_l` is the area mean of
     :math:`f_1 f_2`, and ``cross_power(h, h) == degree_power(h)``.
     """
     a1, a2 = _common_pair(h1, h2)

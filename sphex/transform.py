@@ -1,7 +1,7 @@
 """Analysis and synthesis of real scalar fields on latitude-longitude grids.
 
 The transform is a real FFT in longitude (``scipy.fft`` with workers) followed
-by a Legendre stage per order ``m`` (:mod:`sphex._kernels`) that uses the
+by a Legendre stage per order ``m`` (:mod:`sphex.kernels.scalar`) that uses the
 north/south symmetry ``Lambda_lm(pi - theta) = (-1)^(l-m) Lambda_lm(theta)``:
 each pair of mirrored latitudes is handled in one pass, with the even and odd
 degrees taking the sum and the difference of the two rings.  The Legendre
@@ -26,7 +26,9 @@ import functools
 import numpy as np
 import scipy.fft
 
-from sphex import _kernels
+from sphex.kernels import numba
+from sphex.kernels.recursion import live_counts
+from sphex.kernels.scalar import analysis_kernel, synthesis_kernel
 from sphex.grids import Grid
 from sphex.harmonics import Harmonics, convert_factor
 from sphex.legendre import check_norm, norm_column, sectoral_table
@@ -37,7 +39,7 @@ __all__ = ["analyze", "synthesize", "synthesize_gradient", "regrid"]
 def _workers() -> int:
     """FFT threads: numba's thread count for the calling thread (all cores in the
     main thread, fewer inside dask tasks under the rule of :mod:`sphex._scale`)."""
-    return _kernels.nb.get_num_threads()
+    return numba.get_num_threads()
 
 
 # ---------------------------------------------------------------------------
@@ -151,7 +153,7 @@ def _live(grid: Grid, lmax: int, mlo: int, mhi: int, shift: int) -> np.ndarray:
     """Per order, how many latitude pairs (equator first) carry non-negligible values."""
     pairs = _pairs(grid)
     out = np.empty(mhi - mlo + 1, dtype=np.int64)
-    _kernels.live_counts(lmax, mlo, mhi, pairs.x, pairs.s, sectoral_table(lmax), shift, out)
+    live_counts(lmax, mlo, mhi, pairs.x, pairs.s, sectoral_table(lmax), shift, out)
     out.setflags(write=False)
     return out
 
@@ -240,7 +242,7 @@ def _analysis(values: np.ndarray, grid: Grid, lmax: int, fac: "_Factor") -> np.n
         F = scipy.fft.rfft(np.asarray(block, dtype=np.float64), axis=-1, workers=_workers())
         del block
         nlive = np.clip(live - b0, 0, band.n)
-        _kernels.analysis_kernel(lmax, 0, seq, band.x, band.s, cm, nlive, F, band.north,
+        analysis_kernel(lmax, 0, seq, band.x, band.s, cm, nlive, F, band.north,
                                  band.south, band.wn, band.ws, scale, *fac.args(), coef, 0)
     return coef
 
@@ -283,7 +285,7 @@ def _synthesis_passes(grid: Grid, K: int, M_out: int, passes, ntarget: int) -> l
             nlive = np.clip(_live(grid, lmax, mlo, mhi, shift) - b0, 0, band.n)
             sc = np.asarray(scale, dtype=np.complex128)[:mhi - mlo + 1] * phase[mlo + dm:mhi + dm + 1]
             seq = _order_sequence(mlo, mhi, _workers())
-            _kernels.synthesis_kernel(lmax, mlo, seq, band.x, band.s, cm, nlive, coef,
+            synthesis_kernel(lmax, mlo, seq, band.x, band.s, cm, nlive, coef,
                                       *fac.args(), X[target], rn, rs, dm, sc, shift,
                                       not first)
         for t in range(ntarget):
@@ -316,7 +318,7 @@ def _fourier_synthesis(X: np.ndarray, N: int, direct: bool) -> np.ndarray:
 # ---------------------------------------------------------------------------
 # public functions
 # ---------------------------------------------------------------------------
-def analyze(values, grid: Grid, lmax: int | None = None, norm: str = "ortho",
+def analyze(values, grid: Grid, lmax: int | None = None, norm: str = "orthonormal",
             condon_shortley: bool = True, *, radius: float | None = None,
             units: str | None = None, allow_aliasing: bool = False) -> Harmonics:
     """Spherical-harmonic coefficients of real fields sampled on a grid.
@@ -332,7 +334,7 @@ def analyze(values, grid: Grid, lmax: int | None = None, norm: str = "ortho",
     lmax : int, optional
         Highest degree; default ``grid.lmax_exact``.  Larger values raise
         unless ``allow_aliasing=True``.
-    norm : {"ortho", "4pi", "schmidt", "unnorm"}
+    norm : {"orthonormal", "full", "schmidt", "unnormalized"}
     condon_shortley : bool
         Whether the functions carry the phase ``(-1)^m``.
     radius, units : optional
@@ -370,7 +372,7 @@ def analyze(values, grid: Grid, lmax: int | None = None, norm: str = "ortho",
     arr = _check_values(values, grid)
     lmax = _check_lmax(lmax, grid, allow_aliasing)
     batch = arr.shape[:-2]
-    fac = _factor(lmax, "ortho", False, norm, condon_shortley)
+    fac = _factor(lmax, "orthonormal", False, norm, condon_shortley)
     coef = _analysis(arr.reshape((-1,) + grid.shape), grid, lmax, fac)
     coef = coef.reshape(batch + (lmax + 1, lmax + 1))
     return Harmonics(coef, norm=norm, condon_shortley=condon_shortley, radius=radius, units=units)
@@ -381,19 +383,19 @@ class _Factor:
 
     For the normalised conventions the factor separates, ``fl[l] * fm[m]``
     (a per-degree scale and the phase sign); only conversions involving
-    ``"unnorm"`` (which is limited to low degree) hold a full table."""
+    ``"unnormalized"`` (which is limited to low degree) hold a full table."""
 
     def __init__(self, lmax: int, norm_from: str, cs_from: bool, norm_to: str, cs_to: bool):
         self.lmax = lmax
         self.fm = np.ones(lmax + 1)
         if bool(cs_from) != bool(cs_to):
             self.fm[1::2] = -1.0
-        if "unnorm" in (norm_from, norm_to):
+        if "unnormalized" in (norm_from, norm_to):
             g = convert_factor(lmax, norm_from, cs_from, norm_to, cs_to)
             tri = np.tril(np.ones((lmax + 1, lmax + 1), dtype=bool))
             if not np.all(np.isfinite(g[tri])) or np.any(g[tri] == 0):
                 raise ValueError(f"unnormalised coefficients to lmax={lmax} leave double range: use "
-                                 "norm='ortho', '4pi' or 'schmidt' (or a lower lmax)")
+                                 "norm='orthonormal', 'full' or 'schmidt' (or a lower lmax)")
             self.full, self.use_full = g, True
             self.fl = np.ones(lmax + 1)
         else:
@@ -417,13 +419,13 @@ def _factor(lmax: int, norm_from: str, cs_from: bool, norm_to: str, cs_to: bool)
 
 
 def _batched(h: Harmonics) -> tuple[np.ndarray, np.ndarray]:
-    """(coef as (K, L+1, L+1), factor to ortho without phase) after checks."""
+    """(coef as (K, L+1, L+1), factor to orthonormal without phase) after checks."""
     if not isinstance(h, Harmonics):
         raise ValueError(f"expected a sphex.Harmonics, got {type(h).__name__}")
     c = h.coef.reshape((-1, h.lmax + 1, h.lmax + 1))
     if not np.all(np.isfinite(c)):
         raise ValueError("coefficients contain NaN or inf: check the input")
-    return c, _factor(h.lmax, h.norm, h.condon_shortley, "ortho", False)
+    return c, _factor(h.lmax, h.norm, h.condon_shortley, "orthonormal", False)
 
 
 def synthesize(h: Harmonics, grid: Grid) -> np.ndarray:
@@ -495,7 +497,7 @@ def synthesize_gradient(h: Harmonics, grid: Grid) -> tuple[np.ndarray, np.ndarra
     c1[:, :, :-1] = c[:, :, 1:] * (full * up)[None, :, 1:]       # function order mu = m - 1
     c2 = np.zeros_like(c)
     c2[:, :, 1:] = -c[:, :, :-1] * (full * dn)[None, :, :-1]     # function order mu = m + 1
-    one = _factor(lmax, "ortho", False, "ortho", False)
+    one = _factor(lmax, "orthonormal", False, "orthonormal", False)
     ones = np.ones(L1)
     passes = [(0, c1, one, 0, lmax - 1, +1, ones, 0),                 # d/dtheta from order m - 1
               (0, c2, one, 1, lmax, -1, ones, 0),                     # d/dtheta from order m + 1

@@ -12,7 +12,7 @@ Coefficient Dataset layout (also the netCDF file layout)
 - variables ``cos_coef`` (C_lm) and ``sin_coef`` (S_lm), the real form
   ``f = sum_l sum_{m<=l} (C_lm cos(m lon) + S_lm sin(m lon)) r_m Lambda_lm``
   with ``r_0 = 1`` and ``r_m = sqrt(2)`` for ``m > 0`` (``r_m = 1`` for
-  ``"unnorm"``), longitude measured east from the 0 meridian; entries with
+  ``"unnormalized"``), longitude measured east from the 0 meridian; entries with
   ``order > degree`` do not exist and hold 0;
 - attributes ``normalization``, ``phase_convention``, ``lmax``,
   ``reference_radius`` (metres, when known), ``units`` and ``field_name``,
@@ -52,6 +52,7 @@ from sphex import _scale
 from sphex._io import atomic_output, check_output_path
 from sphex.grids import Grid
 from sphex.harmonics import Harmonics
+from sphex.legendre import check_norm
 
 __all__ = [
     "COS", "SIN", "GridInfo", "find_grid", "parse_grid", "analyze", "synthesize",
@@ -64,12 +65,11 @@ COS = "cos_coef"
 SIN = "sin_coef"
 _RE_STEPS = "exact_re_steps"
 _IM_STEPS = "exact_im_steps"
-_NORMS = ("ortho", "4pi", "schmidt", "unnorm")
 _NORM_MEANING = {
-    "ortho": "integral of |Y_lm|^2 over the unit sphere is 1",
-    "4pi": "integral of |Y_lm|^2 over the unit sphere is 4 pi",
+    "orthonormal": "integral of |Y_lm|^2 over the unit sphere is 1",
+    "full": "integral of |Y_lm|^2 over the unit sphere is 4 pi",
     "schmidt": "integral of |Y_lm|^2 over the unit sphere is 4 pi/(2l+1)",
-    "unnorm": "plain associated Legendre functions, no normalisation",
+    "unnormalized": "plain associated Legendre functions, no normalisation",
 }
 _LAYOUTS = {"poles", "cells", "north"}
 
@@ -329,10 +329,6 @@ def _target(like: Any) -> tuple[GridInfo, xr.DataArray, xr.DataArray]:
 # ----------------------------------------------------------------------------
 # Conventions and conversions
 # ----------------------------------------------------------------------------
-def _check_norm(norm: str) -> str:
-    if norm not in _NORMS:
-        raise ValueError(f"unknown normalisation {norm!r}; choose one of {', '.join(_NORMS)}")
-    return norm
 
 
 def _conv_attrs(lmax: int, norm: str, cs: bool, radius: float | None, units: str | None) -> dict:
@@ -345,7 +341,7 @@ def _conv_attrs(lmax: int, norm: str, cs: bool, radius: float | None, units: str
         "lmax": np.int32(lmax),
         "real_form": ("f = sum over l, m<=l of (cos_coef cos(m lon) + sin_coef sin(m lon)) r_m "
                       "Lambda_lm(colat), r_0 = 1, r_m = "
-                      + ("1" if norm == "unnorm" else "sqrt(2)") + " for m > 0; "
+                      + ("1" if norm == "unnormalized" else "sqrt(2)") + " for m > 0; "
                       "longitude east from the 0 meridian"),
     }
     if radius is not None:
@@ -358,8 +354,8 @@ def _conv_attrs(lmax: int, norm: str, cs: bool, radius: float | None, units: str
 
 def _conventions(ds: xr.Dataset) -> dict[str, Any]:
     a = ds.attrs
-    norm = str(a.get("normalization", "ortho"))
-    _check_norm(norm)
+    norm = str(a.get("normalization", "orthonormal"))
+    check_norm(norm)
     phase = str(a.get("phase_convention", "condon-shortley")).lower()
     cs = phase not in ("none", "no", "false", "0")
     radius = a.get("reference_radius")
@@ -839,7 +835,7 @@ def _check_complete(da: xr.DataArray, core: tuple[Hashable, Hashable]) -> None:
             raise ValueError(_FieldNames(da, core).message(np.flatnonzero(per_field), bad))
 
 
-def analyze(da: xr.DataArray, lmax: int | None = None, *, norm: str = "ortho",
+def analyze(da: xr.DataArray, lmax: int | None = None, *, norm: str = "orthonormal",
             condon_shortley: bool = True, radius: float | None = None,
             allow_aliasing: bool = False,
             progress: Callable[[int, int], None] | None = None) -> xr.Dataset:
@@ -853,7 +849,7 @@ def analyze(da: xr.DataArray, lmax: int | None = None, *, norm: str = "ortho",
         batch.  numpy- or dask-backed.
     lmax : int, optional
         Highest degree; default the grid's exact limit.
-    norm : {"ortho", "4pi", "schmidt", "unnorm"}
+    norm : {"orthonormal", "full", "schmidt", "unnormalized"}
         Normalisation of the coefficients.
     condon_shortley : bool
         Include the Condon-Shortley phase (-1)^m.
@@ -878,7 +874,7 @@ def analyze(da: xr.DataArray, lmax: int | None = None, *, norm: str = "ortho",
         No usable grid, ``lmax`` too high, unknown ``norm``, missing values.
     """
     da = _as_dataarray(da)
-    _check_norm(norm)
+    check_norm(norm)
     info = find_grid(da)
     where = f"variable {da.name!r}" if da.name is not None else "the field"
     lmax = _check_lmax(lmax, info.grid, allow_aliasing, where)
@@ -1272,7 +1268,7 @@ def read_table(path: str | os.PathLike) -> tuple[Harmonics, tuple[np.ndarray, np
     """Read a text table written by :func:`write_table` (or made by hand the same way).
 
     Rows may come in any order and degrees/orders left out are 0.  Header
-    lines ``# key: value`` give ``normalization`` (default ``ortho``),
+    lines ``# key: value`` give ``normalization`` (default ``orthonormal``),
     ``phase_convention`` (default ``condon-shortley``), ``lmax`` (default the
     highest degree present), ``reference_radius_m`` and ``units``.
 
@@ -1328,7 +1324,7 @@ def read_table(path: str | os.PathLike) -> tuple[Harmonics, tuple[np.ndarray, np
     key = l_idx * (lmax + 1) + m_idx
     if np.unique(key).size != key.size:
         raise ValueError(f"{str(p)!r}: some degree/order pair appears twice")
-    norm = _check_norm(meta.get("normalization", "ortho"))
+    norm = check_norm(meta.get("normalization", "orthonormal"))
     phase = meta.get("phase_convention", "condon-shortley").lower()
     c = np.zeros((lmax + 1, lmax + 1))
     s = np.zeros((lmax + 1, lmax + 1))

@@ -19,7 +19,7 @@ import numpy as np
 import scipy.special as sps
 import sympy
 
-NORMS = ("ortho", "4pi", "schmidt", "unnorm")
+NORMS = ("orthonormal", "full", "schmidt", "unnormalized")
 
 
 # ---------------------------------------------------------------------------
@@ -53,22 +53,22 @@ def scipy_lambda_dtheta(l: int, m: int, theta, norm: str, condon_shortley: bool)
     theta = np.asarray(theta, dtype=float)
     phase = 1.0 if condon_shortley else (-1.0) ** m
     d = sps.sph_legendre_p(l, m, theta, diff_n=1)[1]
-    if norm == "unnorm":
+    if norm == "unnormalized":
         k = math.sqrt((2 * l + 1) / (4 * math.pi) * math.factorial(l - m) / math.factorial(l + m))
         return phase * d / k
-    factor = {"ortho": 1.0, "4pi": math.sqrt(4 * math.pi), "schmidt": math.sqrt(4 * math.pi / (2 * l + 1))}[norm]
+    factor = {"orthonormal": 1.0, "full": math.sqrt(4 * math.pi), "schmidt": math.sqrt(4 * math.pi / (2 * l + 1))}[norm]
     return phase * factor * d
 
 
 def norm_factor_from_ortho(l: int, m: int, norm: str) -> float:
     """Lambda_lm(norm) / Lambda_lm(ortho), from the definitions of the core API (exact factorials)."""
-    if norm == "ortho":
+    if norm == "orthonormal":
         return 1.0
-    if norm == "4pi":
+    if norm == "full":
         return math.sqrt(4 * math.pi)
     if norm == "schmidt":
         return math.sqrt(4 * math.pi / (2 * l + 1))
-    if norm == "unnorm":
+    if norm == "unnormalized":
         # 1 / sqrt((2l+1)/(4 pi) (l-m)!/(l+m)!) with exact integer factorials
         ratio = math.factorial(l + m) / math.factorial(l - m)
         return math.sqrt(4 * math.pi / (2 * l + 1) * ratio)
@@ -232,12 +232,12 @@ def real_form_field(C: np.ndarray, S: np.ndarray, colat: np.ndarray, lon_rad: np
                     norm: str, condon_shortley: bool) -> np.ndarray:
     """f = sum_l sum_m (C_lm cos m phi + S_lm sin m phi) r_m Lambda_lm, Lambda from scipy.special.
 
-    r_m = sqrt(2) for m > 0 except for "unnorm" (r_m = 1), as in the core API.
+    r_m = sqrt(2) for m > 0 except for "unnormalized" (r_m = 1), as in the core API.
     """
     lmax = C.shape[-1] - 1
     f = np.zeros((colat.size, lon_rad.size))
     for m in range(lmax + 1):
-        r = 1.0 if (m == 0 or norm == "unnorm") else math.sqrt(2.0)
+        r = 1.0 if (m == 0 or norm == "unnormalized") else math.sqrt(2.0)
         cm, sm = np.cos(m * lon_rad), np.sin(m * lon_rad)
         for l in range(m, lmax + 1):
             lam = scipy_lambda(l, m, colat, norm, condon_shortley)

@@ -95,7 +95,7 @@ def test_analyze_then_synthesize_onto_the_input_grid(files):
         assert float(abs(out["tsurf"] - src["tsurf"]).max()) < 1e-8
     # the coefficient file is in the documented layout and reproduces the generating coefficients
     ds = sxr.open_coefficients(coef)
-    assert ds.attrs["normalization"] == "ortho" and ds.attrs["field_name"] == "tsurf"
+    assert ds.attrs["normalization"] == "orthonormal" and ds.attrs["field_name"] == "tsurf"
     c, s = files["h"].cos_sin()
     np.testing.assert_allclose(ds[sxr.COS].values[:, : LMAX + 1, : LMAX + 1], c, atol=1e-12)
     np.testing.assert_allclose(ds[sxr.SIN].values[:, : LMAX + 1, : LMAX + 1], s, atol=1e-12)

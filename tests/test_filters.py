@@ -24,7 +24,7 @@ from sphex.filters import (
     zonal_weights,
 )
 
-NORMS = ("ortho", "4pi", "schmidt", "unnorm")
+NORMS = ("orthonormal", "full", "schmidt", "unnormalized")
 
 
 # ----------------------------------------------------------------- test fields
@@ -363,7 +363,7 @@ def test_inverse_laplacian_undoes_laplacian(rng):
     f, _ = polynomial(rng, 16)
     lat, lon = mesh(grid)
     for radius in (None, 3.4e6):
-        h = analyze(f(lat, lon), grid, norm="4pi", radius=radius, units="K")
+        h = analyze(f(lat, lon), grid, norm="full", radius=radius, units="K")
         back = inverse_laplacian(laplacian(h))
         expected = h.coef.copy()
         expected[0, 0] = 0.0  # the l = 0 term is set to zero
@@ -396,8 +396,8 @@ def test_gradient_of_cos_lat_cos_lon():
         np.testing.assert_allclose(north, -np.sin(la) * np.cos(lo), atol=1e-13)
 
 
-@pytest.mark.parametrize("norm, cs", [("ortho", True), ("4pi", False), ("schmidt", True),
-                                      ("unnorm", False)])
+@pytest.mark.parametrize("norm, cs", [("orthonormal", True), ("full", False), ("schmidt", True),
+                                      ("unnormalized", False)])
 def test_gradient_of_a_polynomial_field(norm, cs):
     # the surface gradient is the tangential projection of the ambient gradient of the
     # polynomial (common practice), evaluated on the same grid; with a radius, / R

@@ -19,8 +19,8 @@ def phase_array(lmax: int, condon_shortley: bool) -> np.ndarray:
 
 
 def r_m(lmax: int, norm: str) -> np.ndarray:
-    """Real-form factor r_m of the core API: sqrt(2) for m > 0 except unnorm, 1 for m = 0."""
-    r = np.full(lmax + 1, 1.0 if norm == "unnorm" else math.sqrt(2.0))
+    """Real-form factor r_m of the core API: sqrt(2) for m > 0 except unnormalized, 1 for m = 0."""
+    r = np.full(lmax + 1, 1.0 if norm == "unnormalized" else math.sqrt(2.0))
     r[0] = 1.0
     return r
 
@@ -31,7 +31,7 @@ def r_m(lmax: int, norm: str) -> np.ndarray:
 def test_attributes_and_indexing(rng):
     coef = random_coef(8, rng)
     h = Harmonics(coef, radius=6.371e6, units="m")
-    assert h.lmax == 8 and h.norm == "ortho" and h.condon_shortley is True
+    assert h.lmax == 8 and h.norm == "orthonormal" and h.condon_shortley is True
     assert h.radius == 6.371e6 and h.units == "m" and h.batch_shape == ()
     assert h.coef.dtype == np.complex128 and h.coef.shape == (9, 9)
     np.testing.assert_array_equal(h.degrees(), np.arange(9))
@@ -90,7 +90,7 @@ def test_rounding_level_imaginary_order_zero_is_tolerated_and_ignored():
 @pytest.mark.parametrize("target", CONVENTIONS)
 @pytest.mark.parametrize("source", CONVENTIONS)
 def test_to_matches_definition_and_round_trips(rng, source, target):
-    # a_lm Lambda_lm is the same term in every convention, Lambda_lm = F_lm cs^m Lambda_lm(ortho,
+    # a_lm Lambda_lm is the same term in every convention, Lambda_lm = F_lm cs^m Lambda_lm(orthonormal,
     # no phase) with F from the core API definitions (tests/_reference.norm_factor_array, exact
     # factorials), so a_new = a_old F_old cs_old^m / (F_new cs_new^m)
     lmax = 20
@@ -101,7 +101,7 @@ def test_to_matches_definition_and_round_trips(rng, source, target):
     assert g.norm == n1 and g.condon_shortley == c1 and g.radius == 2.0 and g.units == "km"
     expected = coef * (norm_factor_array(lmax, n0) * phase_array(lmax, c0)) / (
         norm_factor_array(lmax, n1) * phase_array(lmax, c1))
-    # 5e-14: the unnorm factors sqrt((l+m)!/(l-m)!) reach 1e24 at lmax 20; sphex's are good to
+    # 5e-14: the unnormalized factors sqrt((l+m)!/(l-m)!) reach 1e24 at lmax 20; sphex's are good to
     # ~1.5e-14 relative there (measured), the exact-factorial reference to a few ulp
     np.testing.assert_allclose(g.coef, expected, rtol=5e-14, atol=0)
     back = g.to(norm=n0, condon_shortley=c0)
@@ -111,8 +111,8 @@ def test_to_matches_definition_and_round_trips(rng, source, target):
 
 def test_to_defaults_keep_conventions(rng):
     h = Harmonics(random_coef(5, rng), norm="schmidt", condon_shortley=False)
-    g = h.to(norm="4pi")
-    assert g.condon_shortley is False and g.norm == "4pi"
+    g = h.to(norm="full")
+    assert g.condon_shortley is False and g.norm == "full"
     g2 = h.to(condon_shortley=True)
     assert g2.norm == "schmidt" and g2.condon_shortley is True
     np.testing.assert_array_equal(h.to().coef, h.coef)
@@ -173,14 +173,14 @@ def test_cos_sin_of_a_batch(rng):
 
 
 def test_known_real_form_of_y11():
-    # sin(theta) cos(phi) (common practice): ortho with the phase, a_11 = -sqrt(2 pi/3), so
+    # sin(theta) cos(phi) (common practice): orthonormal with the phase, a_11 = -sqrt(2 pi/3), so
     # C_11 = (2/sqrt 2) a_11 = -sqrt(4 pi / 3); in 4pi without the phase the real function
     # sqrt(3) sin(theta) cos(phi) has coefficient C_11 = 1/sqrt(3)
     coef = np.zeros((2, 2), complex)
     coef[1, 1] = -math.sqrt(2 * math.pi / 3)
     C, S = Harmonics(coef).cos_sin()
     assert abs(C[1, 1] + math.sqrt(4 * math.pi / 3)) < 1e-15 and S[1, 1] == 0
-    C4, _ = Harmonics(coef).to(norm="4pi", condon_shortley=False).cos_sin()
+    C4, _ = Harmonics(coef).to(norm="full", condon_shortley=False).cos_sin()
     assert abs(C4[1, 1] - 1 / math.sqrt(3)) < 1e-15
 
 
@@ -206,7 +206,7 @@ def test_add_subtract_scale_negate(rng):
     np.testing.assert_array_equal((2.5 * ha).coef, 2.5 * a)
     np.testing.assert_array_equal((ha * 2.5).coef, 2.5 * a)
     np.testing.assert_array_equal((-ha).coef, -a)
-    assert (ha + hb).units == "m" and (ha + hb).norm == "ortho"
+    assert (ha + hb).units == "m" and (ha + hb).norm == "orthonormal"
     # inputs unchanged
     np.testing.assert_array_equal(ha.coef, a)
 
@@ -216,7 +216,7 @@ def test_add_converts_to_left_conventions(rng):
     ha, hb = Harmonics(a), Harmonics(b)
     other = hb.to(norm="schmidt", condon_shortley=False)
     s = ha + other
-    assert s.norm == "ortho" and s.condon_shortley is True
+    assert s.norm == "orthonormal" and s.condon_shortley is True
     np.testing.assert_allclose(s.coef, a + b, rtol=1e-14, atol=1e-15)
     d = ha - other
     np.testing.assert_allclose(d.coef, a - b, rtol=1e-14, atol=1e-15)
@@ -225,7 +225,7 @@ def test_add_converts_to_left_conventions(rng):
 def test_sum_synthesises_to_sum_of_fields(rng):
     grid = Grid.equiangular(24, 24, "cells")
     ha = Harmonics(random_coef(11, rng))
-    hb = Harmonics(random_coef(11, rng), norm="4pi")
+    hb = Harmonics(random_coef(11, rng), norm="full")
     f = synthesize(ha + hb, grid)
     np.testing.assert_allclose(f, synthesize(ha, grid) + synthesize(hb, grid), rtol=0, atol=1e-12)
 

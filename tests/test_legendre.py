@@ -53,8 +53,8 @@ def order_error(impl: np.ndarray, ref: np.ndarray, scale: np.ndarray | None = No
 @pytest.mark.parametrize("condon_shortley", [True, False])
 @pytest.mark.parametrize("norm", NORMS)
 def test_for_order_matches_scipy(norm, condon_shortley):
-    # source: scipy.special.sph_legendre_p (ortho, with Condon-Shortley phase) and
-    # scipy.special.assoc_legendre_p (unnorm), scaled per the core API definitions
+    # source: scipy.special.sph_legendre_p (orthonormal, with Condon-Shortley phase) and
+    # scipy.special.assoc_legendre_p (unnormalized), scaled per the core API definitions
     lmax = 30
     worst = 0.0
     for m in range(lmax + 1):
@@ -108,9 +108,9 @@ def test_unnormalised_matches_scipy_assoc_legendre_in_x():
     lmax = 20
     colat = np.array([0.4, 1.0, np.pi / 2, 2.2, 2.9])
     for m in range(lmax + 1):
-        got = legendre.for_order(m, lmax, colat, norm="unnorm", condon_shortley=True)
+        got = legendre.for_order(m, lmax, colat, norm="unnormalized", condon_shortley=True)
         ref = np.array([scipy_unnorm_from_x(l, m, np.cos(colat)) for l in range(m, lmax + 1)])
-        scale = np.array([norm_factor_from_ortho(l, m, "unnorm") for l in range(m, lmax + 1)])
+        scale = np.array([norm_factor_from_ortho(l, m, "unnormalized") for l in range(m, lmax + 1)])
         assert order_error(got, ref, scale) < 1e-13
 
 
@@ -121,7 +121,7 @@ def test_unnormalised_no_phase_matches_sympy_derivative_form():
     colat = np.array([0.2, 0.9, 1.7, 2.9])
     worst = 0.0
     for m in range(lmax + 1):
-        got = legendre.for_order(m, lmax, colat, norm="unnorm", condon_shortley=False)
+        got = legendre.for_order(m, lmax, colat, norm="unnormalized", condon_shortley=False)
         ref = np.array([[sympy_plm(l, m, t) for t in colat] for l in range(m, lmax + 1)])
         worst = max(worst, order_error(got, ref))
     assert worst < 1e-13, worst
@@ -138,8 +138,8 @@ def test_phase_convention_and_low_order_closed_forms():
     np.testing.assert_allclose(y1[0], -math.sqrt(3 / (8 * math.pi)) * np.sin(t), rtol=0, atol=1e-15)
     y1n = legendre.for_order(1, 1, t, condon_shortley=False)
     np.testing.assert_allclose(y1n[0], math.sqrt(3 / (8 * math.pi)) * np.sin(t), rtol=0, atol=1e-15)
-    # 4pi and schmidt at l = m = 1: sqrt(3/2) sin and sqrt(1/2) sin (no phase), from K(l, m)
-    np.testing.assert_allclose(legendre.for_order(1, 1, t, norm="4pi", condon_shortley=False)[0],
+    # full and schmidt at l = m = 1: sqrt(3/2) sin and sqrt(1/2) sin (no phase), from K(l, m)
+    np.testing.assert_allclose(legendre.for_order(1, 1, t, norm="full", condon_shortley=False)[0],
                                math.sqrt(1.5) * np.sin(t), rtol=0, atol=1e-15)
     np.testing.assert_allclose(legendre.for_order(1, 1, t, norm="schmidt", condon_shortley=False)[0],
                                math.sqrt(0.5) * np.sin(t), rtol=0, atol=1e-15)
@@ -197,13 +197,13 @@ def test_high_degree_against_mpmath_recursion(m, lmax, colat):
     ref_mp = mp_ortho_column(m, lmax, colat)
     ref = mp_to_float(ref_mp)[:, None]
     assert np.max(np.abs(ref)) > 1e-3  # the order matters at this point
-    got = legendre.for_order(m, lmax, np.array([colat]), norm="ortho", condon_shortley=False)
+    got = legendre.for_order(m, lmax, np.array([colat]), norm="orthonormal", condon_shortley=False)
     assert np.all(np.isfinite(got))
     err = order_error(got, ref)
     print(f"legendre m={m} lmax={lmax} colat={colat:.6f}: error/max = {err:.2e}")
     assert err < 1e-11, err
     # with the phase: multiplied by (-1)^m
-    got_cs = legendre.for_order(m, lmax, np.array([colat]), norm="ortho", condon_shortley=True)
+    got_cs = legendre.for_order(m, lmax, np.array([colat]), norm="orthonormal", condon_shortley=True)
     np.testing.assert_array_equal(got_cs, (-1.0) ** m * got)
 
 
@@ -212,7 +212,7 @@ def test_high_degree_next_to_pole_against_mpmath(m, lmax, colat):
     # source: mpmath recursion at 45 digits, as above; bound 5e-10 ~ 0.15 l^2 eps at l = 5400
     # (measured up to 7.9e-11)
     ref = mp_to_float(mp_ortho_column(m, lmax, colat))[:, None]
-    got = legendre.for_order(m, lmax, np.array([colat]), norm="ortho", condon_shortley=False)
+    got = legendre.for_order(m, lmax, np.array([colat]), norm="orthonormal", condon_shortley=False)
     err = order_error(got, ref)
     print(f"legendre near pole m={m} lmax={lmax} colat={colat:.6f}: error/max = {err:.2e}")
     assert err < 5e-10, err
@@ -243,7 +243,7 @@ def test_all_orders_unsold_theorem():
     # carries ~l^2 eps (see NEAR_POLE_CASES), bound 1e-10 (measured 2.9e-11 at pi - 1e-4).
     lmax = 1000
     colat = np.array([0.3, 1.0, np.pi / 2, 2.5, 1e-3, np.pi - 1e-4])
-    p = legendre.all_orders(lmax, colat, norm="ortho", condon_shortley=True)
+    p = legendre.all_orders(lmax, colat, norm="orthonormal", condon_shortley=True)
     total = p[:, 0, :] ** 2 + 2.0 * np.sum(p[:, 1:, :] ** 2, axis=1)
     expected = (2 * np.arange(lmax + 1) + 1) / (4 * np.pi)
     rel = np.max(np.abs(total / expected[:, None] - 1.0), axis=0)
@@ -278,7 +278,7 @@ def test_derivative_matches_sympy():
     colat = np.array([0.25, 1.1, 2.6])
     worst = 0.0
     for m in range(lmax + 1):
-        got = legendre.derivative_for_order(m, lmax, colat, norm="unnorm", condon_shortley=False)
+        got = legendre.derivative_for_order(m, lmax, colat, norm="unnormalized", condon_shortley=False)
         ref = np.array([[sympy_plm_dtheta(l, m, t) for t in colat] for l in range(m, lmax + 1)])
         worst = max(worst, order_error(got, ref))
     assert worst < 1e-13, worst
@@ -292,9 +292,9 @@ def test_derivative_matches_finite_difference():
     t = np.array([0.5, 0.8, 1.5, 2.3, 2.6])
     for m in (0, 1, 7, 20, 40):
         def f(tt):
-            return legendre.for_order(m, lmax, tt, norm="ortho", condon_shortley=True)
+            return legendre.for_order(m, lmax, tt, norm="orthonormal", condon_shortley=True)
         fd = (-f(t + 2 * h) + 8 * f(t + h) - 8 * f(t - h) + f(t - 2 * h)) / (12 * h)
-        got = legendre.derivative_for_order(m, lmax, t, norm="ortho", condon_shortley=True)
+        got = legendre.derivative_for_order(m, lmax, t, norm="orthonormal", condon_shortley=True)
         assert order_error(got, fd) < 1e-8
 
 
@@ -303,7 +303,7 @@ def test_derivative_high_degree_against_mpmath(m, lmax, colat):
     # source: mpmath recursion plus the degree-raising identity for dP/dtheta
     # (tests/_reference.mp_ortho_column_dtheta), relative to the largest |derivative| of the order
     ref = mp_to_float(mp_ortho_column_dtheta(m, lmax, colat))[:, None]
-    got = legendre.derivative_for_order(m, lmax, np.array([colat]), norm="ortho", condon_shortley=False)
+    got = legendre.derivative_for_order(m, lmax, np.array([colat]), norm="orthonormal", condon_shortley=False)
     err = order_error(got, ref)
     print(f"derivative m={m} lmax={lmax} colat={colat:.6f}: error/max = {err:.2e}")
     assert err < 1e-11, err
@@ -313,8 +313,10 @@ def test_derivative_high_degree_against_mpmath(m, lmax, colat):
 # Bad input at this public boundary
 # --------------------------------------------------------------------------------------
 def test_unknown_normalisation_rejected():
-    # the message names the argument and lists the valid values (STYLE.md)
-    with pytest.raises(ValueError, match="(?is)norm.*ortho|ortho.*norm"):
+    # the message names the argument and lists the valid values
+    with pytest.raises(ValueError, match="(?is)orthonormal.*full"):
         legendre.for_order(0, 5, np.array([0.5]), norm="bogus")
-    with pytest.raises(ValueError, match="(?i)norm"):
-        legendre.all_orders(5, np.array([0.5]), norm="full")
+    # the clipped spellings of earlier versions are refused with the word that replaces each
+    for old, new in (('ortho', 'orthonormal'), ('4pi', 'full'), ('unnorm', 'unnormalized')):
+        with pytest.raises(ValueError, match=f"(?s)no longer accepted: use '{new}'"):
+            legendre.all_orders(5, np.array([0.5]), norm=old)

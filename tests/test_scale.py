@@ -228,13 +228,13 @@ def test_streamed_file_matches_the_in_memory_path(series, tmp_path):
     src = tmp_path / "series.nc"
     _write_series(series, src)
     out = tmp_path / "coef_streamed.nc"
-    res = _scale.stream_analyze(src, "surface_temp", out, lmax=12, norm="4pi", chunks="time=5")
+    res = _scale.stream_analyze(src, "surface_temp", out, lmax=12, norm="full", chunks="time=5")
     assert (res.fields, res.dim, res.block, res.chunks, res.lmax) == (12, "time", 5, 3, 12)
     assert res.scheduler == "threads" and "gauss" in res.grid
     with xr.open_dataset(src) as ds:
         da = ds["surface_temp"].load()
-    ref = sxr.analyze(da, 12, norm="4pi")
-    ref.attrs["history"] = f"sphex analyze {src} -v surface_temp --lmax 12 --norm 4pi"
+    ref = sxr.analyze(da, 12, norm="full")
+    ref.attrs["history"] = f"sphex analyze {src} -v surface_temp --lmax 12 --norm full"
     sxr.write_dataset(ref, tmp_path / "coef_memory.nc")
     assert _layout(out) == _layout(tmp_path / "coef_memory.nc")
     got = sxr.open_coefficients(out)

@@ -18,7 +18,7 @@ from sphex.spectra import (
     spectral_slope,
 )
 
-NORMS = ("ortho", "4pi", "schmidt", "unnorm")
+NORMS = ("orthonormal", "full", "schmidt", "unnormalized")
 PHASES = (True, False)
 
 
@@ -78,7 +78,7 @@ def test_power_is_the_same_in_every_convention(rng):
     for norm, cs in itertools.product(NORMS, PHASES):
         h = analyze(f, grid, norm=norm, condon_shortley=cs)
         np.testing.assert_allclose(degree_power(h), ref, rtol=1e-12, atol=1e-14 * ref.sum())
-        np.testing.assert_allclose(degree_power(h.to("4pi", False)), ref, rtol=1e-12,
+        np.testing.assert_allclose(degree_power(h.to("full", False)), ref, rtol=1e-12,
                                    atol=1e-14 * ref.sum())
 
 
@@ -117,9 +117,9 @@ def test_derived_spectra(rng):
     h = analyze(on_grid(polynomial_field(rng, 8), grid), grid)
     p = degree_power(h)
     l = np.arange(10)
-    # geodesists' degree variance: sum over m of C_lm^2 + S_lm^2 of the 4pi-normalised
+    # geodesists' degree variance: sum over m of C_lm^2 + S_lm^2 of the fully normalised
     # real coefficients equals the degree's mean square (common practice)
-    c, s = h.to("4pi").cos_sin()
+    c, s = h.to("full").cos_sin()
     np.testing.assert_allclose(p, (c**2 + s**2).sum(axis=-1), rtol=1e-12)
     np.testing.assert_allclose(power_per_coefficient(h), p / (2 * l + 1), rtol=1e-15)
     np.testing.assert_allclose(degree_rms(h) ** 2, p, rtol=1e-14)
@@ -201,7 +201,7 @@ def test_spectral_slope_of_a_random_field_with_a_power_law():
     s_ = rng.standard_normal((lmax + 1, lmax + 1)) * np.r_[0.0, l[1:] ** -1.5][:, None]
     tri = np.tril(np.ones((lmax + 1, lmax + 1), bool))
     s_[:, 0] = 0
-    h = Harmonics.from_cos_sin(np.where(tri, c, 0), np.where(tri, s_, 0), norm="4pi")
+    h = Harmonics.from_cos_sin(np.where(tri, c, 0), np.where(tri, s_, 0), norm="full")
     slope, _ = spectral_slope(power_per_coefficient(h), 10, lmax)
     assert abs(slope + 3.0) < 0.15
 

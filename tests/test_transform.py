@@ -44,7 +44,7 @@ def test_round_trip_gauss_high_degree(rng):
     f = synthesize(Harmonics(coef), grid)
     assert f.shape == grid.shape and f.dtype == np.float64
     h = analyze(f, grid)
-    assert h.lmax == lmax and h.norm == "ortho" and h.condon_shortley is True
+    assert h.lmax == lmax and h.norm == "orthonormal" and h.condon_shortley is True
     err = rel_err(h.coef, coef)
     print(f"Gauss round trip lmax={lmax}: {err:.2e}")
     assert err <= 1e-12, err
@@ -163,11 +163,11 @@ def test_analysis_of_cos_colat():
     expected = np.zeros((h.lmax + 1, h.lmax + 1), complex)
     expected[1, 0] = math.sqrt(4 * math.pi / 3)
     np.testing.assert_allclose(h.coef, expected, rtol=0, atol=1e-13)
-    # 4pi normalisation: cos(theta) = (1/sqrt(3)) * sqrt(3) cos(theta) -> a_10 = 1/sqrt(3)
-    h4 = analyze(np.cos(th) + 0 * ph, grid, norm="4pi")
+    # full normalisation: cos(theta) = (1/sqrt(3)) * sqrt(3) cos(theta) -> a_10 = 1/sqrt(3)
+    h4 = analyze(np.cos(th) + 0 * ph, grid, norm="full")
     assert abs(h4.coef[1, 0] - 1 / math.sqrt(3)) < 1e-14
-    # unnorm: cos(theta) = P_1(cos theta) -> a_10 = 1
-    assert abs(analyze(np.cos(th) + 0 * ph, grid, norm="unnorm").coef[1, 0] - 1.0) < 1e-14
+    # unnormalized: cos(theta) = P_1(cos theta) -> a_10 = 1
+    assert abs(analyze(np.cos(th) + 0 * ph, grid, norm="unnormalized").coef[1, 0] - 1.0) < 1e-14
 
 
 def test_constant_field():
@@ -183,7 +183,7 @@ def test_constant_field():
 # --------------------------------------------------------------------------------------
 @pytest.mark.parametrize("start", [-180.0, 7.5, -172.5])
 def test_longitude_origin_respected(start):
-    # Y_11 (ortho, Condon-Shortley) = -sqrt(3/(8 pi)) sin(theta) e^{i phi} (common practice), so
+    # Y_11 (orthonormal, Condon-Shortley) = -sqrt(3/(8 pi)) sin(theta) e^{i phi} (common practice), so
     # sin(theta) cos(phi) -> a_11 = -sqrt(2 pi / 3); sin(theta) sin(phi) -> a_11 = i sqrt(2 pi / 3),
     # phi being the true longitude whatever the grid's first longitude
     lmax = 10
@@ -222,7 +222,7 @@ def test_south_to_north_rows(rng):
 @pytest.mark.parametrize("condon_shortley", [True, False])
 @pytest.mark.parametrize("norm", NORMS)
 def test_conversion_keeps_field(rng, norm, condon_shortley):
-    lmax = 20  # unnorm coefficients still representable
+    lmax = 20  # unnormalized coefficients still representable
     grid = Grid.gauss(lmax)
     h = Harmonics(random_coef(lmax, rng))
     f0 = synthesize(h, grid)
@@ -231,7 +231,7 @@ def test_conversion_keeps_field(rng, norm, condon_shortley):
     assert rel_err(synthesize(h2, grid), f0) < 1e-13
     # analysing straight into the convention gives the converted coefficients
     direct = analyze(f0, grid, norm=norm, condon_shortley=condon_shortley)
-    back = direct.to(norm="ortho", condon_shortley=True)
+    back = direct.to(norm="orthonormal", condon_shortley=True)
     assert rel_err(back.coef, h.coef) < 1e-12
 
 
@@ -278,7 +278,7 @@ def test_large_batches_match_one_by_one(rng, kind, batch):
     assert rel_err(ab.coef, coef) < 1e-12
     if kind == "gauss" and batch == (9,):
         # and against the direct scipy sum for one member
-        ref = complex_form_field(flat_c[-1], grid.colat, np.radians(grid.lon), "ortho", True)
+        ref = complex_form_field(flat_c[-1], grid.colat, np.radians(grid.lon), "orthonormal", True)
         assert rel_err(flat_f[-1], ref) < 1e-12
 
 
@@ -348,7 +348,7 @@ def test_low_degree_field_on_fine_oversampled_grid(rng):
     grid = Grid.equiangular(41, 83, "poles")
     coef = random_coef(6, rng)
     f = synthesize(Harmonics(coef), grid)
-    ref = complex_form_field(coef, grid.colat, np.radians(grid.lon), "ortho", True)
+    ref = complex_form_field(coef, grid.colat, np.radians(grid.lon), "orthonormal", True)
     assert rel_err(f, ref) < 1e-13
     h = analyze(f, grid)
     assert h.lmax == 20
@@ -363,7 +363,7 @@ def test_synthesis_beyond_grid_limit_is_the_series_at_the_nodes(rng):
     coef = random_coef(20, rng)
     for grid in (Grid.gauss(10), Grid.equiangular(12, 30, "cells")):
         f = synthesize(Harmonics(coef), grid)
-        ref = complex_form_field(coef, grid.colat, np.radians(grid.lon), "ortho", True)
+        ref = complex_form_field(coef, grid.colat, np.radians(grid.lon), "orthonormal", True)
         assert rel_err(f, ref) < 1e-13
 
 
@@ -504,7 +504,7 @@ def test_lmax_above_grid_limit_rejected():
 
 def test_unknown_normalisation_rejected():
     grid = Grid.gauss(5)
-    with pytest.raises(ValueError, match="(?is)norm.*ortho|ortho.*norm"):
+    with pytest.raises(ValueError, match="(?is)orthonormal.*full"):
         analyze(np.ones(grid.shape), grid, norm="bogus")
     with pytest.raises(ValueError, match="(?i)norm"):
         Harmonics(np.zeros((3, 3), complex), norm="bogus")

@@ -11,7 +11,7 @@ from sphex import filters
 from sphex.spectra import degree_power
 
 
-def _random_harmonics(rng, lmax, batch=(), norm="ortho", cs=True, radius=None, units=None):
+def _random_harmonics(rng, lmax, batch=(), norm="orthonormal", cs=True, radius=None, units=None):
     coef = np.zeros(batch + (lmax + 1, lmax + 1), dtype=complex)
     for l in range(lmax + 1):
         coef[..., l, : l + 1] = rng.normal(size=batch + (l + 1,)) + 1j * rng.normal(size=batch + (l + 1,))
@@ -131,7 +131,7 @@ def test_analyze_synthesize_keeps_coordinates_attributes_and_extra_dims(rng):
     np.testing.assert_allclose(ds[sxr.SIN].values, s, atol=1e-12)
 
 
-@pytest.mark.parametrize("norm,cs", [("ortho", True), ("4pi", False), ("schmidt", True), ("unnorm", True)])
+@pytest.mark.parametrize("norm,cs", [("orthonormal", True), ("full", False), ("schmidt", True), ("unnormalized", True)])
 def test_netcdf_round_trip_is_bit_exact(tmp_path, rng, norm, cs):
     h = _random_harmonics(rng, 9, batch=(2,), norm=norm, cs=cs, radius=6.3781e6, units="m")
     path = tmp_path / "h.nc"
@@ -163,7 +163,7 @@ def test_coefficient_dataset_round_trip_and_no_silent_overwrite(tmp_path, rng):
 
 
 def test_text_table_round_trip_with_uncertainties(tmp_path, rng):
-    h = _random_harmonics(rng, 6, norm="4pi", radius=1.35e6, units="m")
+    h = _random_harmonics(rng, 6, norm="full", radius=1.35e6, units="m")
     sig = (np.abs(rng.normal(size=(7, 7))), np.abs(rng.normal(size=(7, 7))))
     sig = tuple(np.tril(s) for s in sig)
     path = tmp_path / "h.txt"
@@ -175,7 +175,7 @@ def test_text_table_round_trip_with_uncertainties(tmp_path, rng):
     np.testing.assert_array_equal(s2, s)
     np.testing.assert_array_equal(sig2[0], sig[0])
     np.testing.assert_array_equal(sig2[1], sig[1])
-    assert (g.norm, g.condon_shortley, g.radius, g.units) == ("4pi", True, 1.35e6, "m")
+    assert (g.norm, g.condon_shortley, g.radius, g.units) == ("full", True, 1.35e6, "m")
     text = path.read_text().splitlines()
     assert text[0].startswith("# sphex coefficient table")
     assert sum(1 for t in text if not t.startswith("#")) == 28    # (6+1)(6+2)/2 rows
@@ -183,7 +183,7 @@ def test_text_table_round_trip_with_uncertainties(tmp_path, rng):
 
 def test_hand_written_table_any_order_and_errors(tmp_path):
     p = tmp_path / "t.txt"
-    p.write_text("# normalization: ortho\n2 1 0.5 -0.25\n0 0 3.0 0.0\n")
+    p.write_text("# normalization: orthonormal\n2 1 0.5 -0.25\n0 0 3.0 0.0\n")
     h, sigma = sxr.read_table(p)
     assert h.lmax == 2 and sigma is None
     c, s = h.cos_sin()
@@ -265,7 +265,9 @@ def test_parse_grid_and_lmax_errors():
     with pytest.raises(ValueError, match="exact limit 5"):
         sxr.analyze(da, lmax=6)
     with pytest.raises(ValueError, match="unknown normalisation"):
-        sxr.analyze(da, norm="full")
+        sxr.analyze(da, norm="fully")
+    with pytest.raises(ValueError, match="'ortho' is no longer accepted: use 'orthonormal'"):
+        sxr.analyze(da, norm='ortho')
     bad = da.copy()
     bad[0, 0] = np.nan
     with pytest.raises(ValueError, match="1 missing"):
