@@ -114,12 +114,15 @@ def _gauss_half(n, theta, weights):
             for _ in range(2):
                 pn, pn1, u = _legendre_pair_double_double(n, t)
                 t = t - pn / (n * ((pn - u * pn) - pn1) / math.sin(t))
-            pn, pn1, u = _legendre_pair_double_double(n, t)
-        else:
-            pn, pn1, u = _legendre_pair(n, t)
+        # Weight w = 2 / (dP_n/dtheta)^2 with dP_n/dtheta = n (x P_n - P_{n-1}) / sin.
+        # This form moves only O(1) relative per unit error of the node, where
+        # 2 sin^2 / (n P_{n-1})^2 moves O(n); and P_{n-1} in double-double, because
+        # the plain recursion leaves several n ulp (5e-12 relative at n = 5401).
+        pn, pn1, u = _legendre_pair_double_double(n, t)
         theta[i] = t
         s = math.sin(t)
-        weights[i] = 2.0 * s * s / (n * n * pn1 * pn1)
+        d = (pn - u * pn) - pn1
+        weights[i] = 2.0 * s * s / (n * n * d * d)
 
 
 def gauss_legendre(n: int):
