@@ -367,6 +367,21 @@ def test_synthesis_beyond_grid_limit_is_the_series_at_the_nodes(rng):
         assert rel_err(f, ref) < 1e-13
 
 
+@pytest.mark.parametrize("grid, lmax", [(Grid.gauss(20), 21), (Grid.equiangular(24, 24, "cells"), 12),
+                                         (Grid.equiangular(25, 48, "poles"), 24),
+                                         (Grid.equiangular(24, 48, "north"), 24)])
+def test_synthesis_with_top_order_at_nyquist(rng, grid, lmax):
+    # the top order equals nlon/2: the Nyquist longitude frequency, which an inverse real FFT
+    # counts once where the series counts m and -m. Each layout once, with a field whose
+    # orders reach exactly nlon/2; reference: direct scipy sum (tests/_reference,
+    # scipy.special.sph_legendre_p). Measured 1e-15; a miscounted Nyquist term gives 1e-2.
+    assert lmax == grid.nlon // 2
+    coef = random_coef(lmax, rng)
+    f = synthesize(Harmonics(coef), grid)
+    ref = complex_form_field(coef, grid.colat, np.radians(grid.lon), "orthonormal", True)
+    assert rel_err(f, ref) < 1e-13
+
+
 def test_analysis_below_grid_limit_truncates(rng):
     # asking for fewer degrees than the grid holds returns the leading coefficients
     grid = Grid.gauss(40)
