@@ -288,8 +288,8 @@ class NormalField:
         and height above the ellipsoid.
 
         ``N = a / sqrt(1 - e^2 sin^2 phi)``, ``p = (N + h) cos phi``,
-        ``z = (N (1 - e^2) + h) sin phi`` (common practice; Heiskanen & Moritz 1967
-        eq. 5-3), then ``r = sqrt(p^2 + z^2)`` and ``phi' = atan2(z, p)``.  Exact.
+        ``z = (N (1 - e^2) + h) sin phi`` (common practice), then
+        ``r = sqrt(p^2 + z^2)`` and ``phi' = atan2(z, p)``.  Exact.
         """
         lat = _latitudes(geodetic_lat_deg, "geodetic_lat_deg")
         h = np.asarray(height, dtype=np.float64)

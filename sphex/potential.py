@@ -295,8 +295,8 @@ def gravity(model, grid: Grid, quantity, height: float = 0.0, normal="grs80", *,
     surface : {"sphere", "ellipsoid"}
         "sphere": grid latitudes geocentric, points at radius ``R + height``.
         "ellipsoid": grid latitudes geodetic, ``height`` ellipsoidal, on the
-        normal field's ellipsoid (each ring synthesised at its own radius,
-        several times the cost of "sphere").
+        normal field's ellipsoid (each pair of mirrored rings synthesised at
+        its own radius: about 20 times the cost of "sphere").
 
     Returns
     -------
