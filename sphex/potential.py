@@ -96,7 +96,11 @@ _TESLA_PER_UNIT = {"nT": 1e-9, "T": 1.0}
 # ---------------------------------------------------------------------------
 def _names(requested, valid: tuple, what: str) -> tuple[list[str], bool]:
     single = isinstance(requested, str)
-    names = [requested] if single else list(requested)
+    try:
+        names = [requested] if single else list(requested)
+    except TypeError:
+        raise ValueError(f"{what} must be a name or a list of names from {', '.join(valid)}, "
+                         f"got {requested!r}") from None
     if not names:
         raise ValueError(f"no {what} asked for; choose from {', '.join(valid)}")
     for name in names:

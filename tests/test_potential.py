@@ -274,6 +274,8 @@ def test_gravity_errors():
         gravity(h.replace(radius=None), grid, "anomaly", gm=GM)
     with pytest.raises(ValueError, match="unknown quantity 'bouguer'"):
         gravity(h, grid, "bouguer", gm=GM)
+    with pytest.raises(ValueError, match="a name or a list of names"):
+        gravity(h, grid, None, gm=GM)
     with pytest.raises(ValueError, match="geoid lies on the reference surface"):
         gravity(h, grid, "geoid", height=100.0, gm=GM)
     with pytest.raises(ValueError, match="needs a reference ellipsoid"):
