@@ -33,7 +33,7 @@ from sphex.grids import Grid
 from sphex.harmonics import Harmonics, convert_factor
 from sphex.legendre import check_norm, norm_column, sectoral_table
 
-__all__ = ["analyze", "synthesize", "synthesize_gradient", "regrid"]
+__all__ = ["analyze", "synthesize", "synthesize_gradient", "synthesize_rings", "regrid"]
 
 
 def _workers() -> int:
@@ -481,10 +481,20 @@ def synthesize_gradient(h: Harmonics, grid: Grid) -> tuple[np.ndarray, np.ndarra
     grid = _check_grid(grid)
     c, fac = _batched(h)
     K, L1, _ = c.shape
-    lmax = L1 - 1
     shape = h.batch_shape + grid.shape
-    if lmax == 0:
+    if L1 == 1:
         return np.zeros(shape), np.zeros(shape)
+    out = _synthesis_passes(grid, K, L1, _gradient_passes(c, fac), 2)
+    north = np.negative(out[0], out=out[0])
+    east = out[1]
+    return east.reshape(shape), north.reshape(shape)
+
+
+def _gradient_passes(c: np.ndarray, fac: "_Factor") -> list:
+    """Synthesis passes of (d/dtheta, (1/sin theta) d/dphi) for (K, L+1, L+1) coefficients
+    (see :func:`synthesize_gradient`; lmax >= 1)."""
+    L1 = c.shape[-1]
+    lmax = L1 - 1
     l = np.arange(L1, dtype=np.float64)[:, None]
     m = np.arange(L1, dtype=np.float64)[None, :]
     up = 0.5 * np.sqrt(np.maximum((l + m) * (l - m + 1), 0.0))     # weight of Lambda_l,m-1
@@ -499,13 +509,134 @@ def synthesize_gradient(h: Harmonics, grid: Grid) -> tuple[np.ndarray, np.ndarra
     c2[:, :, 1:] = -c[:, :, :-1] * (full * dn)[None, :, :-1]     # function order mu = m + 1
     one = _factor(lmax, "orthonormal", False, "orthonormal", False)
     ones = np.ones(L1)
-    passes = [(0, c1, one, 0, lmax - 1, +1, ones, 0),                 # d/dtheta from order m - 1
-              (0, c2, one, 1, lmax, -1, ones, 0),                     # d/dtheta from order m + 1
-              (1, c, fac, 1, lmax, 0, 1j * np.arange(1, L1), 1)]      # (1/sin theta) d/dphi
-    out = _synthesis_passes(grid, K, L1, passes, 2)
+    return [(0, c1, one, 0, lmax - 1, +1, ones, 0),                 # d/dtheta from order m - 1
+            (0, c2, one, 1, lmax, -1, ones, 0),                     # d/dtheta from order m + 1
+            (1, c, fac, 1, lmax, 0, 1j * np.arange(1, L1), 1)]      # (1/sin theta) d/dphi
+
+
+# ---------------------------------------------------------------------------
+# rings at any colatitudes, each with its own per-degree weights
+# ---------------------------------------------------------------------------
+class _RingSet:
+    """Latitude rings at arbitrary colatitudes: the part of a grid the synthesis uses.
+
+    Equal and hashed by the nodes themselves, so the caches keyed by grids
+    (:func:`_pairs`, :func:`_live`) never take one ring set for another."""
+
+    def __init__(self, colat: np.ndarray, nlon: int, lon0: float):
+        self.colat = np.array(colat, dtype=np.float64)
+        self.colat.setflags(write=False)
+        self.weights = np.ones(self.colat.size)
+        self.nlat = self.colat.size
+        self.nlon = int(nlon)
+        self.lon0 = float(lon0)
+        self._key = (self.colat.tobytes(), self.nlon, self.lon0)
+
+    @property
+    def shape(self) -> tuple[int, int]:
+        return (self.nlat, self.nlon)
+
+    def __eq__(self, other):
+        return isinstance(other, _RingSet) and self._key == other._key
+
+    def __hash__(self):
+        return hash(self._key)
+
+
+class _Weighted:
+    """A :class:`_Factor` with per-degree weights folded into its degree part."""
+
+    def __init__(self, fac, weights: np.ndarray):
+        fl, fm, full, use_full = fac.args()
+        if use_full:
+            self._args = (fl, fm, full * weights[:, None], True)
+        else:
+            self._args = (fl * weights, fm, full, False)
+
+    def args(self):
+        return self._args
+
+
+def synthesize_rings(h: Harmonics, colat, nlon: int, lon0: float = 0.0, *,
+                     degree_weights=None, gradient: bool = False):
+    """Values of ``h`` on latitude rings at any colatitudes, each ring with its own
+    per-degree weights.
+
+    Parameters
+    ----------
+    h : Harmonics
+    colat : array_like
+        Colatitudes of the rings in radians, 1-D, within [0, pi], any order.
+    nlon : int
+        Longitudes per ring, ``lon0 + 360 k / nlon`` degrees.
+    lon0 : float
+        First longitude in degrees.
+    degree_weights : array_like, optional
+        ``(lmax + 1,)`` weights for every ring, or ``(nrings, lmax + 1)``, one
+        row per ring: ring i gets ``sum_l w[i, l] sum_m a_lm Y_lm``.  Default 1.
+    gradient : bool
+        Return the horizontal gradient ``(east, north)`` on the unit sphere
+        (as :func:`synthesize_gradient`) instead of the values.
+
+    Returns
+    -------
+    ndarray or (ndarray, ndarray)
+        ``h.batch_shape + (nrings, nlon)`` each.
+
+    Notes
+    -----
+    A radial continuation to points at different radii is the typical use:
+    ``w[i, l] = (R / r_i)^(l+1)`` for the rings of a grid on an ellipsoid.
+    Rings with equal weight rows share one pass of the transform (mirrored
+    rings with the north/south symmetry); the weights are applied inside the
+    Legendre stage, so no weighted copy of the coefficients is made.
+    """
+    c, fac = _batched(h)
+    K, L1, _ = c.shape
+    colat = np.asarray(colat, dtype=np.float64)
+    if colat.ndim != 1 or colat.size == 0:
+        raise ValueError(f"colat must be a non-empty 1-D array of colatitudes, got shape {colat.shape}")
+    if not np.all(np.isfinite(colat)) or np.any(colat < 0) or np.any(colat > np.pi):
+        raise ValueError("colatitudes must lie in [0, pi] radians "
+                         "(convert latitudes with colat = pi/2 - radians(lat))")
+    if isinstance(nlon, bool) or int(nlon) != nlon or nlon < 1:
+        raise ValueError(f"nlon must be a positive integer, got {nlon!r}")
+    w = np.ones(L1) if degree_weights is None else np.asarray(degree_weights, dtype=np.float64)
+    if w.shape not in ((L1,), (colat.size, L1)):
+        raise ValueError(f"degree_weights must have shape ({L1},) or ({colat.size}, {L1}) for "
+                         f"lmax={L1 - 1} and {colat.size} rings, got {w.shape}")
+    if not np.all(np.isfinite(w)):
+        raise ValueError("degree_weights contain NaN or inf")
+    if w.ndim == 1:
+        groups, rows_of = w[None], [np.arange(colat.size)]
+    else:
+        groups, inverse = np.unique(w, axis=0, return_inverse=True)
+        inverse = inverse.reshape(-1)
+        rows_of = [np.flatnonzero(inverse == g) for g in range(groups.shape[0])]
+    ntarget = 2 if gradient else 1
+    shape = h.batch_shape + (colat.size, int(nlon))
+    if gradient and L1 == 1:
+        return np.zeros(shape), np.zeros(shape)
+    if gradient:
+        base = _gradient_passes(c, fac)
+    else:
+        base = [(0, c, fac, 0, L1 - 1, 0, np.ones(L1), 0)]
+    out = [None] * ntarget if len(rows_of) == 1 else [np.empty((K,) + shape[-2:])
+                                                       for _ in range(ntarget)]
+    for weights, rows in zip(groups, rows_of):
+        rings = _RingSet(colat[rows], nlon, lon0)
+        passes = [p[:2] + (_Weighted(p[2], weights),) + p[3:] for p in base]
+        parts = _synthesis_passes(rings, K, L1, passes, ntarget)
+        for t in range(ntarget):
+            if len(rows_of) == 1:
+                out[t] = parts[t]
+            else:
+                out[t][:, rows, :] = parts[t]
+    out = [v.reshape(shape) for v in out]
+    if not gradient:
+        return out[0]
     north = np.negative(out[0], out=out[0])
-    east = out[1]
-    return east.reshape(shape), north.reshape(shape)
+    return out[1], north
 
 
 def regrid(values, source: Grid, target: Grid, lmax: int | None = None) -> np.ndarray:
