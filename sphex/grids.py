@@ -217,7 +217,11 @@ class Grid:
         return self.kind.split("-", 1)[1] if self.kind.startswith("equiangular") else None
 
     def _key(self):
-        return (self.kind, self.nlat, self.nlon, self.lon0, self.north_first)
+        # the nodes and weights themselves belong to the identity: a Grid built
+        # directly from its constructor may carry any colatitudes, and the
+        # transforms cache their latitude tables by grid
+        return (self.kind, self.nlat, self.nlon, self.lon0, self.north_first,
+                self.colat.tobytes(), self.weights.tobytes())
 
     def __eq__(self, other):
         return isinstance(other, Grid) and self._key() == other._key()

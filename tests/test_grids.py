@@ -366,3 +366,14 @@ def test_from_coords_rejects_unsorted_latitudes(rng):
     lat = lat[rng.permutation(lat.size)]
     with pytest.raises(ValueError, match="(?i)lat"):
         Grid.from_coords(lat, lon_vector(64, "0"))
+
+
+def test_grids_with_different_nodes_are_different():
+    # the transforms cache latitude tables by grid: two grids built directly with the same kind
+    # and size but other colatitudes must not compare (or hash) equal, or one would be
+    # synthesised on the other's rings
+    g = Grid.gauss(7)
+    moved = Grid("gauss", g.colat * 0.99, g.weights, g.nlon)
+    assert moved != g
+    assert Grid("gauss", g.colat.copy(), g.weights.copy(), g.nlon) == g
+    assert hash(Grid("gauss", g.colat.copy(), g.weights.copy(), g.nlon)) == hash(g)
