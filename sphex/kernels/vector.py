@@ -278,14 +278,13 @@ def vector_synthesis_kernel(lmax, seq, x, s, cm, live, CU, CV, Xu, Xv, rn, rs, s
         col = seq[i]
         mu, shift, top = column_plan(col, lmax)
         n = live[col] if top >= mu else 0
-        for kk in range(K):
-            for j in range(n, J):
-                if rn[j] >= 0:
-                    Xu[kk, rn[j], col] = 0.0
-                    Xv[kk, rn[j], col] = 0.0
-                if rs[j] >= 0:
-                    Xu[kk, rs[j], col] = 0.0
-                    Xv[kk, rs[j], col] = 0.0
+        for j in range(n, J):  # rows where the functions are negligible
+            for X in (Xu, Xv):
+                for kk in range(K):
+                    if rn[j] >= 0:
+                        X[kk, rn[j], col] = 0.0
+                    if rs[j] >= 0:
+                        X[kk, rs[j], col] = 0.0
         if n == 0:
             continue
         a = np.empty(top + 1)
@@ -346,21 +345,28 @@ def vector_synthesis_kernel(lmax, seq, x, s, cm, live, CU, CV, Xu, Xv, rn, rs, s
                 for kk in range(K):
                     for t in range(8):
                         g[kk, t, j] = 0.0
-        sc = scale[col]
-        for kk in range(K):
-            for j in range(n):
-                for comp in range(2):
-                    b = 4 * comp
-                    vn = sc * complex(g[kk, b, j] + g[kk, b + 2, j], g[kk, b + 1, j] + g[kk, b + 3, j])
-                    vs = sc * complex(g[kk, b, j] - g[kk, b + 2, j], g[kk, b + 1, j] - g[kk, b + 3, j])
-                    if col == 0:
-                        vn = complex(vn.real, 0.0)
-                        vs = complex(vs.real, 0.0)
-                    X = Xu if comp == 0 else Xv
-                    if rn[j] >= 0:
-                        X[kk, rn[j], col] = vn
-                    if rs[j] >= 0:
-                        X[kk, rs[j], col] = vs
+        _store_rows(g, n, Xu, Xv, rn, rs, col, scale[col])
+
+
+@nb.njit(inline="always", **JIT)
+def _store_rows(g, n, Xu, Xv, rn, rs, col, sc):
+    """Northern (even + odd) and southern (even - odd) values of both components into
+    column col of the FFT buffers, times sc; real part only in column 0."""
+    K = g.shape[0]
+    for kk in range(K):
+        for j in range(n):
+            for comp in range(2):
+                b = 4 * comp
+                vn = sc * complex(g[kk, b, j] + g[kk, b + 2, j], g[kk, b + 1, j] + g[kk, b + 3, j])
+                vs = sc * complex(g[kk, b, j] - g[kk, b + 2, j], g[kk, b + 1, j] - g[kk, b + 3, j])
+                if col == 0:
+                    vn = complex(vn.real, 0.0)
+                    vs = complex(vs.real, 0.0)
+                X = Xu if comp == 0 else Xv
+                if rn[j] >= 0:
+                    X[kk, rn[j], col] = vn
+                if rs[j] >= 0:
+                    X[kk, rs[j], col] = vs
 
 
 @nb.njit(inline="always", fastmath=FASTMATH, **JIT)
