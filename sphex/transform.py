@@ -658,8 +658,9 @@ def analyze_vector(east, north, grid: Grid, lmax: int | None = None, norm: str =
 
     Notes
     -----
-    ``a_lm = (1/(l(l+1))) integral (east conj(dY/dtheta) - north conj((1/sin theta) dY/dphi)) dOmega``
-    and ``b_lm`` alike with ``grad Y``; the quadrature integrates products
+    ``psi_lm = (1/(l(l+1))) integral (east conj(dY_lm/dtheta) + north conj(dY_lm/dphi / sin theta)) dOmega``
+    (the projection on ``k x grad Y_lm``) and ``chi_lm`` alike on ``grad Y_lm``,
+    ``(dY_lm/dphi / sin theta, -dY_lm/dtheta)``; the quadrature integrates products
     ``(1 - x^2)^(m-1) q(x)`` with ``q`` of degree ``l + l' - 2m + 2``, i.e.
     polynomials of degree ``l + l' <= 2 lmax`` in ``x = cos theta``: the
     same as the scalar case, so ``grid.lmax_exact`` is the vector limit too.
