@@ -10,8 +10,9 @@ Units: a spectrum of a field in units ``u`` (``h.units``) is in ``u**2``
 dimensionless; degree RMS amplitudes are in ``u``.
 
 The functions take a :class:`~sphex.harmonics.Harmonics` (or, for
-:func:`spectral_slope`, a spectrum array) and return plain numpy arrays whose
-last axis is the degree ``l = 0..lmax``; leading batch axes are kept.
+:func:`spectral_slope`, a spectrum array, and for :func:`kinetic_energy` a
+:class:`sphex.flow.Flow`) and return plain numpy arrays whose last axis is the
+degree ``l = 0..lmax``; leading batch axes are kept.
 """
 from __future__ import annotations
 
@@ -28,6 +29,7 @@ __all__ = [
     "cross_power",
     "correlation",
     "spectral_slope",
+    "kinetic_energy",
 ]
 
 _FOUR_PI = 4.0 * np.pi
@@ -256,3 +258,42 @@ def spectral_slope(power: np.ndarray, lmin: int, lmax: int) -> tuple:
     if np.ndim(slope) == 0:
         return float(slope), float(intercept)
     return slope, intercept
+
+
+def kinetic_energy(flow) -> tuple[np.ndarray, np.ndarray]:
+    r"""Kinetic energy per unit mass of a flow, per degree, split into its rotational and divergent parts.
+
+    Parameters
+    ----------
+    flow : sphex.flow.Flow
+        Streamfunction and velocity potential (any convention, optional batch
+        axes), on a sphere of radius ``flow.radius`` metres (unit sphere when
+        None).
+
+    Returns
+    -------
+    rotational, divergent : numpy.ndarray
+        Each ``(..., lmax+1)``: m2 s-2 for a flow in m s-1 with the radius in
+        metres.  Degree 0 is zero.
+
+    Notes
+    -----
+    .. math:: E^{rot}_l = \frac{l(l+1)}{2R^2} P_l(\psi), \qquad
+              E^{div}_l = \frac{l(l+1)}{2R^2} P_l(\chi),
+
+    with :math:`P_l` the :func:`degree_power`. Because
+    :math:`\int \nabla Y_{lm} \cdot \overline{\nabla Y_{l'm'}}\,d\Omega
+    = l(l+1)\,\delta_{ll'}\delta_{mm'}` and the rotational and divergent
+    parts are orthogonal (Helmholtz),
+    :math:`\sum_l (E^{rot}_l + E^{div}_l)` is the area mean of
+    :math:`(u^2 + v^2)/2` (Parseval for vector fields).
+    """
+    psi = getattr(flow, "psi", None)
+    chi = getattr(flow, "chi", None)
+    if not (isinstance(psi, Harmonics) and isinstance(chi, Harmonics)):
+        raise ValueError(f"flow must be a sphex.flow.Flow (got {type(flow).__name__}); make one with "
+                         "sphex.flow.analyze_flow(east, north, grid)")
+    radius = 1.0 if psi.radius is None else psi.radius
+    l = np.arange(psi.lmax + 1, dtype=float)
+    weight = l * (l + 1.0) / (2.0 * radius * radius)
+    return weight * degree_power(psi), weight * degree_power(chi)
