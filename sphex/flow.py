@@ -47,7 +47,7 @@ import numpy as np
 
 from sphex.grids import Grid
 from sphex.harmonics import Harmonics, convert_factor
-from sphex.transform import analyze_vector, synthesize_vector
+from sphex.vector_transform import analyze_vector, synthesize_vector
 
 __all__ = ["Flow", "analyze_flow", "synthesize_flow", "regrid_flow", "smooth_flow"]
 

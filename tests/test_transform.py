@@ -398,15 +398,15 @@ def test_latitude_bands_give_the_same_fields(rng, monkeypatch, grid):
     # high degrees are transformed in latitude bands; forcing bands of 64 pairs must change
     # nothing (internal consistency: the one-band run is checked against outside references
     # above), also with an equator ring and an unpaired pole ring in a band
-    from sphex import transform
+    from sphex import rings
 
     lmax = min(grid.lmax_exact, 151)
     h = Harmonics(random_coef(lmax, rng)[None].repeat(2, axis=0))
     f = synthesize(h, grid)
     east, north = synthesize_gradient(h, grid)
     coef = analyze(f, grid).coef
-    monkeypatch.setattr(transform, "BAND_BYTES", 1)
-    assert len(transform._bands(transform._pairs(grid).n, lmax + 1)) > 1
+    monkeypatch.setattr(rings, "BAND_BYTES", 1)
+    assert len(rings.pair_bands(rings.latitude_pairs(grid).n, lmax + 1)) > 1
     assert rel_err(synthesize(h, grid), f) < 1e-14
     be, bn = synthesize_gradient(h, grid)
     assert rel_err(be, east) < 1e-14 and rel_err(bn, north) < 1e-14
@@ -418,17 +418,17 @@ def test_latitude_bands_give_the_same_fields(rng, monkeypatch, grid):
 def test_order_sequence_covers_each_order_once_and_balances_threads(nthreads):
     # the kernels take orders in this sequence; numba hands each thread an equal contiguous
     # chunk of the parallel loop, so each chunk must carry about the same work
-    from sphex import transform
+    from sphex import rings
 
     lmax = 1023
     grid = Grid.gauss(lmax)
-    live = transform._live(grid, lmax, 0, lmax, 0)
+    live = rings.live_pairs(grid, lmax, 0, lmax, 0)
     work = (lmax + 1 - np.arange(lmax + 1)) * live
-    seq = transform._order_sequence(0, lmax, nthreads)
+    seq = rings.order_sequence(0, lmax, nthreads)
     assert sorted(seq.tolist()) == list(range(lmax + 1))
     loads = [work[chunk].sum() for chunk in np.array_split(seq, nthreads)]
     assert max(loads) / np.mean(loads) < 1.01
-    assert sorted(transform._order_sequence(1, 20, nthreads).tolist()) == list(range(1, 21))
+    assert sorted(rings.order_sequence(1, 20, nthreads).tolist()) == list(range(1, 21))
 
 
 # --------------------------------------------------------------------------------------

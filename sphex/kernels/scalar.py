@@ -37,7 +37,7 @@ def analysis_kernel(lmax, mlo, seq, x, s, cm, live, F, rn, rs, wn, ws, scale,
     the forward real FFT of the rows; pair j has its northern ring in row
     rn[j] and its southern one in row rs[j] (-1 for a missing ring) with
     quadrature weights wn[j], ws[j].  seq: the orders, mlo and up, in the
-    sequence the threads take them (see transform._order_sequence).  Column m
+    sequence the threads take them (see sphex.rings.order_sequence).  Column m
     of F times scale[m - mlo] gives order m.  live: number of latitudes (a prefix) on which order m is
     not negligible.  coef: complex (K, L+1, L+1) indexed [l, m], added to;
     order 0 gets real parts only.
@@ -281,7 +281,7 @@ def synthesis_kernel(lmax, mlo, seq, x, s, cm, live, coef, fl, fm, full, use_ful
 
     coef: complex (K, L+1, L+1) indexed [l, m]; times f(l, m) (see
     :func:`convention_factor`) it is orthonormal and phase-free.  seq: the orders, mlo and up,
-    in the sequence the threads take them (see transform._order_sequence).
+    in the sequence the threads take them (see sphex.rings.order_sequence).
     X: complex (K, rows, nfreq),
     ready for an inverse real FFT along its last axis: column m + dm of row
     rn[j] (northern ring of pair j) and rs[j] (southern ring; -1 for none)

@@ -1,0 +1,280 @@
+"""Latitude rings of a grid in mirrored pairs: the bookkeeping that the scalar
+and vector transforms share.
+
+A grid's rings are grouped in pairs mirrored about the equator (an equator
+ring or a pole without its mirror stands alone), ordered from the equator to
+the poles; per order only a prefix of the pairs carries values that are not
+negligible (:func:`live_pairs`).  Pairs are cut into bands that bound the
+memory of the longitude FFT (:func:`pair_bands`), and orders are dealt to the
+threads in a balanced sequence (:func:`order_sequence`).  Also here: the
+validation shared by every transform, the per-(l, m) convention factors the
+kernels apply, and the inverse longitude FFT with folding for coarse targets.
+"""
+from __future__ import annotations
+
+import functools
+
+import numpy as np
+import scipy.fft
+
+from sphex.grids import Grid
+from sphex.harmonics import Harmonics, convert_factor
+from sphex.kernels import numba
+from sphex.kernels.recursion import live_counts
+from sphex.legendre import norm_column, sectoral_table
+
+__all__ = ["fft_workers", "check_grid", "check_values", "check_lmax", "LatitudePairs",
+           "latitude_pairs", "longitude_phase", "live_pairs", "order_sequence", "BAND_BYTES",
+           "pair_bands", "PairBand", "ConventionFactor", "convention_factor",
+           "batched_coefficients", "fourier_synthesis"]
+
+
+def fft_workers() -> int:
+    """FFT threads: numba's thread count for the calling thread (all cores in the
+    main thread, fewer inside dask tasks under the rule of :mod:`sphex._scale`)."""
+    return numba.get_num_threads()
+
+
+# ---------------------------------------------------------------------------
+# validation
+# ---------------------------------------------------------------------------
+def check_grid(grid) -> Grid:
+    if not isinstance(grid, Grid):
+        raise ValueError(f"grid must be a sphex.Grid (Grid.gauss, Grid.equiangular or Grid.from_coords), "
+                         f"got {type(grid).__name__}")
+    return grid
+
+
+def check_values(values, grid: Grid) -> np.ndarray:
+    arr = np.asarray(values)
+    if arr.dtype.kind not in "fiu":
+        raise ValueError(f"values must be real numbers (float or integer), got dtype {arr.dtype}; "
+                         "for complex data analyse the real and imaginary parts separately")
+    if arr.ndim < 2 or arr.shape[-2:] != grid.shape:
+        raise ValueError(f"values have shape {arr.shape} but the grid is (nlat, nlon) = {grid.shape}: "
+                         "the last two axes must be latitude then longitude "
+                         "(transpose with np.moveaxis if they are swapped)")
+    if arr.dtype.kind == "f" and not np.all(np.isfinite(arr)):
+        bad = int(np.size(arr) - np.count_nonzero(np.isfinite(arr)))
+        raise ValueError(f"values contain {bad} NaN or inf entries: fill or mask them first "
+                         "(a spherical-harmonic analysis needs every grid point)")
+    return arr
+
+
+def check_lmax(lmax, grid: Grid, allow_aliasing: bool) -> int:
+    if lmax is None:
+        return grid.lmax_exact
+    if isinstance(lmax, bool) or int(lmax) != lmax or lmax < 0:
+        raise ValueError(f"lmax must be a non-negative integer, got {lmax!r}")
+    lmax = int(lmax)
+    if lmax > grid.lmax_exact and not allow_aliasing:
+        raise ValueError(f"lmax={lmax} is above this grid's exact degree limit {grid.lmax_exact} "
+                         f"({grid!r}): use lmax <= {grid.lmax_exact}, a finer grid, or "
+                         "allow_aliasing=True to accept an aliased result")
+    return lmax
+
+
+# ---------------------------------------------------------------------------
+# latitude pairs
+# ---------------------------------------------------------------------------
+class LatitudePairs:
+    """Latitude rings grouped in mirrored pairs, ordered from the equator to the poles."""
+
+    def __init__(self, grid: Grid):
+        colat = grid.colat
+        order = np.argsort(colat, kind="stable")
+        n = colat.size
+        used = np.zeros(n, dtype=bool)
+        north, south = [], []
+        # match each northern ring with its mirror
+        sorted_c = colat[order]
+        for idx in order:
+            if used[idx] or colat[idx] > np.pi / 2 + 1e-14:
+                continue
+            used[idx] = True
+            target = np.pi - colat[idx]
+            if abs(colat[idx] - np.pi / 2) <= 1e-14:
+                north.append(idx)
+                south.append(idx)
+                continue
+            k = int(np.searchsorted(sorted_c, target - 1e-12))
+            mate = -1
+            if k < n and abs(sorted_c[k] - target) <= 1e-12 and not used[order[k]]:
+                mate = int(order[k])
+                used[mate] = True
+            north.append(idx)
+            south.append(mate)
+        for idx in order:  # southern rings without a northern mirror
+            if not used[idx]:
+                used[idx] = True
+                north.append(-1)
+                south.append(int(idx))
+        self.north = np.array(north, dtype=np.int64)
+        self.south = np.array(south, dtype=np.int64)
+        ref = np.where(self.north >= 0, self.north, self.south)
+        theta = colat[ref]
+        theta = np.where(self.north >= 0, theta, np.pi - theta)  # northern colatitude of the pair
+        x = np.cos(theta)
+        s = np.sin(theta)
+        x[np.abs(theta - np.pi / 2) <= 1e-14] = 0.0
+        s[theta == 0] = 0.0
+        # equator first, poles last
+        perm = np.argsort(-theta, kind="stable")
+        self.north, self.south = self.north[perm], self.south[perm]
+        self.x, self.s = x[perm], s[perm]
+        w = grid.weights
+        same = self.north == self.south
+        self.wn = np.where(self.north >= 0, w[np.maximum(self.north, 0)], 0.0)
+        self.ws = np.where(self.south >= 0, w[np.maximum(self.south, 0)], 0.0)
+        self.wn = np.where(same, self.wn / 2, self.wn)
+        self.ws = np.where(same, self.ws / 2, self.ws)
+        self.n = self.x.size
+
+
+def longitude_phase(m_count: int, grid: Grid) -> np.ndarray:
+    """exp(i m lon0) for m = 0..m_count-1."""
+    return np.exp(1j * np.arange(m_count) * np.radians(grid.lon0))
+
+
+@functools.lru_cache(maxsize=32)
+def latitude_pairs(grid: Grid) -> LatitudePairs:
+    return LatitudePairs(grid)
+
+
+@functools.lru_cache(maxsize=64)
+def live_pairs(grid: Grid, lmax: int, mlo: int, mhi: int, shift: int) -> np.ndarray:
+    """Per order, how many latitude pairs (equator first) carry non-negligible values."""
+    pairs = latitude_pairs(grid)
+    out = np.empty(mhi - mlo + 1, dtype=np.int64)
+    live_counts(lmax, mlo, mhi, pairs.x, pairs.s, sectoral_table(lmax), shift, out)
+    out.setflags(write=False)
+    return out
+
+
+@functools.lru_cache(maxsize=256)
+def order_sequence(mlo: int, mhi: int, nthreads: int) -> np.ndarray:
+    """Orders mlo..mhi in the sequence the transform kernels take them.
+
+    numba splits a parallel loop into equal contiguous chunks, one per thread.
+    Orders are paired cheap with costly (mlo with mhi, mlo+1 with mhi-1, ...)
+    and the pairs are dealt to the chunks in turn, so every thread gets nearly
+    the same work (0.02 % apart at L=1023 on two threads; handing out the
+    pairs in sequence left 5 %)."""
+    lo, hi = mlo, mhi
+    pairs = []
+    while lo <= hi:
+        pairs.append((lo, hi) if lo < hi else (lo,))
+        lo += 1
+        hi -= 1
+    t = max(int(nthreads), 1)
+    g = 4  # pairs dealt four at a time: neighbouring orders share cache lines of the outputs
+    groups = [pairs[i:i + g] for i in range(0, len(pairs), g)]
+    seq = [m for k in range(t) for grp in groups[k::t] for p in grp for m in p]
+    out = np.array(seq, dtype=np.int64)
+    out.setflags(write=False)
+    return out
+
+
+BAND_BYTES = 1 << 25  # pairs per band: BAND_BYTES / (8 M); see pair_bands
+
+
+def pair_bands(npairs: int, M: int) -> list[tuple[int, int]]:
+    """Latitude-pair bands (start, stop) small enough to bound memory.
+
+    A band of BAND_BYTES / (8 M) pairs holds 4 BAND_BYTES (128 MB) of complex
+    FFT data per field (two rings per pair, about M frequencies each); every
+    grid with M * npairs up to about 4 million (lmax near 2900 on a Gauss
+    grid) is one band."""
+    size = int(np.clip(BAND_BYTES // (8 * max(M, 1)), 64, max(npairs, 1)))
+    if size < npairs:
+        size -= size % 8
+    return [(b, min(b + size, npairs)) for b in range(0, npairs, size)]
+
+
+class PairBand:
+    """Rows of one band of latitude pairs, with pair indices local to the band."""
+
+    def __init__(self, pairs: LatitudePairs, b0: int, b1: int):
+        north = pairs.north[b0:b1]
+        south = pairs.south[b0:b1]
+        rows = np.unique(np.concatenate([north[north >= 0], south[south >= 0]]))
+        local = np.full(int(rows.max(initial=0)) + 1, -1, dtype=np.int64)
+        local[rows] = np.arange(rows.size)
+        self.rows = rows
+        self.north = np.where(north >= 0, local[np.maximum(north, 0)], -1)
+        self.south = np.where(south >= 0, local[np.maximum(south, 0)], -1)
+        self.x = pairs.x[b0:b1]
+        self.s = pairs.s[b0:b1]
+        self.wn = pairs.wn[b0:b1]
+        self.ws = pairs.ws[b0:b1]
+        self.n = b1 - b0
+
+
+def fourier_synthesis(X: np.ndarray, N: int, direct: bool) -> np.ndarray:
+    """X: (K, rows, W) scaled Fourier coefficients -> real values (K, rows, N).
+
+    ``direct``: X holds orders 0..N//2 and goes to the inverse real FFT as it
+    is (overwritten).  Otherwise X holds orders 0..W-1 beyond the Nyquist
+    frequency of a coarse target, folded onto the N frequencies first (an
+    exact evaluation of the series at the grid's longitudes)."""
+    if direct:
+        return scipy.fft.irfft(X, n=N, axis=-1, workers=fft_workers(), overwrite_x=True)
+    K, rows, W = X.shape
+    Y = np.zeros((K, rows, N), dtype=np.complex128)
+    m = np.arange(W)
+    np.add.at(Y, (slice(None), slice(None), m % N), X)
+    np.add.at(Y, (slice(None), slice(None), (-m[1:]) % N), np.conj(X[..., 1:]))
+    return scipy.fft.ifft(Y, axis=-1, workers=fft_workers()).real
+
+
+class ConventionFactor:
+    """Per-(l, m) factors from one convention to another, kept small.
+
+    For the normalised conventions the factor separates, ``fl[l] * fm[m]``
+    (a per-degree scale and the phase sign); only conversions involving
+    ``"unnormalized"`` (which is limited to low degree) hold a full table."""
+
+    def __init__(self, lmax: int, norm_from: str, cs_from: bool, norm_to: str, cs_to: bool):
+        self.lmax = lmax
+        self.fm = np.ones(lmax + 1)
+        if bool(cs_from) != bool(cs_to):
+            self.fm[1::2] = -1.0
+        if "unnormalized" in (norm_from, norm_to):
+            g = convert_factor(lmax, norm_from, cs_from, norm_to, cs_to)
+            tri = np.tril(np.ones((lmax + 1, lmax + 1), dtype=bool))
+            if not np.all(np.isfinite(g[tri])) or np.any(g[tri] == 0):
+                raise ValueError(f"unnormalised coefficients to lmax={lmax} leave double range: use "
+                                 "norm='orthonormal', 'full' or 'schmidt' (or a lower lmax)")
+            self.full, self.use_full = g, True
+            self.fl = np.ones(lmax + 1)
+        else:
+            self.full, self.use_full = np.ones((1, 1)), False
+            # normalised conventions differ by a function of the degree only
+            self.fl = norm_column(lmax, 0, norm_from) / norm_column(lmax, 0, norm_to)
+
+    def args(self):
+        return self.fl, self.fm, self.full, self.use_full
+
+    def col(self, l: np.ndarray, m: int) -> np.ndarray:
+        return self.full[l, m] if self.use_full else self.fl[l] * self.fm[m]
+
+    def array(self) -> np.ndarray:
+        return self.full.copy() if self.use_full else np.outer(self.fl, self.fm)
+
+
+@functools.lru_cache(maxsize=16)
+def convention_factor(lmax: int, norm_from: str, cs_from: bool, norm_to: str,
+                      cs_to: bool) -> ConventionFactor:
+    return ConventionFactor(lmax, norm_from, cs_from, norm_to, cs_to)
+
+
+def batched_coefficients(h: Harmonics) -> tuple[np.ndarray, np.ndarray]:
+    """(coef as (K, L+1, L+1), factor to orthonormal without phase) after checks."""
+    if not isinstance(h, Harmonics):
+        raise ValueError(f"expected a sphex.Harmonics, got {type(h).__name__}")
+    c = h.coef.reshape((-1, h.lmax + 1, h.lmax + 1))
+    if not np.all(np.isfinite(c)):
+        raise ValueError("coefficients contain NaN or inf: check the input")
+    return c, convention_factor(h.lmax, h.norm, h.condon_shortley, "orthonormal", False)
+
+
