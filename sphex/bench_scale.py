@@ -8,7 +8,7 @@ Two measurements, both ratios taken in one run on this machine:
    :func:`throughput_child`).  Each dask thread's numba thread count is stated per row:
    with one numba thread per task the ratio 2 threads / 1 thread shows whether
    the kernels really run in parallel outside the GIL (target >= 1.8 on 2
-   cores); the other rows show the thread rule of :mod:`sphex._scale` against
+   cores); the other rows show the thread rule of :mod:`sphex.xr.scaleout` against
    oversubscription and against one plain call from the main thread.
 2. **Peak memory** (``ru_maxrss`` of the child, from ``os.wait4``) of the
    command line analysing a generated netCDF file of about 1.3 GB (float64
@@ -69,7 +69,7 @@ def throughput(lmax: int = LMAX, fields: int = FIELDS, block: int = BLOCK,
     from sphex import Grid, Harmonics, synthesize
     from concurrent.futures import ThreadPoolExecutor
 
-    from sphex._scale import _init_pool_thread, cpu_count, in_tasks
+    from sphex.xr.scaleout import cpu_count, in_tasks, initialize_pool_thread
 
     load0 = _load()
     grid = Grid.gauss(lmax)
@@ -99,7 +99,7 @@ def throughput(lmax: int = LMAX, fields: int = FIELDS, block: int = BLOCK,
     def on_pool(n: int, k: int | None, arr) -> Any:
         # one long-lived pool per setting, as in a long run: thread start-up is not timed
         inner = max(1, min(cores // n, top)) if k is None else k
-        pool = ThreadPoolExecutor(n, initializer=_init_pool_thread, initargs=(inner,))
+        pool = ThreadPoolExecutor(n, initializer=initialize_pool_thread, initargs=(inner,))
         pools.append(pool)
         conf = {"scheduler": "threads", "pool": pool, "num_workers": n,
                 "sphex.task-threads": inner}
@@ -157,7 +157,7 @@ def throughput_child(lmax: int = LMAX, repeat: int = 5) -> dict:
     transform's matrix products, and adding dask threads only oversubscribes.
     The measurement therefore runs with ``OPENBLAS_NUM_THREADS=1`` (and the
     same for MKL), the setting dask.distributed gives its workers; inside
-    :func:`sphex._scale.thread_pool` the same limit is applied by
+    :func:`sphex.xr.scaleout.thread_pool` the same limit is applied by
     ``threadpoolctl`` when that package is installed.
     """
     env = dict(os.environ, OPENBLAS_NUM_THREADS="1", MKL_NUM_THREADS="1")
@@ -236,13 +236,6 @@ def _peak_rss(cmd: list[str], env: dict | None = None) -> dict:
             "stdout": r.stdout.decode(errors="replace")[-400:], "stderr": head[-400:]}
 
 
-def _cli_streams() -> bool:
-    """Whether ``sphex analyze`` has the --chunks option yet."""
-    r = subprocess.run([sys.executable, "-m", "sphex.cli", "analyze", "--help"],
-                       capture_output=True, text=True)
-    return "--chunks" in r.stdout
-
-
 def memory(nbytes: float = FILE_BYTES, chunk: int | None = None, compare: bool = False,
            workdir: str | None = None) -> dict:
     """Peak RSS of streamed analysis of a generated file, as a fraction of its size."""
@@ -252,14 +245,9 @@ def memory(nbytes: float = FILE_BYTES, chunk: int | None = None, compare: bool =
         made = make_series(src, nbytes)
         out = tmp / "coef.nc"
         chunks = f"time={chunk}" if chunk else None
-        if _cli_streams():
-            how = "sphex analyze --chunks (command line)"
-            cmd = [sys.executable, "-m", "sphex.cli", "analyze", str(src), "-v", "field",
-                   "-o", str(out), "--overwrite"] + (["--chunks", chunks] if chunks else [])
-        else:
-            how = "python -m sphex._scale (the command line's streaming function)"
-            cmd = [sys.executable, "-m", "sphex._scale", str(src), "field", str(out),
-                   chunks or "-"]
+        how = "sphex analyze --chunks (command line)"
+        cmd = [sys.executable, "-m", "sphex.cli", "analyze", str(src), "-v", "field",
+               "-o", str(out), "--overwrite"] + (["--chunks", chunks] if chunks else [])
         run = _peak_rss(cmd)
         if run["exit"] != 0:
             raise RuntimeError(f"streamed run failed: {run['stderr']}")
@@ -270,7 +258,7 @@ def memory(nbytes: float = FILE_BYTES, chunk: int | None = None, compare: bool =
         res["peak_over_file"] = run["peak_rss_bytes"] / made["file_bytes"]
         res["target"] = 0.6
         res["idle"] = _peak_rss([sys.executable, "-c",
-                                 "import sphex.xr, sphex._scale, dask.array, netCDF4, distributed"])
+                                 "import sphex.xr, dask.array, netCDF4, distributed"])
         if compare:
             code = ("import sys, xarray as xr, sphex.xr as sxr\n"
                     "da = xr.open_dataset(sys.argv[1])['field'].load()\n"

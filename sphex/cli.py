@@ -269,7 +269,7 @@ def _cap_radius(text: str) -> float:
 
 
 def _chunks(text: str) -> dict[str, int]:
-    from sphex._scale import parse_chunks
+    from sphex.xr.streaming import parse_chunks
 
     try:
         return parse_chunks(text)
@@ -294,7 +294,7 @@ def _degree_range(text: str) -> tuple[int, int]:
 def _open_input(path: str):
     import sphex.xr as sxr
 
-    return sxr._open(path)
+    return sxr.files.open_netcdf(path)
 
 
 def _gridded_vars(ds) -> list[str]:
@@ -382,7 +382,7 @@ def _write_field(da, path: str, overwrite: bool, global_attrs: dict, line: str) 
 
     ds = da.to_dataset(name=da.name if da.name is not None else "field")
     attrs = {k: v for k, v in global_attrs.items() if k != "history"}
-    attrs["history"] = sxr._history(global_attrs, line)
+    attrs["history"] = sxr.fields.append_history(global_attrs, line)
     ds.attrs = attrs
     sxr.write_dataset(ds, path, overwrite)
 
@@ -401,7 +401,7 @@ def _say(*lines: str) -> None:
 # subcommands
 # ---------------------------------------------------------------------------
 def _cmd_analyze(a: argparse.Namespace) -> int:
-    from sphex._io import check_output_path
+    from sphex.xr.output import check_output_path
 
     check_output_path(a.output, a.overwrite)
     import sphex.xr as sxr
@@ -409,7 +409,7 @@ def _cmd_analyze(a: argparse.Namespace) -> int:
     is_text = Path(a.output).suffix.lower() in (".txt", ".tab", ".dat")
     if not is_text:
         # netCDF output: stream the input chunk by chunk along its non-spatial axes
-        from sphex._scale import stream_analyze
+        from sphex.xr.streaming import stream_analyze
 
         r = stream_analyze(a.input, a.var, a.output, a.lmax, a.norm, a.chunks, a.scheduler,
                            a.overwrite, condon_shortley=not a.no_phase, radius=a.radius)
@@ -420,7 +420,7 @@ def _cmd_analyze(a: argparse.Namespace) -> int:
         return 0
     da, _ = _load_var(a.input, a.var)
     info = _grid_info(da, a.input)
-    lmax = sxr._check_lmax(a.lmax, info.grid, False, f"variable {da.name!r}")
+    lmax = sxr.coords.check_lmax(a.lmax, info.grid, False, f"variable {da.name!r}")
     n = _n_fields(da, info)
     if is_text and n != 1:
         raise UserError(f"a text table holds one field but {da.name!r} has {n}; write .nc instead")
@@ -440,14 +440,14 @@ def _cmd_analyze(a: argparse.Namespace) -> int:
 
 
 def _cmd_synthesize(a: argparse.Namespace) -> int:
-    from sphex._io import check_output_path
+    from sphex.xr.output import check_output_path
 
     check_output_path(a.output, a.overwrite)
     import sphex.xr as sxr
 
     ds = sxr.open_coefficients(a.input)
     target = _target_grid(a.grid)
-    info, _, _ = sxr._target(target)
+    info, _, _ = sxr.coords.synthesis_target(target)
     l_file = ds.sizes["degree"] - 1
     if a.lmax is not None and a.lmax > l_file:
         raise UserError(f"--lmax {a.lmax} is above the coefficients' highest degree {l_file}")
@@ -489,7 +489,7 @@ def _label(v: Any) -> str:
 
 
 def _cmd_spectrum(a: argparse.Namespace) -> int:
-    from sphex._io import atomic_output, check_output_path
+    from sphex.xr.output import atomic_output, check_output_path
 
     for p in (a.plot, a.csv):
         if p:
@@ -505,7 +505,7 @@ def _cmd_spectrum(a: argparse.Namespace) -> int:
     else:
         da, _ = _load_var(a.input, a.var)
         info = _grid_info(da, a.input)
-        lmax = sxr._check_lmax(a.lmax, info.grid, False, f"variable {da.name!r}")
+        lmax = sxr.coords.check_lmax(a.lmax, info.grid, False, f"variable {da.name!r}")
         with _progress(_n_fields(da, info), "analyze") as bar:
             ds = sxr.analyze(da, lmax, progress=bar if bar.enabled else None)
         source = f"{da.name!r} on a {info.describe()}"
@@ -579,7 +579,7 @@ def _fit_slope(power, l1: int, l2: int) -> tuple[float, float]:
 def _looks_like_coefficients(path: str) -> bool:
     import sphex.xr as sxr
 
-    if sxr._is_table(path):
+    if sxr.tables.is_table_file(path):
         return True
     ds = _open_input(path)
     try:
@@ -589,14 +589,14 @@ def _looks_like_coefficients(path: str) -> bool:
 
 
 def _cmd_smooth(a: argparse.Namespace) -> int:
-    from sphex._io import check_output_path
+    from sphex.xr.output import check_output_path
 
     check_output_path(a.output, a.overwrite)
     import sphex.xr as sxr
 
     da, gattrs = _load_var(a.input, a.var)
     info = _grid_info(da, a.input)
-    lmax = sxr._check_lmax(a.lmax, info.grid, False, f"variable {da.name!r}")
+    lmax = sxr.coords.check_lmax(a.lmax, info.grid, False, f"variable {da.name!r}")
     radius = a.planet_radius
     note = ""
     if a.gaussian is not None and radius is None:
@@ -628,7 +628,7 @@ def _file_radius_km(attrs: dict) -> float | None:
 
 
 def _cmd_regrid(a: argparse.Namespace) -> int:
-    from sphex._io import check_output_path
+    from sphex.xr.output import check_output_path
 
     check_output_path(a.output, a.overwrite)
     import sphex.xr as sxr
@@ -636,10 +636,10 @@ def _cmd_regrid(a: argparse.Namespace) -> int:
     da, gattrs = _load_var(a.input, a.var)
     info = _grid_info(da, a.input)
     target = _target_grid(a.grid)
-    tinfo, _, _ = sxr._target(target)
+    tinfo, _, _ = sxr.coords.synthesis_target(target)
     lmax = a.lmax
     if lmax is not None:
-        sxr._check_lmax(lmax, info.grid, False, f"variable {da.name!r}")
+        sxr.coords.check_lmax(lmax, info.grid, False, f"variable {da.name!r}")
     n = _n_fields(da, info)
     with _progress(n, "regrid") as bar:
         out = sxr.regrid(da, target, lmax=lmax)
@@ -655,7 +655,7 @@ def _cmd_regrid(a: argparse.Namespace) -> int:
 def _cmd_inspect(a: argparse.Namespace) -> int:
     import sphex.xr as sxr
 
-    if sxr._is_table(a.input):
+    if sxr.tables.is_table_file(a.input):
         ds = sxr.open_coefficients(a.input)
         _say(f"{a.input}: text coefficient table", *_describe_coefficients(ds))
         return 0

@@ -165,7 +165,7 @@ def make_temperature():
 
 def write_demo_data(directory: str | os.PathLike, overwrite: bool = False) -> list[Path]:
     """Write the two demo files into ``directory``; returns their paths."""
-    from sphex._io import atomic_output
+    from sphex.xr.output import atomic_output
 
     d = Path(directory)
     d.mkdir(parents=True, exist_ok=True)

@@ -27,7 +27,7 @@ from matplotlib import colors as mcolors
 from matplotlib.figure import Figure
 from matplotlib.ticker import FuncFormatter, MultipleLocator
 
-from sphex._io import atomic_output
+from sphex.xr.output import atomic_output
 
 __all__ = ["PALETTE", "relief", "heat", "power_figure", "map_figure", "triangle_figure", "save"]
 

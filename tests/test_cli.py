@@ -222,7 +222,7 @@ def test_demo_writes_its_products(tmp_path):
 
 
 def test_interrupted_write_leaves_nothing(tmp_path):
-    from sphex._io import atomic_output
+    from sphex.xr.output import atomic_output
 
     target = tmp_path / "x.nc"
     with pytest.raises(KeyboardInterrupt):
