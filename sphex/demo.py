@@ -17,10 +17,13 @@ random numbers and simple formulas.  They say so in their attributes.
 """
 from __future__ import annotations
 
+import contextlib
 import os
 import sys
 import time
+from collections.abc import Callable, Iterator
 from pathlib import Path
+from typing import Any
 
 import numpy as np
 
@@ -187,7 +190,14 @@ def _bundled_data() -> Path | None:
     return None
 
 
-def run(out_dir: str | os.PathLike = "sphex-demo-output", overwrite: bool = False) -> int:
+@contextlib.contextmanager
+def _quiet_progress(total: int, label: str) -> Iterator[Callable[[int, int], None]]:
+    """Stands in for a progress bar when the caller shows none."""
+    yield lambda done, total: None
+
+
+def run(out_dir: str | os.PathLike = "sphex-demo-output", overwrite: bool = False, *,
+        progress: Callable[[int, str], Any] | None = None) -> int:
     """Run the demo; print what was written where.  Returns 0.
 
     Parameters
@@ -197,6 +207,10 @@ def run(out_dir: str | os.PathLike = "sphex-demo-output", overwrite: bool = Fals
     overwrite : bool
         Replace results already there; otherwise existing results are an error
         and nothing is written.
+    progress : callable, optional
+        ``progress(total, label)`` makes a progress display for the batch
+        analysis: a context manager that yields a ``(done, total)`` callback
+        (the command line passes its terminal bar).  Default: none shown.
 
     Raises
     ------
@@ -225,7 +239,7 @@ def run(out_dir: str | os.PathLike = "sphex-demo-output", overwrite: bool = Fals
     out.mkdir(parents=True, exist_ok=True)
     before = set(out.iterdir())
     try:
-        return _run(out, names, overwrite)
+        return _run(out, names, overwrite, progress or _quiet_progress)
     except BaseException:
         # a failed or interrupted demo takes back the files it added
         for p in set(out.iterdir()) - before:
@@ -240,14 +254,14 @@ def run(out_dir: str | os.PathLike = "sphex-demo-output", overwrite: bool = Fals
         raise
 
 
-def _run(out: Path, names: dict[str, str], overwrite: bool) -> int:
+def _run(out: Path, names: dict[str, str], overwrite: bool,
+         progress: Callable[[int, str], Any]) -> int:
     t0 = time.monotonic()
 
     import xarray as xr
 
     import sphex.xr as sxr
     from sphex import plot
-    from sphex._io import Progress
 
     data = _bundled_data()
     made = ""
@@ -295,7 +309,7 @@ def _run(out: Path, names: dict[str, str], overwrite: bool) -> int:
     with xr.open_dataset(data / TEMP_FILE) as f:
         temp = f["surface_temperature"].load()
     tinfo = sxr.find_grid(temp)
-    with Progress(temp.sizes["time"], "  temperature") as bar:
+    with progress(temp.sizes["time"], "  temperature") as bar:
         tcoef = sxr.analyze(temp, progress=bar)
     sxr.write_harmonics(tcoef, out / names["temp_coef"], overwrite)
     tp = sxr.degree_power(tcoef)
