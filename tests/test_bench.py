@@ -11,16 +11,16 @@ import sphex.xr as sxr
 def test_benchmark_reads_the_child_peak_memory_not_the_parent(tmp_path):
     import sys
 
-    from sphex import bench_scale
+    from sphex.bench import scaleout
 
     ballast = np.ones(2**26)  # 512 MiB in this process: must not show in the child's figure
-    small = bench_scale._peak_rss([sys.executable, "-S", "-c", "pass"])
-    big = bench_scale._peak_rss([sys.executable, "-c",
-                                 "import numpy as np; x = np.ones(2**25); x += 1"])  # 256 MiB
+    small = scaleout._peak_rss([sys.executable, "-S", "-c", "pass"])
+    big = scaleout._peak_rss([sys.executable, "-c",
+                              "import numpy as np; x = np.ones(2**25); x += 1"])  # 256 MiB
     assert ballast[-1] == 1.0
     assert small["exit"] == 0 and small["peak_rss_bytes"] < 64 * 2**20
     assert 256 * 2**20 < big["peak_rss_bytes"] < 512 * 2**20
-    info = bench_scale.make_series(tmp_path / "s.nc", nbytes=3e6, lmax=31)
+    info = scaleout.make_series(tmp_path / "s.nc", nbytes=3e6, lmax=31)
     assert info["fields"] == int(np.ceil(3e6 / (32 * 64 * 8)))
     assert info["file_bytes"] >= info["data_bytes"]
     with xr.open_dataset(tmp_path / "s.nc") as ds:
