@@ -92,7 +92,7 @@ def throughput(lmax: int = LMAX, fields: int = FIELDS, block: int = BLOCK,
     top = numba.config.NUMBA_NUM_THREADS
     pools: list[Any] = []
     try:
-        settings = _settings(plain, ruled, values, grid, cores, top, pools)
+        settings = _thread_settings(plain, ruled, values, grid, cores, top, pools)
         best = _best_interleaved([fn for _, _, _, fn in settings], repeat)
     finally:
         for pool in pools:
@@ -107,8 +107,9 @@ def throughput(lmax: int = LMAX, fields: int = FIELDS, block: int = BLOCK,
             "scaling_2_over_1": two / one, "scaling_target": 1.8}
 
 
-def _settings(plain: Any, ruled: Any, values: np.ndarray, grid: Any, cores: int, top: int,
-              pools: list[Any]) -> list[tuple[str, int | None, int, Callable[[], None]]]:
+def _thread_settings(plain: Any, ruled: Any, values: np.ndarray, grid: Any, cores: int,
+                     top: int, pools: list[Any]
+                     ) -> list[tuple[str, int | None, int, Callable[[], None]]]:
     """(label, dask threads, numba threads, run) of each setting compared; the thread pools
     made for them are added to ``pools`` (the caller shuts them down)."""
     from concurrent.futures import ThreadPoolExecutor

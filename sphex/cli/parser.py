@@ -75,7 +75,7 @@ def _version() -> str:
         return "unknown"
 
 
-def _on_term(signum: int, frame: Any) -> None:
+def _interrupt_on_sigterm(signum: int, frame: Any) -> None:
     raise KeyboardInterrupt
 
 
@@ -103,7 +103,7 @@ def main(argv: Sequence[str] | None = None) -> int:
     debug = os.environ.get("SPHEX_DEBUG", "") not in ("", "0")
     previous = None
     try:
-        previous = signal.signal(signal.SIGTERM, _on_term)
+        previous = signal.signal(signal.SIGTERM, _interrupt_on_sigterm)
     except (ValueError, OSError):  # not in the main thread
         pass
     try:

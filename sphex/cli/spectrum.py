@@ -67,7 +67,7 @@ def run(a: argparse.Namespace) -> int:
         _write_csv(a.csv, a.overwrite, labels, table, units)
         lines.append(f"wrote {a.csv}")
     if a.plot:
-        _draw(a.plot, a.overwrite, labels, table, units, a.slope, Path(a.input).name)
+        _draw_power_plot(a.plot, a.overwrite, labels, table, units, a.slope, Path(a.input).name)
         lines.append(f"wrote {a.plot}")
     if not a.csv and not a.plot:
         w = max(22, *(len(x) for x in labels)) if labels else 22
@@ -121,11 +121,12 @@ def _power_table(power) -> tuple[list[str], Any]:
     labels = []
     for idx in stacked["__field__"].values:
         idx = idx if isinstance(idx, tuple) else (idx,)
-        labels.append(" ".join(f"{d}={_label(v)}" for d, v in zip(extra, idx)))
+        labels.append(" ".join(f"{d}={_coordinate_text(v)}" for d, v in zip(extra, idx)))
     return labels, np.asarray(stacked.values)
 
 
-def _label(v: Any) -> str:
+def _coordinate_text(v: Any) -> str:
+    """A coordinate value for a column label (times to the minute)."""
     import numpy as np
 
     if isinstance(v, np.datetime64) or hasattr(v, "to_datetime64"):
@@ -178,8 +179,8 @@ def _csv_cell(s: str) -> str:
     return '"' + s.replace('"', '""') + '"' if ("," in s or '"' in s) else s
 
 
-def _draw(path: str, overwrite: bool, labels: list[str], table: Any, units: str,
-          slope: tuple[int, int] | None, name: str) -> None:
+def _draw_power_plot(path: str, overwrite: bool, labels: list[str], table: Any, units: str,
+                     slope: tuple[int, int] | None, name: str) -> None:
     """A log-log plot: one curve per field, or the mean and range of many fields."""
     from sphex import plot
 
