@@ -38,7 +38,7 @@ __all__ = ["analyze", "synthesize", "synthesize_gradient", "regrid"]
 
 def _workers() -> int:
     """FFT threads: numba's thread count for the calling thread (all cores in the
-    main thread, fewer inside dask tasks under the rule of :mod:`sphex._scale`)."""
+    main thread, fewer inside dask tasks under the rule of :mod:`sphex.xr.scaleout`)."""
     return numba.get_num_threads()
 
 
