@@ -102,6 +102,40 @@ def test_stream_user_errors_leave_no_output(series, tmp_path):
     assert sorted(p.name for p in tmp_path.iterdir()) == ["c.nc", "holes.nc", "s.nc"]
 
 
+def test_a_task_still_writing_after_a_failure_leaves_no_partial_file(series, tmp_path, monkeypatch):
+    # Forced order: the blocks without gaps are analysed at once and their writes are
+    # held back, the block with a gap fails later; the failure must not leave the
+    # temporary file behind (netCDF's append mode would make it anew for a late write).
+    import time
+
+    import xarray.backends.netCDF4_ as netcdf_backend
+
+    from sphex.xr import fields
+
+    analyse, store = fields._analyze_block, netcdf_backend.NetCDF4ArrayWrapper.__setitem__
+
+    def late_failure(values, pos=None, **kw):
+        if not np.isfinite(values).all():
+            time.sleep(0.5)
+        return analyse(values, pos, **kw)
+
+    def slow_store(self, key, value):
+        if np.ndim(value) == 3:  # the coefficient blocks
+            time.sleep(1.0)
+        return store(self, key, value)
+
+    monkeypatch.setattr(fields, "_analyze_block", late_failure)
+    monkeypatch.setattr(netcdf_backend.NetCDF4ArrayWrapper, "__setitem__", slow_store)
+    holes = series.copy()
+    holes[11, 3, 3] = np.nan
+    _write_series(holes, tmp_path / "holes.nc")
+    with pytest.raises(ValueError, match="missing value"):
+        streaming.stream_analyze(tmp_path / "holes.nc", "surface_temp", tmp_path / "c.nc",
+                                 chunks="time=4", progress=False)
+    time.sleep(1.5)  # a write that was not waited for would have happened by now
+    assert sorted(p.name for p in tmp_path.iterdir()) == ["holes.nc"]
+
+
 def test_parse_chunks():
     assert streaming.parse_chunks("time=64") == {"time": 64}
     assert streaming.parse_chunks(" time=8, member=1 ") == {"time": 8, "member": 1}

@@ -16,7 +16,7 @@ from sphex.xr.coords import one_line
 from sphex.xr.output import atomic_output, check_output_path
 from sphex.xr.tables import is_table_file, read_table
 
-__all__ = ["netcdf_encoding", "write_dataset", "write_harmonics", "open_netcdf",
+__all__ = ["netcdf_encoding", "write_dataset", "write_netcdf", "write_harmonics", "open_netcdf",
            "open_coefficients", "open_harmonics"]
 
 
@@ -44,14 +44,21 @@ def write_dataset(ds: xr.Dataset, path: str | os.PathLike, overwrite: bool = Fal
     -------
     pathlib.Path
     """
+    with atomic_output(path, overwrite) as tmp:
+        write_netcdf(ds, tmp)
+    return Path(path)
+
+
+def write_netcdf(ds: xr.Dataset, path: str | os.PathLike) -> None:
+    """Write ``ds`` to ``path`` as :func:`write_dataset` does, but in place: the caller
+    makes it atomic (writes into the temporary file of :func:`~sphex.xr.output.atomic_output`).
+    """
     enc = netcdf_encoding(ds)
     for k in list(enc):
         old = ds.variables[k].encoding
         if "_FillValue" in old and old["_FillValue"] is not None:
             enc.pop(k)
-    with atomic_output(path, overwrite) as tmp:
-        ds.to_netcdf(tmp, format="NETCDF4", engine="netcdf4", encoding=enc)
-    return Path(path)
+    ds.to_netcdf(path, format="NETCDF4", engine="netcdf4", encoding=enc)
 
 
 def write_harmonics(h: Harmonics | xr.Dataset, path: str | os.PathLike, overwrite: bool = False,

@@ -21,7 +21,7 @@ from typing import Any, TextIO
 
 from sphex.xr.coords import check_lmax, find_grid
 from sphex.xr.fields import analyze
-from sphex.xr.files import netcdf_encoding, open_netcdf, write_dataset
+from sphex.xr.files import netcdf_encoding, open_netcdf, write_netcdf
 from sphex.xr.output import atomic_output, check_output_path
 from sphex.xr.scaleout import default_block, thread_pool
 
@@ -347,8 +347,12 @@ def stream_analyze(input: str | os.PathLike, var: str | None, output: str | os.P
             if scheduler:
                 _write_distributed(ds, output, overwrite, scheduler, reporter)
             else:
-                with thread_pool(), _local_progress_callback(reporter):
-                    write_dataset(ds, output, overwrite)
+                # the pool is left (waiting for every task it runs) before the temporary
+                # file is removed: a task still writing after a failure in another one
+                # would otherwise make the file anew
+                with atomic_output(output, overwrite) as tmp, thread_pool(), \
+                        _local_progress_callback(reporter):
+                    write_netcdf(ds, tmp)
                 reporter.fraction(1.0)
         finally:
             reporter.close()
