@@ -17,10 +17,13 @@ random numbers and simple formulas.  They say so in their attributes.
 """
 from __future__ import annotations
 
+import contextlib
 import os
 import sys
 import time
+from collections.abc import Callable, Iterator
 from pathlib import Path
+from typing import Any
 
 import numpy as np
 
@@ -165,7 +168,7 @@ def make_temperature():
 
 def write_demo_data(directory: str | os.PathLike, overwrite: bool = False) -> list[Path]:
     """Write the two demo files into ``directory``; returns their paths."""
-    from sphex._io import atomic_output
+    from sphex.xr.output import atomic_output
 
     d = Path(directory)
     d.mkdir(parents=True, exist_ok=True)
@@ -187,7 +190,14 @@ def _bundled_data() -> Path | None:
     return None
 
 
-def run(out_dir: str | os.PathLike = "sphex-demo-output", overwrite: bool = False) -> int:
+@contextlib.contextmanager
+def _quiet_progress(total: int, label: str) -> Iterator[Callable[[int, int], None]]:
+    """Stands in for a progress bar when the caller shows none."""
+    yield lambda done, total: None
+
+
+def run(out_dir: str | os.PathLike = "sphex-demo-output", overwrite: bool = False, *,
+        progress: Callable[[int, str], Any] | None = None) -> int:
     """Run the demo; print what was written where.  Returns 0.
 
     Parameters
@@ -197,6 +207,10 @@ def run(out_dir: str | os.PathLike = "sphex-demo-output", overwrite: bool = Fals
     overwrite : bool
         Replace results already there; otherwise existing results are an error
         and nothing is written.
+    progress : callable, optional
+        ``progress(total, label)`` makes a progress display for the batch
+        analysis: a context manager that yields a ``(done, total)`` callback
+        (the command line passes its terminal bar).  Default: none shown.
 
     Raises
     ------
@@ -225,7 +239,7 @@ def run(out_dir: str | os.PathLike = "sphex-demo-output", overwrite: bool = Fals
     out.mkdir(parents=True, exist_ok=True)
     before = set(out.iterdir())
     try:
-        return _run(out, names, overwrite)
+        return _make_products(out, names, overwrite, progress or _quiet_progress)
     except BaseException:
         # a failed or interrupted demo takes back the files it added
         for p in set(out.iterdir()) - before:
@@ -240,15 +254,10 @@ def run(out_dir: str | os.PathLike = "sphex-demo-output", overwrite: bool = Fals
         raise
 
 
-def _run(out: Path, names: dict[str, str], overwrite: bool) -> int:
+def _make_products(out: Path, names: dict[str, str], overwrite: bool,
+                   progress: Callable[[int, str], Any]) -> int:
+    """The demo's work: both data sets analysed, drawn and written; a summary printed."""
     t0 = time.monotonic()
-
-    import xarray as xr
-
-    import sphex.xr as sxr
-    from sphex import plot
-    from sphex._io import Progress
-
     data = _bundled_data()
     made = ""
     if data is None:
@@ -257,6 +266,26 @@ def _run(out: Path, names: dict[str, str], overwrite: bool) -> int:
         made = " (made now; the repository's data_demo/ was not found)"
     print(f"sphex demo: {MOON}, a fictional icy moon of radius {RADIUS_KM:g} km; all data are "
           f"synthetic\n  input data  {data}{made}")
+    rows, checks = _topography_products(data, out, names, overwrite)
+    rows += _temperature_products(data, out, names, overwrite, progress)
+    w = max(len(k) for k, _ in rows)
+    for k, v in rows:
+        print(f"  {k:<{w}}  {v}")
+    print(checks)
+    print(f"  done in {time.monotonic() - t0:.1f} s")
+    sys.stdout.flush()
+    return 0
+
+
+def _topography_products(data: Path, out: Path, names: dict[str, str],
+                         overwrite: bool) -> tuple[list[tuple[str, str]], str]:
+    """Coefficients, smoothed field, maps, spectrum and degree-order picture of the
+    topography; the summary rows and the line of checks."""
+    import xarray as xr
+
+    import sphex.xr as sxr
+    from sphex import plot
+    from sphex.spectra import spectral_slope
 
     with xr.open_dataset(data / TOPO_FILE) as f:
         topo = f["topography"].load()
@@ -271,8 +300,6 @@ def _run(out: Path, names: dict[str, str], overwrite: bool) -> int:
     p_raw = sxr.degree_power(coef)
     p_smooth = sxr.degree_power(sxr.analyze(smoothed))
     fit = (8, 80)
-    from sphex.spectra import spectral_slope
-
     slope = float(spectral_slope(np.asarray(p_raw), *fit)[0])
 
     plot.save(plot.map_figure(topo, center=0.0, cmap="relief",
@@ -292,10 +319,34 @@ def _run(out: Path, names: dict[str, str], overwrite: bool) -> int:
     plot.save(plot.triangle_figure(coef, title=f"{MOON}: topography coefficients"),
               out / names["triangle"], overwrite=overwrite)
 
+    err = float(abs(back - topo.astype(np.float64)).max())
+    rms = float(np.sqrt(p_raw.sum()))
+    rows = [
+        ("topography", f"{info.describe()}"),
+        ("coefficients", f"{out / names['coef']}  (degrees 0..{lmax}, orthonormal, radius {RADIUS_KM:g} km)"),
+        ("map", str(out / names["map"])),
+        ("smoothed map", f"{out / names['smooth_png']}  (data: {out / names['smooth_nc']})"),
+        ("spectrum plot", f"{out / names['spectrum']}  (power-law slope {slope:.2f} over degrees {fit[0]}-{fit[1]})"),
+        ("degree-order", str(out / names["triangle"])),
+    ]
+    checks = (f"  checks: rms height {rms:.1f} m; synthesis of the coefficients back onto the input "
+              f"grid differs from the input by at most {err:.2g} m: the part of the input above "
+              f"degree {lmax}, which its grid cannot carry exactly")
+    return rows, checks
+
+
+def _temperature_products(data: Path, out: Path, names: dict[str, str], overwrite: bool,
+                          progress: Callable[[int, str], Any]) -> list[tuple[str, str]]:
+    """Coefficients, spectra and first map of the temperature series; the summary rows."""
+    import xarray as xr
+
+    import sphex.xr as sxr
+    from sphex import plot
+
     with xr.open_dataset(data / TEMP_FILE) as f:
         temp = f["surface_temperature"].load()
     tinfo = sxr.find_grid(temp)
-    with Progress(temp.sizes["time"], "  temperature") as bar:
+    with progress(temp.sizes["time"], "  temperature") as bar:
         tcoef = sxr.analyze(temp, progress=bar)
     sxr.write_harmonics(tcoef, out / names["temp_coef"], overwrite)
     tp = sxr.degree_power(tcoef)
@@ -312,27 +363,9 @@ def _run(out: Path, names: dict[str, str], overwrite: bool) -> int:
     plot.save(plot.map_figure(temp.isel(time=0), cmap="heat",
                               title=f"{MOON}: surface temperature, first step (synthetic)"),
               out / names["temp_map"], overwrite=overwrite)
-
-    err = float(abs(back - topo.astype(np.float64)).max())
-    rms = float(np.sqrt(p_raw.sum()))
-    rows = [
-        ("topography", f"{info.describe()}"),
-        ("coefficients", f"{out / names['coef']}  (degrees 0..{lmax}, orthonormal, radius {RADIUS_KM:g} km)"),
-        ("map", str(out / names["map"])),
-        ("smoothed map", f"{out / names['smooth_png']}  (data: {out / names['smooth_nc']})"),
-        ("spectrum plot", f"{out / names['spectrum']}  (power-law slope {slope:.2f} over degrees {fit[0]}-{fit[1]})"),
-        ("degree-order", str(out / names["triangle"])),
+    return [
         ("temperature", f"{temp.sizes['time']} steps on a {tinfo.describe()}"),
         ("coefficients", str(out / names["temp_coef"])),
         ("spectra plot", str(out / names["temp_spectrum"])),
         ("map", str(out / names["temp_map"])),
     ]
-    w = max(len(k) for k, _ in rows)
-    for k, v in rows:
-        print(f"  {k:<{w}}  {v}")
-    print(f"  checks: rms height {rms:.1f} m; synthesis of the coefficients back onto the input "
-          f"grid differs from the input by at most {err:.2g} m: the part of the input above "
-          f"degree {lmax}, which its grid cannot carry exactly")
-    print(f"  done in {time.monotonic() - t0:.1f} s")
-    sys.stdout.flush()
-    return 0

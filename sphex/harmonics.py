@@ -14,6 +14,10 @@ with ``r_0 = 1``, ``r_m = sqrt(2)`` for m > 0 in the normalised conventions
 (so each real basis function has the same mean square as the complex one) and
 ``r_m = 1`` for ``"unnormalized"``.  Hence ``C_lm = (2/r_m) Re a_lm`` and
 ``S_lm = -(2/r_m) Im a_lm`` for m > 0, and ``C_l0 = a_l0``, ``S_l0 = 0``.
+
+Files are the adapter layer's job: :func:`sphex.xr.write_harmonics` writes a
+Harmonics to netCDF (it reads back bit for bit with
+:func:`sphex.xr.open_harmonics`).
 """
 from __future__ import annotations
 
@@ -251,9 +255,3 @@ class Harmonics:
             raise ValueError("filter weights contain NaN or inf")
         w = w[..., : self.lmax + 1]
         return self.replace(coef=self.coef * w[..., :, None])
-
-    def to_netcdf(self, path, **kwargs):
-        """Write to a netCDF file (see :func:`sphex.xr.write_harmonics`)."""
-        from sphex import xr as _xr
-
-        return _xr.write_harmonics(self, path, **kwargs)

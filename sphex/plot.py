@@ -27,7 +27,7 @@ from matplotlib import colors as mcolors
 from matplotlib.figure import Figure
 from matplotlib.ticker import FuncFormatter, MultipleLocator
 
-from sphex._io import atomic_output
+from sphex.xr.output import atomic_output
 
 __all__ = ["PALETTE", "relief", "heat", "power_figure", "map_figure", "triangle_figure", "save"]
 
@@ -43,9 +43,9 @@ heat = mcolors.LinearSegmentedColormap.from_list(
     "sphex-heat", ["#14142b", "#3d2c63", "#7b2f6b", "#c2434f", "#ee8a3c", "#f8d77c"])
 _amplitude = mcolors.LinearSegmentedColormap.from_list(
     "sphex-amplitude", ["#f8f6f1", "#c9dfd8", "#6fa8a0", "#2f6f86", "#1d3557", "#120d2b"])
-_CMAPS = {"relief": relief, "heat": heat, "amplitude": _amplitude}
+_COLOUR_MAPS = {"relief": relief, "heat": heat, "amplitude": _amplitude}
 
-_RC = {
+_FIGURE_STYLE = {
     "font.size": 9.5, "axes.titlesize": 11, "axes.labelsize": 9.5,
     "axes.edgecolor": INK, "axes.labelcolor": INK, "xtick.color": INK, "ytick.color": INK,
     "text.color": INK,
@@ -71,7 +71,7 @@ def _as_1d(s: Any) -> np.ndarray:
     return np.asarray(getattr(s, "values", s), dtype=np.float64).reshape(-1)
 
 
-def _slope(power: np.ndarray, l1: int, l2: int) -> tuple[float, float]:
+def _power_law_fit(power: np.ndarray, l1: int, l2: int) -> tuple[float, float]:
     """Slope and log10 intercept of a power-law fit (sphex.spectra.spectral_slope)."""
     from sphex.spectra import spectral_slope
 
@@ -128,7 +128,7 @@ def power_figure(spectra: Any, labels: Sequence[str] | None = None, *, units: st
         raise ValueError(f"{len(labels)} labels for {len(curves)} spectra")
     import matplotlib as mpl
 
-    with mpl.rc_context(_RC):
+    with mpl.rc_context(_FIGURE_STYLE):
         fig = _figure(6.4, 4.3)
         ax = fig.add_subplot()
         _style(ax)
@@ -147,7 +147,7 @@ def power_figure(spectra: Any, labels: Sequence[str] | None = None, *, units: st
             l1, l2 = int(fit[0]), int(fit[1])
             if not 1 <= l1 < l2 < first.size:
                 raise ValueError(f"fit range {l1}:{l2} must lie within degrees 1..{first.size - 1}")
-            k, b = _slope(first, l1, l2)
+            k, b = _power_law_fit(first, l1, l2)
             ll = np.geomspace(l1, l2, 50)
             ax.plot(ll, 10.0 ** b * ll ** k, ls=(0, (5, 3)), color=INK, lw=1.1,
                     label=f"power law, slope {k:.2f} (degrees {l1}-{l2})")
@@ -279,7 +279,7 @@ def map_figure(field: Any, lat: Any = None, lon: Any = None, *, units: str | Non
         lon_u, values = lon_u[:-1], values[:, :-1]
     if lon_u.size > 1 and lon_u[1] < lon_u[0]:
         lon_u, values = lon_u[::-1], values[:, ::-1]
-    cm = _CMAPS.get(cmap, cmap) if isinstance(cmap, str) else cmap
+    cm = _COLOUR_MAPS.get(cmap, cmap) if isinstance(cmap, str) else cmap
     finite = values[np.isfinite(values)]
     lo = float(finite.min()) if vmin is None and finite.size else vmin
     hi = float(finite.max()) if vmax is None and finite.size else vmax
@@ -289,7 +289,7 @@ def map_figure(field: Any, lat: Any = None, lon: Any = None, *, units: str | Non
         norm = mcolors.Normalize(lo, hi)
     import matplotlib as mpl
 
-    with mpl.rc_context(_RC):
+    with mpl.rc_context(_FIGURE_STYLE):
         fig = _figure(7.2, 4.3)
         ax = fig.add_subplot()
         ax.set_facecolor(PAPER)
@@ -364,7 +364,7 @@ def triangle_figure(coef: Any, *, units: str | None = None, title: str | None = 
     logimg[np.isnan(img)] = np.nan
     import matplotlib as mpl
 
-    with mpl.rc_context(_RC):
+    with mpl.rc_context(_FIGURE_STYLE):
         fig = _figure(6.4, 5.0)
         ax = fig.add_subplot()
         ax.set_facecolor(PAPER)

@@ -31,7 +31,7 @@ __all__ = ["fft_workers", "check_grid", "check_values", "check_lmax", "LatitudeP
 
 def fft_workers() -> int:
     """FFT threads: numba's thread count for the calling thread (all cores in the
-    main thread, fewer inside dask tasks under the rule of :mod:`sphex._scale`)."""
+    main thread, fewer inside dask tasks under the rule of :mod:`sphex.xr.scaleout`)."""
     return numba.get_num_threads()
 
 

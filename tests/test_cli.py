@@ -16,6 +16,7 @@ import xarray as xr
 import sphex
 import sphex.xr as sxr
 from sphex import cli
+from sphex.cli import shared
 
 LMAX = 14
 
@@ -122,12 +123,12 @@ def test_spectrum_csv_and_plot(files):
 @pytest.mark.parametrize("text,value", [("300", 300.0), ("300km", 300.0), ("300 km", 300.0),
                                         ("2.5KM", 2.5)])
 def test_distances_in_km_may_carry_the_unit(text, value):
-    assert cli._km(text) == value
+    assert shared.distance_km(text) == value
 
 
 @pytest.mark.parametrize("text", ["10", "10deg", "10 degrees", "10\u00b0"])
 def test_cap_radius_may_carry_the_unit(text):
-    assert cli._cap_radius(text) == 10.0
+    assert shared.cap_radius(text) == 10.0
 
 
 def test_smooth_regrid_and_text_table(files):
@@ -222,7 +223,7 @@ def test_demo_writes_its_products(tmp_path):
 
 
 def test_interrupted_write_leaves_nothing(tmp_path):
-    from sphex._io import atomic_output
+    from sphex.xr.output import atomic_output
 
     target = tmp_path / "x.nc"
     with pytest.raises(KeyboardInterrupt):
@@ -235,7 +236,7 @@ def test_interrupted_write_leaves_nothing(tmp_path):
 def test_progress_bar_draws_only_on_a_terminal():
     import io
 
-    from sphex._io import Progress
+    from sphex.cli.shared import Progress
 
     class Tty(io.StringIO):
         def isatty(self):

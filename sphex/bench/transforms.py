@@ -5,15 +5,13 @@ benchmark times a 2048 x 2048 float64 matrix product (numpy / BLAS) beside
 the transforms, and reports each transform against the *roofline* time,
 8 flops per (degree, order, latitude pair) element at that DGEMM rate.
 
-Run ``sphex bench`` (or ``python -m sphex.bench``); ``--json`` prints one JSON
-document for machines.  Peak memory is measured per size in a fresh
+Run ``sphex bench`` (or ``python -m sphex.bench``, see :mod:`sphex.bench.command`);
+``--json`` prints one JSON document for machines.  Peak memory is measured per size in a fresh
 subprocess (``ru_maxrss``), so it includes the interpreter and compiled
 kernels; the baseline of an idle process is reported beside it.
 """
 from __future__ import annotations
 
-import argparse
-import json
 import os
 import subprocess
 import sys
@@ -230,50 +228,3 @@ def format_table(result: dict) -> str:
                      f"with a warm cache {c['first_call_warm_cache_s']:.2f} s; "
                      f"warm 'sphex analyze' of a 64 x 128 file {c['cli_analyze_warm_s']:.2f} s")
     return "\n".join(lines)
-
-
-def main(argv=None) -> int:
-    parser = argparse.ArgumentParser(
-        prog="sphex bench",
-        description="Time analysis and synthesis on Gauss grids against the DGEMM rate measured "
-                    "in the same run.",
-        epilog="example: sphex bench --sizes 255 511 --no-memory")
-    parser.add_argument("--sizes", type=int, nargs="+", default=list(DEFAULT_SIZES),
-                        help="degrees to time (default: 255 511 1023 2047)")
-    parser.add_argument("--batch", default="511x32",
-                        help="LMAXxFIELDS batch case, or 'none' (default: 511x32)")
-    parser.add_argument("--repeat", type=int, default=3, help="best of at least this many calls, more while they fit in 1 s (default 3)")
-    parser.add_argument("--no-memory", action="store_true", help="skip the peak-memory subprocesses")
-    parser.add_argument("--huge", type=int, nargs="?", const=10800, default=None, metavar="LMAX",
-                        help="also one analysis and synthesis at this degree in a fresh process "
-                             "(default 10800: 1.9 GB of input, several minutes)")
-    parser.add_argument("--cold", action="store_true",
-                        help="also time the first call with an empty numba cache and a warm CLI call")
-    parser.add_argument("--scale", action="store_true",
-                        help="run the dask scale-out benchmark instead (see sphex.bench_scale)")
-    parser.add_argument("--json", action="store_true", help="print JSON instead of a table")
-    args, rest = parser.parse_known_args(argv)
-    if args.scale:
-        from sphex import bench_scale
-
-        return bench_scale.main(rest + (["--json"] if args.json else [])
-                                + (["--no-memory"] if args.no_memory else [])
-                                + (["--repeat", str(args.repeat)] if args.repeat != 3 else []))
-    if rest:
-        parser.error(f"unrecognized arguments: {' '.join(rest)}")
-    batch = None
-    if args.batch.lower() != "none":
-        try:
-            lb, kb = (int(v) for v in args.batch.lower().split("x"))
-        except ValueError:
-            parser.error(f"--batch must look like 511x32 or 'none', got {args.batch!r}")
-        batch = (lb, kb)
-    if any(L < 1 for L in args.sizes) or args.repeat < 1:
-        parser.error("sizes and --repeat must be positive integers")
-    result = run(args.sizes, batch, not args.no_memory, args.repeat, args.huge, args.cold)
-    print(json.dumps(result, indent=2) if args.json else format_table(result))
-    return 0
-
-
-if __name__ == "__main__":
-    sys.exit(main())

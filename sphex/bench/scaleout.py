@@ -8,7 +8,7 @@ Two measurements, both ratios taken in one run on this machine:
    :func:`throughput_child`).  Each dask thread's numba thread count is stated per row:
    with one numba thread per task the ratio 2 threads / 1 thread shows whether
    the kernels really run in parallel outside the GIL (target >= 1.8 on 2
-   cores); the other rows show the thread rule of :mod:`sphex._scale` against
+   cores); the other rows show the thread rule of :mod:`sphex.xr.scaleout` against
    oversubscription and against one plain call from the main thread.
 2. **Peak memory** (``ru_maxrss`` of the child, from ``os.wait4``) of the
    command line analysing a generated netCDF file of about 1.3 GB (float64
@@ -17,7 +17,7 @@ Two measurements, both ratios taken in one run on this machine:
    end.  For comparison it measures an idle interpreter with the same
    imports and, with ``--compare``, loading the whole variable instead.
 
-Run ``python -m sphex.bench_scale`` (``--json`` for machines, ``--quick`` for
+Run ``sphex bench --scale`` or ``python -m sphex.bench.scaleout`` (``--json`` for machines, ``--quick`` for
 a small file).  Timings on a shared machine vary; each throughput figure is
 the best of ``--repeat`` runs.
 """
@@ -33,6 +33,7 @@ import sys
 import tempfile
 import time
 from pathlib import Path
+from collections.abc import Callable
 from typing import Any
 
 import numpy as np
@@ -52,7 +53,7 @@ def _analyze_block(values: np.ndarray, grid: Any) -> np.ndarray:
     return analyze(values, grid).coef
 
 
-def _load() -> float | None:
+def _load_average() -> float | None:
     try:
         return float(os.getloadavg()[0])
     except OSError:
@@ -62,16 +63,13 @@ def _load() -> float | None:
 def throughput(lmax: int = LMAX, fields: int = FIELDS, block: int = BLOCK,
                repeat: int = 5) -> dict:
     """Fields per second for several (dask threads, numba threads) settings."""
-    import dask
     import dask.array as dsa
-    from sphex.kernels import numba  # sphex sets the vector width before numba loads
 
     from sphex import Grid, Harmonics, synthesize
-    from concurrent.futures import ThreadPoolExecutor
+    from sphex.kernels import numba  # sphex sets the vector width before numba loads
+    from sphex.xr.scaleout import cpu_count, in_tasks
 
-    from sphex._scale import _init_pool_thread, cpu_count, in_tasks
-
-    load0 = _load()
+    load0 = _load_average()
     grid = Grid.gauss(lmax)
     rng = np.random.default_rng(255)
     coef = rng.standard_normal((fields, lmax + 1, lmax + 1)) \
@@ -92,14 +90,39 @@ def throughput(lmax: int = LMAX, fields: int = FIELDS, block: int = BLOCK,
     err = float(np.abs(check - coef).max() / np.abs(coef).max())
     cores = cpu_count()
     top = numba.config.NUMBA_NUM_THREADS
-    settings = []
+    pools: list[Any] = []
+    try:
+        settings = _thread_settings(plain, ruled, values, grid, cores, top, pools)
+        best = _best_interleaved([fn for _, _, _, fn in settings], repeat)
+    finally:
+        for pool in pools:
+            pool.shutdown(wait=True)
+    rows = [{"setting": label, "dask_threads": nd, "numba_threads": nn, "seconds": w,
+             "fields_per_s": fields / w, "cpu_over_wall": c / w}
+            for (label, nd, nn, _), (w, c) in zip(settings, best)]
+    one, two = rows[0]["fields_per_s"], rows[1]["fields_per_s"]
+    return {"lmax": lmax, "fields": fields, "block": block, "cores": cores,
+            "load_before": load0, "load_after": _load_average(),
+            "numba_max_threads": top, "roundtrip_error": err, "rows": rows,
+            "scaling_2_over_1": two / one, "scaling_target": 1.8}
 
-    pools = []
+
+def _thread_settings(plain: Any, ruled: Any, values: np.ndarray, grid: Any, cores: int,
+                     top: int, pools: list[Any]
+                     ) -> list[tuple[str, int | None, int, Callable[[], None]]]:
+    """(label, dask threads, numba threads, run) of each setting compared; the thread pools
+    made for them are added to ``pools`` (the caller shuts them down)."""
+    from concurrent.futures import ThreadPoolExecutor
+
+    import dask
+
+    from sphex.kernels import numba  # sphex sets the vector width before numba loads
+    from sphex.xr.scaleout import initialize_pool_thread
 
     def on_pool(n: int, k: int | None, arr) -> Any:
         # one long-lived pool per setting, as in a long run: thread start-up is not timed
         inner = max(1, min(cores // n, top)) if k is None else k
-        pool = ThreadPoolExecutor(n, initializer=_init_pool_thread, initargs=(inner,))
+        pool = ThreadPoolExecutor(n, initializer=initialize_pool_thread, initargs=(inner,))
         pools.append(pool)
         conf = {"scheduler": "threads", "pool": pool, "num_workers": n,
                 "sphex.task-threads": inner}
@@ -115,7 +138,7 @@ def throughput(lmax: int = LMAX, fields: int = FIELDS, block: int = BLOCK,
 
     rule1 = max(1, min(cores // 1, top))
     rule2 = max(1, min(cores // 2, top))
-    settings = [
+    return [
         ("dask 1 thread, numba 1 per task", 1, 1, on_pool(1, 1, plain)),
         ("dask 2 threads, numba 1 per task", 2, 1, on_pool(2, 1, plain)),
         (f"dask 1 thread, sphex rule ({rule1} numba)", 1, rule1, on_pool(1, None, ruled)),
@@ -123,29 +146,22 @@ def throughput(lmax: int = LMAX, fields: int = FIELDS, block: int = BLOCK,
         (f"dask 2 threads, numba {top} per task (no rule)", 2, top, on_pool(2, top, plain)),
         (f"one call, main thread, numba {top}", None, top, main_thread),
     ]
-    try:
-        for _, _, _, fn in settings:  # warm-up: every pool thread has run the kernels once
+
+
+def _best_interleaved(runs: list[Callable[[], None]], repeat: int) -> list[tuple[float, float]]:
+    """Best (wall, CPU) seconds of each run over ``repeat`` rounds, after one warm-up round."""
+    for fn in runs:  # warm-up: every pool thread has run the kernels once
+        fn()
+    best = [(math.inf, 0.0)] * len(runs)
+    # interleaved repeats: a change in the machine's load hits every setting alike
+    for _ in range(repeat):
+        for i, fn in enumerate(runs):
+            w0, c0 = time.perf_counter(), time.process_time()
             fn()
-        best = [(math.inf, 0.0)] * len(settings)
-        # interleaved repeats: a change in the machine's load hits every setting alike
-        for _ in range(repeat):
-            for i, (_, _, _, fn) in enumerate(settings):
-                w0, c0 = time.perf_counter(), time.process_time()
-                fn()
-                w, c = time.perf_counter() - w0, time.process_time() - c0
-                if w < best[i][0]:
-                    best[i] = (w, c)
-    finally:
-        for pool in pools:
-            pool.shutdown(wait=True)
-    rows = [{"setting": label, "dask_threads": nd, "numba_threads": nn, "seconds": w,
-             "fields_per_s": fields / w, "cpu_over_wall": c / w}
-            for (label, nd, nn, _), (w, c) in zip(settings, best)]
-    one, two = rows[0]["fields_per_s"], rows[1]["fields_per_s"]
-    return {"lmax": lmax, "fields": fields, "block": block, "cores": cores,
-            "load_before": load0, "load_after": _load(),
-            "numba_max_threads": top, "roundtrip_error": err, "rows": rows,
-            "scaling_2_over_1": two / one, "scaling_target": 1.8}
+            w, c = time.perf_counter() - w0, time.process_time() - c0
+            if w < best[i][0]:
+                best[i] = (w, c)
+    return best
 
 
 def throughput_child(lmax: int = LMAX, repeat: int = 5) -> dict:
@@ -157,12 +173,12 @@ def throughput_child(lmax: int = LMAX, repeat: int = 5) -> dict:
     transform's matrix products, and adding dask threads only oversubscribes.
     The measurement therefore runs with ``OPENBLAS_NUM_THREADS=1`` (and the
     same for MKL), the setting dask.distributed gives its workers; inside
-    :func:`sphex._scale.thread_pool` the same limit is applied by
+    :func:`sphex.xr.scaleout.thread_pool` the same limit is applied by
     ``threadpoolctl`` when that package is installed.
     """
     env = dict(os.environ, OPENBLAS_NUM_THREADS="1", MKL_NUM_THREADS="1")
     code = ("import json, sys\n"
-            "from sphex.bench_scale import throughput\n"
+            "from sphex.bench.scaleout import throughput\n"
             f"print(json.dumps(throughput(lmax={int(lmax)}, repeat={int(repeat)})))\n")
     r = subprocess.run([sys.executable, "-c", code], capture_output=True, text=True, env=env)
     if r.returncode != 0:
@@ -236,13 +252,6 @@ def _peak_rss(cmd: list[str], env: dict | None = None) -> dict:
             "stdout": r.stdout.decode(errors="replace")[-400:], "stderr": head[-400:]}
 
 
-def _cli_streams() -> bool:
-    """Whether ``sphex analyze`` has the --chunks option yet."""
-    r = subprocess.run([sys.executable, "-m", "sphex.cli", "analyze", "--help"],
-                       capture_output=True, text=True)
-    return "--chunks" in r.stdout
-
-
 def memory(nbytes: float = FILE_BYTES, chunk: int | None = None, compare: bool = False,
            workdir: str | None = None) -> dict:
     """Peak RSS of streamed analysis of a generated file, as a fraction of its size."""
@@ -252,14 +261,9 @@ def memory(nbytes: float = FILE_BYTES, chunk: int | None = None, compare: bool =
         made = make_series(src, nbytes)
         out = tmp / "coef.nc"
         chunks = f"time={chunk}" if chunk else None
-        if _cli_streams():
-            how = "sphex analyze --chunks (command line)"
-            cmd = [sys.executable, "-m", "sphex.cli", "analyze", str(src), "-v", "field",
-                   "-o", str(out), "--overwrite"] + (["--chunks", chunks] if chunks else [])
-        else:
-            how = "python -m sphex._scale (the command line's streaming function)"
-            cmd = [sys.executable, "-m", "sphex._scale", str(src), "field", str(out),
-                   chunks or "-"]
+        how = "sphex analyze --chunks (command line)"
+        cmd = [sys.executable, "-m", "sphex.cli", "analyze", str(src), "-v", "field",
+               "-o", str(out), "--overwrite"] + (["--chunks", chunks] if chunks else [])
         run = _peak_rss(cmd)
         if run["exit"] != 0:
             raise RuntimeError(f"streamed run failed: {run['stderr']}")
@@ -270,7 +274,7 @@ def memory(nbytes: float = FILE_BYTES, chunk: int | None = None, compare: bool =
         res["peak_over_file"] = run["peak_rss_bytes"] / made["file_bytes"]
         res["target"] = 0.6
         res["idle"] = _peak_rss([sys.executable, "-c",
-                                 "import sphex.xr, sphex._scale, dask.array, netCDF4, distributed"])
+                                 "import sphex.xr, dask.array, netCDF4, distributed"])
         if compare:
             code = ("import sys, xarray as xr, sphex.xr as sxr\n"
                     "da = xr.open_dataset(sys.argv[1])['field'].load()\n"
@@ -334,9 +338,9 @@ def format_report(res: dict) -> str:
 
 
 def main(argv: list[str] | None = None) -> int:
-    """Command-line entry: ``python -m sphex.bench_scale [--quick] [--json]``."""
+    """Command-line entry: ``python -m sphex.bench.scaleout [--quick] [--json]``."""
     p = argparse.ArgumentParser(prog="sphex bench --scale", description=__doc__.splitlines()[0],
-                                epilog="example: python -m sphex.bench_scale --quick")
+                                epilog="example: python -m sphex.bench.scaleout --quick")
     p.add_argument("--quick", action="store_true", help="L=127 and a 0.13 GB file")
     p.add_argument("--repeat", type=int, default=5, help="best of this many runs (default 5)")
     p.add_argument("--no-memory", action="store_true", help="skip the 1.3 GB memory run")

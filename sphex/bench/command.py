@@ -1,0 +1,61 @@
+"""``sphex bench``: the benchmark's command line (also ``python -m sphex.bench``).
+
+Without ``--scale`` it runs :mod:`sphex.bench.transforms`; with ``--scale``
+the remaining options go to :mod:`sphex.bench.scaleout`.
+"""
+from __future__ import annotations
+
+import argparse
+import json
+from collections.abc import Sequence
+
+from sphex.bench import transforms
+
+__all__ = ["main"]
+
+
+def main(argv: Sequence[str] | None = None) -> int:
+    """``sphex bench [options]``: the transform benchmark, or the scale-out one with --scale."""
+    parser = argparse.ArgumentParser(
+        prog="sphex bench",
+        description="Time analysis and synthesis on Gauss grids against the DGEMM rate measured "
+                    "in the same run.",
+        epilog="example: sphex bench --sizes 255 511 --no-memory")
+    parser.add_argument("--sizes", type=int, nargs="+", default=list(transforms.DEFAULT_SIZES),
+                        help="degrees to time (default: 255 511 1023 2047)")
+    parser.add_argument("--batch", default="511x32",
+                        help="LMAXxFIELDS batch case, or 'none' (default: 511x32)")
+    parser.add_argument("--repeat", type=int, default=3,
+                        help="best of at least this many calls, more while they fit in 1 s "
+                             "(default 3)")
+    parser.add_argument("--no-memory", action="store_true", help="skip the peak-memory subprocesses")
+    parser.add_argument("--huge", type=int, nargs="?", const=10800, default=None, metavar="LMAX",
+                        help="also one analysis and synthesis at this degree in a fresh process "
+                             "(default 10800: 1.9 GB of input, several minutes)")
+    parser.add_argument("--cold", action="store_true",
+                        help="also time the first call with an empty numba cache and a warm CLI call")
+    parser.add_argument("--scale", action="store_true",
+                        help="run the dask scale-out benchmark instead (see sphex.bench.scaleout)")
+    parser.add_argument("--json", action="store_true", help="print JSON instead of a table")
+    args, rest = parser.parse_known_args(argv)
+    if args.scale:
+        from sphex.bench import scaleout
+
+        return scaleout.main(rest + (["--json"] if args.json else [])
+                             + (["--no-memory"] if args.no_memory else [])
+                             + (["--repeat", str(args.repeat)] if args.repeat != 3 else []))
+    if rest:
+        parser.error(f"unrecognized arguments: {' '.join(rest)}")
+    batch = None
+    if args.batch.lower() != "none":
+        try:
+            lb, kb = (int(v) for v in args.batch.lower().split("x"))
+        except ValueError:
+            parser.error(f"--batch must look like 511x32 or 'none', got {args.batch!r}")
+        batch = (lb, kb)
+    if any(L < 1 for L in args.sizes) or args.repeat < 1:
+        parser.error("sizes and --repeat must be positive integers")
+    result = transforms.run(args.sizes, batch, not args.no_memory, args.repeat, args.huge,
+                            args.cold)
+    print(json.dumps(result, indent=2) if args.json else transforms.format_table(result))
+    return 0

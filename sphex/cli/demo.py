@@ -1,0 +1,31 @@
+"""``sphex demo``: the whole job on the bundled synthetic data (the job itself is :mod:`sphex.demo`)."""
+from __future__ import annotations
+
+import argparse
+from typing import Any
+
+from sphex.cli.shared import Progress, add_command
+
+EXAMPLE = """\
+Makes the synthetic moon Velanthe's topography and surface-temperature files
+(invented data), analyses them, and writes coefficients, a spectrum plot, maps
+and a degree-order picture into DIR.
+
+example:
+  sphex demo --out sphex-demo-output
+"""
+
+
+def register(sub: Any) -> None:
+    """Add ``demo`` to the subcommands."""
+    q = add_command(sub, "demo", "Run the whole job on bundled synthetic data", EXAMPLE)
+    q.add_argument("--out", default="sphex-demo-output", metavar="DIR",
+                   help="output directory (default ./sphex-demo-output)")
+    q.add_argument("--overwrite", action="store_true", help="replace files already in DIR")
+    q.set_defaults(func=run)
+
+
+def run(a: argparse.Namespace) -> int:
+    from sphex import demo as demo_job
+
+    return demo_job.run(a.out, overwrite=a.overwrite, progress=Progress)

@@ -1,0 +1,126 @@
+"""``sphex analyze`` (grid file -> coefficient file) and ``sphex synthesize`` (back)."""
+from __future__ import annotations
+
+import argparse
+from pathlib import Path
+from typing import Any
+
+from sphex.cli.shared import (
+    UserError, add_command, add_output_arguments, chunk_spec, count_fields, grid_of,
+    load_variable, positive_number, progress_bar, say, target_grid, whole_number, write_field,
+)
+
+ANALYZE_EXAMPLE = """\
+The coefficient file has dimensions degree and order (plus any extra ones such
+as time) and variables cos_coef / sin_coef; its attributes state the
+normalisation, phase convention, lmax, reference radius and units.  A file
+name ending in .txt gets a plain text table (one field only).
+
+example:
+  sphex analyze data_demo/velanthe_topography.nc -v topography --lmax 60 -o topo_coef.nc
+"""
+
+SYNTHESIZE_EXAMPLE = """\
+example:
+  sphex synthesize topo_coef.nc --grid gauss:90 -o topo_gauss.nc
+  sphex synthesize topo_coef.nc --grid original_field.nc -o back_on_my_grid.nc
+"""
+
+
+def register(sub: Any) -> None:
+    """Add ``analyze`` and ``synthesize`` to the subcommands."""
+    q = add_command(sub, "analyze", "Spherical-harmonic coefficients of a gridded netCDF variable",
+                    ANALYZE_EXAMPLE)
+    q.add_argument("input", metavar="IN.nc", help="netCDF file with a global gridded variable")
+    q.add_argument("-v", "--var", metavar="VAR", help="variable (optional if only one is gridded)")
+    q.add_argument("--lmax", type=whole_number, metavar="N",
+                   help="highest degree (default: the grid's exact limit)")
+    q.add_argument("--norm", default="orthonormal",
+                   choices=["orthonormal", "full", "schmidt", "unnormalized"],
+                   help="normalisation (default orthonormal)")
+    q.add_argument("--no-phase", action="store_true",
+                   help="leave out the Condon-Shortley phase (-1)^m")
+    q.add_argument("--radius", type=positive_number, metavar="METRES",
+                   help="reference radius to record with the coefficients")
+    q.add_argument("--chunks", type=chunk_spec, metavar="DIM=N",
+                   help="fields per chunk when streaming a long series (default: about 8 MiB of "
+                        "input per chunk along time)")
+    q.add_argument("--scheduler", metavar="ADDRESS",
+                   help="run on this dask.distributed scheduler (e.g. tcp://10.0.0.5:8786) instead "
+                        "of threads in this process")
+    add_output_arguments(q, "output coefficient file (.nc, or .txt for a text table)")
+    q.set_defaults(func=run_analyze)
+
+    q = add_command(sub, "synthesize", "Gridded field from a coefficient file", SYNTHESIZE_EXAMPLE)
+    q.add_argument("input", metavar="COEF.nc", help="coefficient file (netCDF or text table)")
+    q.add_argument("--grid", required=True, metavar="GRID",
+                   help="netCDF file whose coordinates define the grid, gauss:LMAX, or "
+                        "equiangular:NLATxNLON:LAYOUT")
+    q.add_argument("--lmax", type=whole_number, metavar="N", help="truncate to this degree first")
+    q.add_argument("--name", metavar="NAME", help="output variable name (default: the field's)")
+    add_output_arguments(q)
+    q.set_defaults(func=run_synthesize)
+
+
+def run_analyze(a: argparse.Namespace) -> int:
+    """netCDF output streams the input chunk by chunk; a text table is analysed in memory."""
+    from sphex.xr.output import check_output_path
+
+    check_output_path(a.output, a.overwrite)
+    phase = "no phase" if a.no_phase else "Condon-Shortley phase"
+    if Path(a.output).suffix.lower() not in (".txt", ".tab", ".dat"):
+        from sphex.xr.streaming import stream_analyze
+
+        r = stream_analyze(a.input, a.var, a.output, a.lmax, a.norm, a.chunks, a.scheduler,
+                           a.overwrite, condon_shortley=not a.no_phase, radius=a.radius)
+        say(f"read  {a.input}: {r.variable!r} on a {r.grid}",
+            f"wrote {a.output}: {r.fields} field{'s' if r.fields != 1 else ''}, degrees "
+            f"0..{r.lmax}, {a.norm} normalisation, {phase}")
+        return 0
+    from sphex.xr.coefficients import to_harmonics
+    from sphex.xr.coords import check_lmax
+    from sphex.xr.fields import analyze
+    from sphex.xr.tables import write_table
+
+    da, _ = load_variable(a.input, a.var)
+    info = grid_of(da, a.input)
+    lmax = check_lmax(a.lmax, info.grid, False, f"variable {da.name!r}")
+    n = count_fields(da, info)
+    if n != 1:
+        raise UserError(f"a text table holds one field but {da.name!r} has {n}; write .nc instead")
+    with progress_bar(n, "analyze") as bar:
+        ds = analyze(da, lmax, norm=a.norm, condon_shortley=not a.no_phase,
+                     radius=a.radius, progress=bar if bar.enabled else None)
+    write_table(to_harmonics(ds), a.output, overwrite=a.overwrite,
+                name=ds.attrs.get("field_name"))
+    say(f"read  {a.input}: {da.name!r} on a {info.describe()}",
+        f"wrote {a.output}: {n} field{'s' if n != 1 else ''}, degrees 0..{lmax}, "
+        f"{a.norm} normalisation, {phase}")
+    return 0
+
+
+def run_synthesize(a: argparse.Namespace) -> int:
+    from sphex.xr.output import check_output_path
+
+    check_output_path(a.output, a.overwrite)
+    from sphex.xr.coords import synthesis_target
+    from sphex.xr.fields import synthesize
+    from sphex.xr.files import open_coefficients
+
+    ds = open_coefficients(a.input)
+    target = target_grid(a.grid)
+    info, _, _ = synthesis_target(target)
+    l_file = ds.sizes["degree"] - 1
+    if a.lmax is not None and a.lmax > l_file:
+        raise UserError(f"--lmax {a.lmax} is above the coefficients' highest degree {l_file}")
+    out = synthesize(ds, target, lmax=a.lmax)
+    if a.name:
+        out.name = a.name
+    used = l_file if a.lmax is None else a.lmax
+    note = ""
+    if used > info.grid.lmax_exact:
+        note = (f" (note: degrees above {info.grid.lmax_exact} are not resolved by this grid "
+                "and alias on re-analysis)")
+    write_field(out, a.output, a.overwrite, {}, f"sphex synthesize {a.input} --grid {a.grid}")
+    say(f"wrote {a.output}: {out.name!r} to degree {used} on a {info.describe()}{note}")
+    return 0

@@ -1,0 +1,456 @@
+"""The field adapters: gridded DataArrays in, coefficient Datasets or gridded DataArrays out.
+
+:func:`analyze`, :func:`synthesize`, :func:`smooth`, :func:`regrid` and
+:func:`degree_power` find the grid of their input (:mod:`sphex.xr.coords`),
+hand the spatial part to the numpy core through :func:`xarray.apply_ufunc`
+(so extra dimensions such as time, level or member are a batch, and
+dask-backed inputs stay lazy, one task per chunk of whole fields; see
+:mod:`sphex.xr.scaleout`), and put coordinates and attributes back on the
+result.  Coefficients are in the layout of :mod:`sphex.xr.coefficients`.
+"""
+from __future__ import annotations
+
+import math
+from collections.abc import Callable, Mapping, Sequence
+from typing import Any
+
+import numpy as np
+import xarray as xr
+
+from sphex.harmonics import Harmonics
+from sphex.legendre import check_norm
+from sphex.xr import scaleout
+from sphex.xr.coefficients import (
+    COS, SIN, as_coefficients, finish_coefficient_dataset, harmonics_from_cos_sin, read_conventions,
+)
+from sphex.xr.coords import GridInfo, check_lmax, find_grid, synthesis_target
+from sphex.xr.missing import (
+    FieldNames, field_positions, refuse_missing_in_block, refuse_missing_in_memory,
+)
+
+__all__ = ["analyze", "synthesize", "smooth", "regrid", "degree_power", "append_history"]
+
+
+def _progress_step(total: int) -> int:
+    """Fields per block when progress is reported: about twenty reports, blocks of 1..64."""
+    if total <= 1:
+        return 1
+    return max(1, min(64, math.ceil(total / 20)))
+
+
+def _analyze_block(values: np.ndarray, pos: np.ndarray | None = None, *, info: GridInfo,
+                   lmax: int, norm: str, cs: bool, allow_aliasing: bool,
+                   progress: Callable[[int, int], None] | None,
+                   where: FieldNames | None = None) -> tuple[np.ndarray, np.ndarray]:
+    """Real-form coefficients (C, S) of a block of gridded fields (one apply_ufunc call)."""
+    from sphex.transform import analyze as _analyze
+
+    values = np.asarray(values)[..., list(info.take)]
+    batch = values.shape[:-2]
+    flat = values.reshape((-1,) + values.shape[-2:])
+    n = flat.shape[0]
+    c_out = np.empty((n, lmax + 1, lmax + 1))
+    s_out = np.empty((n, lmax + 1, lmax + 1))
+    step = _progress_step(n) if progress else max(n, 1)
+    for i in range(0, n, step):
+        block = np.ascontiguousarray(flat[i:i + step], dtype=np.float64)
+        kw = {"allow_aliasing": True} if allow_aliasing else {}
+        refuse_missing_in_block(block, i, pos, batch, where)
+        h = _analyze(block, info.grid, lmax=lmax, norm=norm, condon_shortley=cs, **kw)
+        c, s = h.cos_sin()
+        c_out[i:i + step] = c
+        s_out[i:i + step] = s
+        if progress:
+            progress(min(i + step, n), n)
+    shape = batch + (lmax + 1, lmax + 1)
+    return c_out.reshape(shape), s_out.reshape(shape)
+
+
+def _single_dataarray(da: Any) -> xr.DataArray:
+    """``da`` itself, or the one gridded variable of a Dataset."""
+    if isinstance(da, xr.Dataset):
+        gridded = [k for k, v in da.data_vars.items() if _has_grid(v)]
+        if len(gridded) == 1:
+            return da[gridded[0]]
+        raise ValueError(f"the Dataset holds {len(gridded)} gridded variables "
+                         f"({', '.join(map(str, gridded)) or 'none'}); pick one: ds['name']")
+    if not isinstance(da, xr.DataArray):
+        raise TypeError(f"expected an xarray.DataArray, not {type(da).__name__}")
+    return da
+
+
+def _has_grid(da: xr.DataArray) -> bool:
+    try:
+        find_grid(da)
+    except ValueError:
+        return False
+    return True
+
+
+def _prepare_fields(da: xr.DataArray, info: GridInfo
+                    ) -> tuple[xr.DataArray, xr.DataArray, FieldNames | None]:
+    """What every gridded adapter does before its apply_ufunc: refuse missing
+    values (in memory), give each dask chunk whole fields, and hand out the
+    field positions and namer its tasks report missing values with."""
+    core = (info.lat_dim, info.lon_dim)
+    refuse_missing_in_memory(da, core)
+    da = scaleout.whole_fields(da, core)
+    pos, names = field_positions(da, core)
+    return da, pos, names
+
+
+def analyze(da: xr.DataArray, lmax: int | None = None, *, norm: str = "orthonormal",
+            condon_shortley: bool = True, radius: float | None = None,
+            allow_aliasing: bool = False,
+            progress: Callable[[int, int], None] | None = None) -> xr.Dataset:
+    """Spherical-harmonic coefficients of a gridded DataArray.
+
+    Parameters
+    ----------
+    da : xarray.DataArray
+        Global field(s) on a latitude-longitude grid (see :func:`find_grid`);
+        any other dimensions (time, level, member) are kept and analysed as a
+        batch.  numpy- or dask-backed.
+    lmax : int, optional
+        Highest degree; default the grid's exact limit.
+    norm : {"orthonormal", "full", "schmidt", "unnormalized"}
+        Normalisation of the coefficients.
+    condon_shortley : bool
+        Include the Condon-Shortley phase (-1)^m.
+    radius : float, optional
+        Reference radius in metres to record with the coefficients.
+    allow_aliasing : bool
+        Allow ``lmax`` above the grid's exact limit (the result is aliased).
+    progress : callable, optional
+        ``progress(done, total)`` called as blocks of fields finish (numpy-backed
+        input only).
+
+    Returns
+    -------
+    xarray.Dataset
+        ``cos_coef`` and ``sin_coef`` over ``(*other_dims, degree, order)`` with
+        the non-spatial coordinates of ``da`` and attributes stating the
+        conventions (module docstring).
+
+    Raises
+    ------
+    ValueError
+        No usable grid, ``lmax`` too high, unknown ``norm``, missing values.
+    """
+    da = _single_dataarray(da)
+    check_norm(norm)
+    info = find_grid(da)
+    where = f"variable {da.name!r}" if da.name is not None else "the field"
+    lmax = check_lmax(lmax, info.grid, allow_aliasing, where)
+    da, pos, names = _prepare_fields(da, info)
+    n = lmax + 1
+    c, s = xr.apply_ufunc(
+        scaleout.task_function(_analyze_block, da), da, pos,
+        input_core_dims=[[info.lat_dim, info.lon_dim], []],
+        output_core_dims=[["degree", "order"], ["degree", "order"]],
+        kwargs={"info": info, "lmax": lmax, "norm": norm, "cs": bool(condon_shortley),
+                "allow_aliasing": allow_aliasing, "where": names,
+                "progress": progress if isinstance(da.data, np.ndarray) else None},
+        dask="parallelized", output_dtypes=[np.float64, np.float64],
+        dask_gufunc_kwargs={"output_sizes": {"degree": n, "order": n}},
+        keep_attrs=False,
+    )
+    units = da.attrs.get("units")
+    label = str(da.name) if da.name is not None else "field"
+    var_attrs = {"units": str(units)} if units is not None else {}
+    ds = xr.Dataset({
+        COS: c.assign_attrs(long_name=f"cosine coefficient C_lm of {label}", **var_attrs),
+        SIN: s.assign_attrs(long_name=f"sine coefficient S_lm of {label}", **var_attrs),
+    })
+    return finish_coefficient_dataset(ds, lmax, norm, bool(condon_shortley), radius,
+                                      None if units is None else str(units),
+                                      None if da.name is None else str(da.name), da.attrs)
+
+
+def _synthesize_block(c: np.ndarray, s: np.ndarray, *, conv: Mapping[str, Any],
+                      lmax: int | None, info: GridInfo) -> np.ndarray:
+    """Gridded fields of a block of real-form coefficients (one apply_ufunc call)."""
+    from sphex.transform import synthesize as _synthesize
+
+    h = harmonics_from_cos_sin(c, s, conv)
+    if lmax is not None and lmax < h.lmax:
+        h = h.truncate(lmax)
+    out = np.asarray(_synthesize(h, info.grid))
+    return out[..., list(info.put)]
+
+
+def _source_attributes(ds: xr.Dataset) -> dict[str, Any]:
+    """The analysed field's attributes, from the ``field_`` attributes of a coefficient Dataset."""
+    out = {k[len("field_"):]: v for k, v in ds.attrs.items()
+           if k.startswith("field_") and k != "field_name"}
+    if "units" in ds.attrs:
+        out["units"] = ds.attrs["units"]
+    return out
+
+
+def synthesize(ds: xr.Dataset | Harmonics, like: Any, *, lmax: int | None = None) -> xr.DataArray:
+    """Gridded field(s) from coefficients.
+
+    Parameters
+    ----------
+    ds : xarray.Dataset or Harmonics
+        Coefficients (from :func:`analyze` or :func:`open_coefficients`).
+    like : DataArray, Dataset, Grid or str
+        The target grid: an object whose latitude/longitude coordinates define
+        it (its coordinates, order and any seam column are reproduced), a
+        :class:`Grid`, or a grid text for :func:`parse_grid`.
+    lmax : int, optional
+        Truncate the coefficients to this degree first.
+
+    Returns
+    -------
+    xarray.DataArray
+        Named after the analysed field, with its attributes, the extra
+        dimensions of ``ds`` and the target's latitude/longitude coordinates.
+    """
+    ds = as_coefficients(ds)
+    conv = read_conventions(ds)
+    info, lat, lon = synthesis_target(like)
+    l_file = ds.sizes["degree"] - 1
+    if lmax is not None and not 0 <= int(lmax) <= l_file:
+        raise ValueError(f"lmax {lmax} is outside the coefficients' range 0..{l_file}")
+    ds = scaleout.whole_fields(ds, ("degree", "order"))
+    out = xr.apply_ufunc(
+        scaleout.task_function(_synthesize_block, ds), ds[COS], ds[SIN],
+        input_core_dims=[["degree", "order"], ["degree", "order"]],
+        output_core_dims=[[info.lat_dim, info.lon_dim]],
+        kwargs={"conv": conv, "lmax": None if lmax is None else int(lmax), "info": info},
+        dask="parallelized", output_dtypes=[np.float64],
+        dask_gufunc_kwargs={"output_sizes": {info.lat_dim: len(lat), info.lon_dim: len(lon)}},
+        keep_attrs=False,
+    )
+    out = out.assign_coords({info.lat_name: lat, info.lon_name: lon})
+    out.name = ds.attrs.get("field_name")
+    out.attrs = _source_attributes(ds)
+    return out
+
+
+def _smoothing_weights(lmax: int, gaussian_km: float | None, cap_deg: float | None,
+                       band: tuple[int, int] | None, weights: Sequence[float] | None,
+                       planet_radius_km: float | None) -> tuple[np.ndarray, str]:
+    """Per-degree weights 0..lmax of the one smoothing asked for, and a line saying what it is."""
+    from sphex import filters
+
+    chosen = [x is not None for x in (gaussian_km, cap_deg, band, weights)]
+    if sum(chosen) != 1:
+        raise ValueError("give exactly one of gaussian_km, cap_deg, band or weights")
+    if gaussian_km is not None:
+        if planet_radius_km is None:
+            raise ValueError("gaussian smoothing needs planet_radius_km (the sphere's radius in km)")
+        if not gaussian_km > 0:
+            raise ValueError(f"gaussian radius must be positive, not {gaussian_km}")
+        w = filters.gaussian(float(gaussian_km), lmax, float(planet_radius_km))
+        how = f"Gaussian smoothing, half-weight radius {gaussian_km:g} km on a {planet_radius_km:g} km sphere"
+    elif cap_deg is not None:
+        if not 0 < cap_deg <= 180:
+            raise ValueError(f"cap radius must be in (0, 180] degrees, not {cap_deg}")
+        w = filters.cap(float(cap_deg), lmax)
+        how = f"spherical-cap averaging, radius {cap_deg:g} deg"
+    elif band is not None:
+        l1, l2 = (int(b) for b in band)
+        if not 0 <= l1 < l2:
+            raise ValueError(f"band needs 0 <= L1 < L2, not {l1}:{l2}")
+        w = filters.taper(l1, l2)
+        how = f"degree taper, full weight to degree {l1}, zero from degree {l2}"
+    else:
+        w = np.asarray(weights, dtype=np.float64)
+        how = "user-supplied per-degree weights"
+    w = np.asarray(w, dtype=np.float64)
+    if w.size < lmax + 1:
+        w = np.concatenate([w, np.zeros(lmax + 1 - w.size)])
+    return w[: lmax + 1], how
+
+
+def _resynthesize_block(values: np.ndarray, pos: np.ndarray | None = None, *, info: GridInfo,
+                        lmax: int, w: np.ndarray | None, out_info: GridInfo | None = None,
+                        where: FieldNames | None = None) -> np.ndarray:
+    """Analyse a block of fields, weight each degree by ``w`` (if given) and synthesise
+    on ``out_info``'s grid (default the same grid)."""
+    from sphex.transform import analyze as _analyze, synthesize as _synthesize
+
+    v = np.ascontiguousarray(np.asarray(values)[..., list(info.take)], dtype=np.float64)
+    refuse_missing_in_block(v.reshape((-1,) + v.shape[-2:]), 0, pos, v.shape[:-2], where)
+    h = _analyze(v, info.grid, lmax=lmax)
+    if w is not None:
+        h = h.filter(w)
+    target = out_info or info
+    return np.asarray(_synthesize(h, target.grid))[..., list(target.put)]
+
+
+def smooth(da: xr.DataArray, *, gaussian_km: float | None = None, cap_deg: float | None = None,
+           band: tuple[int, int] | None = None, weights: Sequence[float] | None = None,
+           planet_radius_km: float | None = None, lmax: int | None = None) -> xr.DataArray:
+    """Isotropic smoothing on the sphere, on the field's own grid.
+
+    Exactly one of ``gaussian_km``, ``cap_deg``, ``band`` or ``weights``.
+
+    Parameters
+    ----------
+    da : xarray.DataArray
+        Gridded field(s).
+    gaussian_km : float, optional
+        Gaussian kernel whose weight is 1/2 at this distance (km), on a sphere
+        of ``planet_radius_km``.
+    cap_deg : float, optional
+        Average over spherical caps of this angular radius.
+    band : (int, int), optional
+        ``(L1, L2)``: keep degrees up to L1, roll off smoothly to zero at L2.
+    weights : sequence of float, optional
+        Per-degree weights W_l (missing degrees get 0).
+    planet_radius_km : float, optional
+        Radius of the sphere, for ``gaussian_km``.
+    lmax : int, optional
+        Degree limit of the analysis (default the grid's exact limit).
+
+    Returns
+    -------
+    xarray.DataArray
+        Same shape, coordinates and attributes, float64; a ``history`` note says
+        what was done.
+    """
+    da = _single_dataarray(da)
+    info = find_grid(da)
+    where = f"variable {da.name!r}" if da.name is not None else "the field"
+    lmax = check_lmax(lmax, info.grid, False, where)
+    da, pos, names = _prepare_fields(da, info)
+    w, how = _smoothing_weights(lmax, gaussian_km, cap_deg, band, weights, planet_radius_km)
+    out = xr.apply_ufunc(
+        scaleout.task_function(_resynthesize_block, da), da, pos,
+        input_core_dims=[[info.lat_dim, info.lon_dim], []],
+        output_core_dims=[[info.lat_dim, info.lon_dim]],
+        kwargs={"info": info, "lmax": lmax, "w": w, "where": names},
+        dask="parallelized", output_dtypes=[np.float64], keep_attrs=True,
+    )
+    out = out.transpose(*da.dims)
+    out.attrs = dict(da.attrs)
+    out.attrs["history"] = append_history(da.attrs, f"sphex smooth: {how}, degrees 0..{lmax}")
+    return out
+
+
+def append_history(attrs: Mapping[str, Any], line: str) -> str:
+    """The ``history`` attribute of ``attrs`` with ``line`` added at the end."""
+    old = str(attrs.get("history", "")).strip()
+    return f"{old}\n{line}" if old else line
+
+
+def regrid(da: xr.DataArray, like: Any, *, lmax: int | None = None) -> xr.DataArray:
+    """Spectral regridding of a field onto another grid.
+
+    Parameters
+    ----------
+    da : xarray.DataArray
+        Gridded field(s).
+    like : DataArray, Dataset, Grid or str
+        Target grid (see :func:`synthesize`).
+    lmax : int, optional
+        Degree limit; default the smaller exact limit of the two grids.
+
+    Returns
+    -------
+    xarray.DataArray
+        On the target grid, with the non-spatial coordinates and attributes of
+        ``da``.
+    """
+    da = _single_dataarray(da)
+    info = find_grid(da)
+    tinfo, lat, lon = synthesis_target(like)
+    where = f"variable {da.name!r}" if da.name is not None else "the field"
+    if lmax is None:
+        lmax = min(info.grid.lmax_exact, tinfo.grid.lmax_exact)
+    lmax = check_lmax(lmax, info.grid, False, where)
+    da, pos, names = _prepare_fields(da, info)
+    src_dims = {info.lat_dim, info.lon_dim}
+    tmp_lat, tmp_lon = "__sphex_lat__", "__sphex_lon__"
+    out = xr.apply_ufunc(
+        scaleout.task_function(_resynthesize_block, da), da, pos,
+        input_core_dims=[[info.lat_dim, info.lon_dim], []],
+        output_core_dims=[[tmp_lat, tmp_lon]],
+        kwargs={"info": info, "lmax": lmax, "w": None, "out_info": tinfo, "where": names},
+        dask="parallelized", output_dtypes=[np.float64],
+        dask_gufunc_kwargs={"output_sizes": {tmp_lat: len(lat), tmp_lon: len(lon)}},
+        keep_attrs=True,
+    )
+    out = out.drop_vars([k for k, v in out.coords.items() if set(v.dims) & src_dims], errors="ignore")
+    out = out.rename({tmp_lat: tinfo.lat_dim, tmp_lon: tinfo.lon_dim})
+    out = out.assign_coords({tinfo.lat_name: lat, tinfo.lon_name: lon})
+    out.name = da.name
+    out.attrs = dict(da.attrs)
+    out.attrs["history"] = append_history(
+        da.attrs, f"sphex regrid: {info.grid.kind} {info.grid.nlat}x{info.grid.nlon} -> "
+        f"{tinfo.grid.kind} {tinfo.grid.nlat}x{tinfo.grid.nlon}, degrees 0..{lmax}")
+    return out
+
+
+# ----------------------------------------------------------------------------
+# Spectra
+# ----------------------------------------------------------------------------
+_SPECTRUM_KINDS = {
+    # kind: (function in sphex.spectra, squared units?, description)
+    "power": ("degree_power", True,
+              "degree power of {f} (contribution of each degree to the area mean of the square)"),
+    "per_coefficient": ("power_per_coefficient", True,
+                        "power per coefficient of {f} (degree power / (2l+1))"),
+    "rms": ("degree_rms", False, "degree RMS amplitude of {f} (square root of the degree power)"),
+    "cumulative": ("cumulative_power", True, "cumulative degree power of {f} (degrees 0..l)"),
+}
+
+
+def _spectrum_block(c: np.ndarray, s: np.ndarray, *, conv: Mapping[str, Any],
+                    func: str) -> np.ndarray:
+    """``sphex.spectra.<func>`` of a block of real-form coefficients (one apply_ufunc call)."""
+    from sphex import spectra
+
+    return np.asarray(getattr(spectra, func)(harmonics_from_cos_sin(c, s, conv)), dtype=np.float64)
+
+
+def _squared_units(units: str) -> str:
+    """``m`` -> ``m^2``; ``m s-1`` -> ``(m s-1)^2``."""
+    return f"({units})^2" if any(ch in units for ch in " /*.^") else f"{units}^2"
+
+
+def degree_power(obj: xr.Dataset | xr.DataArray | Harmonics, lmax: int | None = None, *,
+                 kind: str = "power") -> xr.DataArray:
+    """Degree spectrum as a DataArray over ``degree`` (and any extra dims), with units.
+
+    Parameters
+    ----------
+    obj : coefficient Dataset, Harmonics or gridded DataArray
+        A gridded field is analysed first (up to ``lmax``).
+    lmax : int, optional
+        Degree limit for a gridded input.
+    kind : {"power", "per_coefficient", "rms", "cumulative"}
+        ``"power"``: the contribution of each degree to the area mean of f^2
+        (it sums to that mean; Parseval), from
+        :func:`sphex.spectra.degree_power`; ``"per_coefficient"``: that divided
+        by 2l+1; ``"rms"``: its square root; ``"cumulative"``: its running sum.
+
+    Returns
+    -------
+    xarray.DataArray
+        In the field's units squared (units for ``"rms"``).
+    """
+    if kind not in _SPECTRUM_KINDS:
+        raise ValueError(f"unknown spectrum kind {kind!r}; choose one of {', '.join(_SPECTRUM_KINDS)}")
+    func, squared, text = _SPECTRUM_KINDS[kind]
+    if isinstance(obj, xr.DataArray):
+        obj = analyze(obj, lmax)
+    ds = as_coefficients(obj)
+    conv = read_conventions(ds)
+    p = xr.apply_ufunc(
+        _spectrum_block, ds[COS], ds[SIN],
+        input_core_dims=[["degree", "order"], ["degree", "order"]],
+        output_core_dims=[["degree"]], kwargs={"conv": conv, "func": func},
+        dask="parallelized", output_dtypes=[np.float64], keep_attrs=False,
+    )
+    p = p.assign_coords(degree=ds["degree"])
+    units = conv["units"]
+    p.name = "degree_power" if kind == "power" else f"degree_{kind}"
+    p.attrs = {"long_name": text.format(f=ds.attrs.get("field_name", "field"))}
+    if units:
+        p.attrs["units"] = _squared_units(units) if squared else units
+    return p

@@ -1,0 +1,28 @@
+"""Checks of the benchmark's measuring tools (sphex.bench); no timing."""
+from __future__ import annotations
+
+import numpy as np
+import xarray as xr
+
+import sphex
+import sphex.xr as sxr
+
+
+def test_benchmark_reads_the_child_peak_memory_not_the_parent(tmp_path):
+    import sys
+
+    from sphex.bench import scaleout
+
+    ballast = np.ones(2**26)  # 512 MiB in this process: must not show in the child's figure
+    small = scaleout._peak_rss([sys.executable, "-S", "-c", "pass"])
+    big = scaleout._peak_rss([sys.executable, "-c",
+                              "import numpy as np; x = np.ones(2**25); x += 1"])  # 256 MiB
+    assert ballast[-1] == 1.0
+    assert small["exit"] == 0 and small["peak_rss_bytes"] < 64 * 2**20
+    assert 256 * 2**20 < big["peak_rss_bytes"] < 512 * 2**20
+    info = scaleout.make_series(tmp_path / "s.nc", nbytes=3e6, lmax=31)
+    assert info["fields"] == int(np.ceil(3e6 / (32 * 64 * 8)))
+    assert info["file_bytes"] >= info["data_bytes"]
+    with xr.open_dataset(tmp_path / "s.nc") as ds:
+        assert sxr.find_grid(ds["field"]).grid == sphex.Grid.gauss(31)
+        assert ds["field"].shape == (info["fields"], 32, 64)

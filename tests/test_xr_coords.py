@@ -1,0 +1,109 @@
+"""Checks of grid detection from coordinates (sphex.xr.coords): names, CF attributes,
+longitude origin and order, seam columns, grid texts and degree limits."""
+from __future__ import annotations
+
+from _sample_fields import band_limited_field, field_dataarray
+
+import numpy as np
+import pytest
+import xarray as xr
+
+import sphex
+import sphex.xr as sxr
+
+
+def test_find_grid_by_name_units_and_standard_name():
+    lat = 90 - 180 * (np.arange(18) + 0.5) / 18
+    lon = np.arange(36) * 10.0
+    by_name = field_dataarray(lat, lon, dims=("latitude", "x"))
+    info = sxr.find_grid(by_name)
+    assert (info.lat_dim, info.lon_dim) == ("latitude", "x")
+    assert info.grid.kind == "equiangular-cells" and info.grid.lmax_exact == 8
+    # names that mean nothing, recognised through CF units
+    by_units = xr.DataArray(band_limited_field(lat, lon), dims=("rows", "cols"),
+                            coords={"rows": ("rows", lat, {"units": "degrees_north"}),
+                                    "cols": ("cols", lon, {"units": "degree_east"})})
+    assert sxr.find_grid(by_units).lat_dim == "rows"
+    # a non-dimension coordinate carrying a CF standard_name
+    by_std = xr.DataArray(band_limited_field(lat, lon), dims=("j", "i"),
+                          coords={"phi": ("j", lat, {"standard_name": "latitude"}),
+                                  "lam": ("i", lon, {"standard_name": "longitude"})})
+    info = sxr.find_grid(by_std)
+    assert (info.lat_name, info.lon_name, info.lat_dim) == ("phi", "lam", "j")
+
+
+def test_missing_coordinate_and_regional_grid_are_explained():
+    da = xr.DataArray(np.zeros((4, 8)), dims=("a", "b"), name="v")
+    with pytest.raises(ValueError, match="no latitude and longitude coordinate"):
+        sxr.find_grid(da)
+    lat = np.linspace(20, 60, 21)        # a regional box
+    lon = np.arange(36) * 10.0
+    with pytest.raises(ValueError, match="not global"):
+        sxr.find_grid(field_dataarray(lat, lon))
+    with pytest.raises(ValueError, match="swapped"):
+        sxr.find_grid(field_dataarray(np.linspace(-90, 180, 10), lon))
+
+
+def test_seam_column_descending_and_shifted_longitudes_give_one_answer():
+    lat = sphex.Grid.gauss(7).lat
+    lon = np.arange(16) * 22.5
+    ref = sxr.analyze(field_dataarray(lat, lon))
+    # (a) 0..360 with the seam column repeated
+    lon_seam = np.append(lon, 360.0)
+    seam = sxr.analyze(field_dataarray(lat, lon_seam))
+    # (b) origin at -180 (same field, longitudes written -180..157.5)
+    shifted = sxr.analyze(field_dataarray(lat, lon - 180.0))
+    # (c) longitudes decreasing
+    desc = sxr.analyze(field_dataarray(lat, lon[::-1]))
+    for other in (seam, shifted, desc):
+        np.testing.assert_allclose(other[sxr.COS], ref[sxr.COS], atol=1e-13)
+        np.testing.assert_allclose(other[sxr.SIN], ref[sxr.SIN], atol=1e-13)
+    # synthesis onto the seam grid restores the repeated column
+    back = sxr.synthesize(seam, like=field_dataarray(lat, lon_seam))
+    assert back.sizes["lon"] == 17
+    np.testing.assert_array_equal(back.values[:, -1], back.values[:, 0])
+    np.testing.assert_allclose(back.values, band_limited_field(lat, lon_seam), atol=1e-12)
+
+
+def test_coefficients_refer_to_the_zero_meridian():
+    # f = cos(lat) cos(lon - 30 deg) = cos30 cos(lat)cos(lon) + sin30 cos(lat)sin(lon)
+    # (angle-difference identity; common practice), so S11 / C11 = tan(30 deg)
+    # whatever longitude the grid starts at.
+    lat = sphex.Grid.gauss(5).lat
+    for lon0 in (0.0, -180.0, 7.5):
+        lon = lon0 + np.arange(12) * 30.0
+        f = np.cos(np.deg2rad(lat))[:, None] * np.cos(np.deg2rad(lon - 30.0))[None, :]
+        ds = sxr.analyze(xr.DataArray(f, dims=("lat", "lon"), coords={"lat": lat, "lon": lon}))
+        c11, s11 = float(ds[sxr.COS][1, 1]), float(ds[sxr.SIN][1, 1])
+        assert s11 / c11 == pytest.approx(np.tan(np.deg2rad(30.0)), rel=1e-12)
+
+
+def test_parse_grid_and_lmax_errors():
+    assert sxr.parse_grid("gauss:31").shape == (32, 64)
+    assert sxr.parse_grid("equiangular:91x180:poles").lmax_exact == 45
+    for bad in ("gauss", "gauss:-1", "equiangular:10:poles", "equiangular:10x20:rings", "hexagons:4"):
+        with pytest.raises(ValueError, match="gauss:LMAX|layout"):
+            sxr.parse_grid(bad)
+    g = sphex.Grid.gauss(5)
+    da = xr.DataArray(band_limited_field(g.lat, g.lon), dims=("lat", "lon"), coords={"lat": g.lat, "lon": g.lon})
+    with pytest.raises(ValueError, match="exact limit 5"):
+        sxr.analyze(da, lmax=6)
+    with pytest.raises(ValueError, match="unknown normalisation"):
+        sxr.analyze(da, norm="fully")
+    with pytest.raises(ValueError, match="'ortho' is no longer accepted: use 'orthonormal'"):
+        sxr.analyze(da, norm='ortho')
+    bad = da.copy()
+    bad[0, 0] = np.nan
+    with pytest.raises(ValueError, match="1 missing"):
+        sxr.analyze(bad)
+
+
+def test_dataset_with_two_grids_takes_the_global_one():
+    ds = xr.Dataset(
+        {"box": (("y", "x"), np.zeros((5, 72))), "t": (("lat", "lon"), np.zeros((90, 360)))},
+        coords={"y": ("y", np.linspace(30, 50, 5), {"units": "degrees_north"}),
+                "x": ("x", np.arange(72) * 5.0, {"units": "degrees_east"}),
+                "lat": ("lat", 89 - 2.0 * np.arange(90), {"units": "degrees_north"}),
+                "lon": ("lon", np.arange(360.0), {"units": "degrees_east"})})
+    info = sxr.find_grid(ds)
+    assert (info.lat_dim, info.lon_dim, info.grid.shape) == ("lat", "lon", (90, 360))

@@ -1,0 +1,161 @@
+"""Checks of the field adapters (sphex.xr.fields, sphex.xr.missing, sphex.xr.accessors):
+coordinates and attributes kept, spectra, smoothing, regridding, missing values, dask input."""
+from __future__ import annotations
+
+from _sample_fields import random_harmonics, band_limited_field
+
+import numpy as np
+import pytest
+import xarray as xr
+
+import sphex
+import sphex.xr as sxr
+from sphex import filters
+from sphex.spectra import degree_power
+
+
+def test_analyze_synthesize_keeps_coordinates_attributes_and_extra_dims(rng):
+    lmax = 12
+    grid = sphex.Grid.equiangular(26, 52, "cells")       # exact to degree 12
+    h = random_harmonics(rng, lmax, batch=(3, 2))
+    values = sphex.synthesize(h, grid)
+    lat = np.asarray(grid.lat)[::-1]                       # store south to north
+    values = values[..., ::-1, :]
+    time = np.array(["2001-01-01", "2001-02-01", "2001-03-01"], dtype="datetime64[ns]")
+    da = xr.DataArray(values, dims=("time", "member", "lat", "lon"),
+                      coords={"time": time, "member": ["a", "b"], "lat": lat, "lon": grid.lon,
+                              "season": ("time", ["w", "w", "s"]), "height": 2.0},
+                      name="tas", attrs={"units": "K", "long_name": "air temperature"})
+    ds = sxr.analyze(da)
+    assert ds[sxr.COS].dims == ("time", "member", "degree", "order")
+    assert ds.attrs["lmax"] == lmax and ds.attrs["units"] == "K"
+    assert ds.attrs["field_long_name"] == "air temperature"
+    np.testing.assert_array_equal(ds["season"].values, ["w", "w", "s"])
+    assert float(ds["height"]) == 2.0
+    back = sxr.synthesize(ds, like=da)
+    assert back.dims == da.dims and back.name == "tas" and back.attrs["units"] == "K"
+    np.testing.assert_array_equal(back["lat"].values, lat)
+    np.testing.assert_array_equal(back["time"].values, time)
+    np.testing.assert_allclose(back.values, values, atol=1e-12)
+    # the cos/sin variables are the Harmonics' real form
+    c, s = h.cos_sin()
+    np.testing.assert_allclose(ds[sxr.COS].values, c, atol=1e-12)
+    np.testing.assert_allclose(ds[sxr.SIN].values, s, atol=1e-12)
+
+
+def test_degree_power_dataarray_sums_to_area_mean_square(rng):
+    grid = sphex.Grid.equiangular(33, 64, "poles")      # exact to degree 16
+    h = random_harmonics(rng, 16, batch=(2,))
+    v = sphex.synthesize(h, grid)
+    da = xr.DataArray(v, dims=("t", "lat", "lon"), coords={"lat": grid.lat, "lon": grid.lon},
+                      attrs={"units": "K"}, name="T")
+    p = sxr.degree_power(da)
+    assert p.dims == ("t", "degree") and p.attrs["units"] == "K^2"
+    # area mean of f^2 by an independent quadrature: numpy Gauss-Legendre in
+    # x = cos(colat) and equally spaced longitudes (numpy.polynomial.legendre.leggauss)
+    xg, wg = np.polynomial.legendre.leggauss(40)
+    fine = sphex.Grid.gauss(39)          # rows north to south: x = cos(colat) descending
+    np.testing.assert_allclose(np.cos(np.asarray(fine.colat)), xg[::-1], atol=1e-14)
+    vals = sphex.synthesize(h, fine)     # f at the leggauss nodes, 80 equally spaced longitudes
+    mean_sq = (vals ** 2).mean(axis=-1) @ wg[::-1] / 2.0
+    np.testing.assert_allclose(p.sum("degree").values, mean_sq, rtol=1e-12)
+    # the other kinds follow from the power by their definitions
+    rms = sxr.degree_power(da, kind="rms")
+    assert rms.attrs["units"] == "K"
+    np.testing.assert_allclose(rms.values ** 2, p.values, rtol=1e-12)
+    per = sxr.degree_power(da, kind="per_coefficient")
+    np.testing.assert_allclose(per.values * (2 * np.arange(17) + 1), p.values, rtol=1e-12)
+    cum = sxr.degree_power(da, kind="cumulative")
+    np.testing.assert_allclose(cum.values, np.cumsum(p.values, axis=-1), rtol=1e-12)
+
+
+def test_smooth_matches_filtering_by_hand_and_keeps_the_grid(rng):
+    grid = sphex.Grid.gauss(20)
+    h = random_harmonics(rng, 20)
+    da = xr.DataArray(sphex.synthesize(h, grid), dims=("lat", "lon"),
+                      coords={"lat": grid.lat, "lon": grid.lon}, name="g", attrs={"units": "mGal"})
+    out = sxr.smooth(da, gaussian_km=500.0, planet_radius_km=6371.0)
+    w = filters.gaussian(500.0, 20, 6371.0)
+    expect = sphex.synthesize(h.filter(w), grid)
+    np.testing.assert_allclose(out.values, expect, atol=1e-12)
+    assert out.dims == da.dims and out.attrs["units"] == "mGal" and "Gaussian" in out.attrs["history"]
+    # a taper that starts above the field's top degree changes nothing
+    same = sxr.smooth(da, band=(20, 30))
+    np.testing.assert_allclose(same.values, da.values, atol=1e-12)
+    with pytest.raises(ValueError, match="exactly one"):
+        sxr.smooth(da, gaussian_km=100.0, cap_deg=2.0, planet_radius_km=6371.0)
+
+
+def test_regrid_between_grid_kinds_reproduces_a_band_limited_field():
+    src = sphex.Grid.gauss(12)
+    da = xr.DataArray(band_limited_field(src.lat, src.lon), dims=("lat", "lon"),
+                      coords={"lat": src.lat, "lon": src.lon}, name="f")
+    out = sxr.regrid(da, "equiangular:19x40:poles")
+    tgt = sphex.Grid.equiangular(19, 40, "poles")
+    np.testing.assert_allclose(out.values, band_limited_field(tgt.lat, tgt.lon), atol=1e-12)
+    np.testing.assert_array_equal(out["lat"].values, tgt.lat)
+    assert out["lon"].attrs["units"] == "degrees_east"
+
+
+def _holey(rng):
+    """(member, time, lat, lon) fields with NaN or inf in member 1 at times 2 and 5..10."""
+    grid = sphex.Grid.gauss(6)
+    v = sphex.synthesize(random_harmonics(rng, 6, batch=(2, 12)), grid)
+    v[1, 2, 0, 0] = np.nan
+    v[1, 5:11, 3, 3] = np.inf
+    time = np.arange("2040-01-01", "2040-01-13", dtype="datetime64[D]")
+    return xr.DataArray(v, dims=("member", "time", "lat", "lon"), name="ssh",
+                        coords={"time": time, "lat": grid.lat, "lon": grid.lon})
+
+
+def test_missing_values_name_the_fields_in_memory(rng):
+    da = _holey(rng)
+    msg = r"'ssh' has 7 missing values \(NaN or inf\), in member index 1, time=2040-01-03 " \
+          r"\(index 2\); member index 1, time=2040-01-06 \(index 5\);.* and 2 more fields"
+    for call in (sxr.analyze, lambda d: sxr.smooth(d, band=(2, 4)),
+                 lambda d: sxr.regrid(d, sphex.Grid.gauss(4))):
+        with pytest.raises(ValueError, match=msg):
+            call(da)
+
+
+def test_missing_values_name_the_fields_from_dask_tasks(rng):
+    # each task sees only its own chunk; the positions it is given name the global step
+    pytest.importorskip("dask")
+    lazy = _holey(rng).chunk({"time": 4, "member": 1})
+    first = lazy.isel(time=slice(0, 5))  # one bad field, in the task of times 0..3 of member 1
+    with pytest.raises(ValueError, match=r"'ssh' has 1 missing value \(NaN or inf\), in "
+                                         r"member index 1, time=2040-01-03 \(index 2\);"):
+        sxr.analyze(first).compute()
+    later = lazy.isel(time=slice(4, 8), member=1)  # one task, bad at its times 1..3
+    with pytest.raises(ValueError, match=r"in time=2040-01-06 \(index 1\); time=2040-01-07 "
+                                         r"\(index 2\); time=2040-01-08 \(index 3\);"):
+        sxr.smooth(later, band=(2, 4)).compute()
+    ok = lazy.isel(member=0)
+    np.testing.assert_allclose(sxr.analyze(ok)[sxr.COS].values,
+                               sxr.analyze(ok.load())[sxr.COS].values, atol=1e-14)
+
+
+def test_dask_backed_input_stays_lazy_and_agrees(rng):
+    pytest.importorskip("dask")
+    grid = sphex.Grid.gauss(8)
+    v = sphex.synthesize(random_harmonics(rng, 8, batch=(4,)), grid)
+    da = xr.DataArray(v, dims=("time", "lat", "lon"), coords={"lat": grid.lat, "lon": grid.lon})
+    lazy = sxr.analyze(da.chunk({"time": 2}))
+    assert lazy[sxr.COS].chunks is not None
+    eager = sxr.analyze(da)
+    np.testing.assert_allclose(lazy[sxr.COS].values, eager[sxr.COS].values, atol=1e-14)
+    back = sxr.synthesize(lazy, like=da)
+    assert back.chunks is not None
+    np.testing.assert_allclose(back.values, v, atol=1e-12)
+
+
+def test_accessors_call_the_functions(rng):
+    grid = sphex.Grid.gauss(6)
+    da = xr.DataArray(band_limited_field(grid.lat, grid.lon), dims=("lat", "lon"),
+                      coords={"lat": grid.lat, "lon": grid.lon}, name="f")
+    ds = da.sphex.analyze()
+    assert da.sphex.grid == grid
+    xr.testing.assert_identical(ds, sxr.analyze(da))
+    np.testing.assert_allclose(ds.sphex.synthesize(da).values, da.values, atol=1e-12)
+    h = ds.sphex.to_harmonics()
+    np.testing.assert_allclose(degree_power(h), ds.sphex.degree_power().values, rtol=1e-14)
