@@ -133,10 +133,7 @@ class CapWindows:
         ``index``: window indices (an int or a sequence; all windows by
         default).  The batch axis comes first, one entry per index.
         """
-        total = self.concentration.size
-        idx = np.arange(total) if index is None else np.atleast_1d(np.asarray(index))
-        if idx.ndim != 1 or idx.dtype.kind not in "iu" or np.any((idx < -total) | (idx >= total)):
-            raise ValueError(f"index must be window numbers from 0 to {total - 1}, got {index!r}")
+        idx = self._indices(index)
         L1 = self.lwin + 1
         C = np.zeros((idx.size, L1, L1))
         S = np.zeros((idx.size, L1, L1))
@@ -147,6 +144,52 @@ class CapWindows:
             else:
                 S[k, :, -m] = self.coefficients[w]
         return Harmonics.from_cos_sin(C, S, norm="orthonormal", condon_shortley=False)
+
+    def values(self, colat, lon, index=None) -> np.ndarray:
+        """The windows on a latitude-longitude product grid (cap centred on the north pole).
+
+        Parameters
+        ----------
+        colat : array_like
+            Colatitudes in radians, 1-D.
+        lon : array_like
+            Longitudes in degrees, 1-D.
+        index : int or sequence of int, optional
+            Windows to evaluate (all by default).
+
+        Returns
+        -------
+        ndarray, shape ``(len(index), len(colat), len(lon))``
+            ``g(theta)`` for zonal windows, ``sqrt(2) g(theta) cos(m phi)`` or
+            ``sqrt(2) g(theta) sin(m phi)`` otherwise, with
+            ``g = sum_l g_l Lambda_lm`` (orthonormal): each window has unit
+            integral of its square over the sphere.  Computed from the
+            Legendre functions of each order, without a transform.
+        """
+        idx = self._indices(index)
+        colat = np.atleast_1d(np.asarray(colat, dtype=float))
+        phi = np.radians(np.atleast_1d(np.asarray(lon, dtype=float)))
+        out = np.empty((idx.size, colat.size, phi.size))
+        profiles: dict[int, np.ndarray] = {}
+        for k, w in enumerate(idx):
+            m = int(self.order[w])
+            if abs(m) not in profiles:
+                profiles[abs(m)] = for_order(abs(m), self.lwin, colat, norm="orthonormal",
+                                             condon_shortley=False)
+            g = self.coefficients[w, abs(m):] @ profiles[abs(m)]
+            if m == 0:
+                out[k] = g[:, None]
+            else:
+                turn = np.cos(m * phi) if m > 0 else np.sin(-m * phi)
+                np.multiply(math.sqrt(2.0) * g[:, None], turn[None, :], out=out[k])
+        return out
+
+    def _indices(self, index) -> np.ndarray:
+        total = self.concentration.size
+        idx = np.arange(total) if index is None else np.atleast_1d(np.asarray(index))
+        if idx.ndim != 1 or idx.dtype.kind not in "iu" or np.any((idx < -total) | (idx >= total)):
+            raise ValueError(f"index must be window numbers from 0 to {total - 1}, got {index!r}")
+        return idx
 
     def __repr__(self):
         return (f"CapWindows(cap_radius_deg={self.cap_radius_deg:g}, lwin={self.lwin}, "

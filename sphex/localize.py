@@ -79,7 +79,7 @@ __all__ = [
     "squared_3j_zero_orders",
 ]
 
-PRODUCT_BYTES = 1 << 27  # grid values of window products held at once (128 MB)
+PRODUCT_BYTES = 1 << 25  # grid values of windowed fields held at once (32 MB)
 
 
 # ---------------------------------------------------------------------------
@@ -407,7 +407,7 @@ def _windowed_spectra(fields: list[Harmonics], lat: float, lon: float, windows: 
     out = [np.empty((index.size,) + batch + (lmax + 1,)) for _ in pairs]
     for start in range(0, index.size, chunk):
         sel = index[start:start + chunk]
-        taper = synthesize(windows.harmonics(sel), grid) * scale
+        taper = windows.values(grid.colat, grid.lon, sel) * scale
         taper = taper.reshape((sel.size,) + (1,) * len(batch) + grid.shape)
         spectra = [analyze(taper * v, grid, lmax=lmax) for v in values]
         for p, (a, b) in enumerate(pairs):

@@ -48,20 +48,6 @@ def window_profile(windows, k: int, colat: np.ndarray) -> np.ndarray:
     return windows.coefficients[k, m:] @ lam
 
 
-def window_values(windows, colat: np.ndarray, lon_rad: np.ndarray) -> np.ndarray:
-    """All windows on a (colat, lon) product grid: (n, ncolat, nlon); real-form factor sqrt(2) for m != 0."""
-    out = np.empty((windows.concentration.size, colat.size, lon_rad.size))
-    for k, m in enumerate(windows.order):
-        g = window_profile(windows, k, colat)
-        if m == 0:
-            out[k] = g[:, None]
-        elif m > 0:
-            out[k] = math.sqrt(2.0) * g[:, None] * np.cos(m * lon_rad)[None, :]
-        else:
-            out[k] = math.sqrt(2.0) * g[:, None] * np.sin(-m * lon_rad)[None, :]
-    return out
-
-
 def scipy_lambda(l: int, m: int, x: float) -> float:
     """Orthonormal Lambda_lm at x = cos(theta) from scipy.special.sph_legendre_p (its Condon-Shortley
     sign is irrelevant here: only products of equal orders are integrated)."""
@@ -106,14 +92,13 @@ def test_windows_orthonormal_on_the_sphere_and_orthogonal_over_the_cap_sphex_qua
     gram = (values * area).reshape(n, -1) @ values.reshape(n, -1).T
     assert grid.integrate(values[0] * values[0]) == pytest.approx(1.0, abs=1e-13)
     np.testing.assert_allclose(gram, np.eye(n), rtol=0, atol=1e-12)
-    # the same values from the window profiles (sphex.legendre) agree with the synthesis
-    lon = np.radians(grid.lon)
-    np.testing.assert_allclose(window_values(w, grid.colat, lon), values, rtol=0, atol=1e-12)
+    # the values from the window profiles (sphex.legendre, no transform) agree with the synthesis
+    np.testing.assert_allclose(w.values(grid.colat, grid.lon), values, rtol=0, atol=1e-12)
     colat, weights = gauss_nodes(lwin + 1)
     x0 = math.cos(math.radians(cap))
     xc = x0 + (1 - x0) * (np.cos(colat) + 1) / 2
-    on_cap = window_values(w, np.arccos(xc), lon)
-    cap_area = (2 * np.pi / lon.size) * (weights * (1 - x0) / 2)[:, None] * np.ones(lon.size)
+    on_cap = w.values(np.arccos(xc), grid.lon)
+    cap_area = (2 * np.pi / grid.nlon) * (weights * (1 - x0) / 2)[:, None] * np.ones(grid.nlon)
     cap_gram = (on_cap * cap_area).reshape(n, -1) @ on_cap.reshape(n, -1).T
     np.testing.assert_allclose(cap_gram, np.diag(w.concentration), rtol=0, atol=1e-12)
 
