@@ -34,7 +34,10 @@ and take no part in the sums until they enter plain range.
 
 Vectors indexed by the order are kept in a split layout, even orders first
 and odd orders after them, so that every loop over one parity class is
-contiguous.
+contiguous.  A single field has the making of each row fused with its use;
+for a batch each row is made once and then used for every field.  Loops run
+over array views from index 0, so that numba can drop its negative-index
+checks and LLVM vectorises them.
 """
 from __future__ import annotations
 
@@ -172,26 +175,43 @@ def segment_one(lo, split, end, has_last, p, q, factor, upper, upper2, new, mask
 
 
 @nb.njit(inline="always", fastmath=FASTMATH, **JIT)
-def segment_many(lo, end, has_last, p, q, factor, upper, upper2, new, mask, y, z, yn, s):
-    """As :func:`segment_one` for K fields (y, z: (l + 1, K); yn, s: (K,)); the
-    sums are added to s."""
-    K = s.size
-    for i in range(lo, end):
-        v = p * factor[i] * upper[i] - q * upper2[i]
-        new[i] = v
-        w = v * mask[i]
-        yi = y[i]
-        zi = z[i]
-        for f in range(K):
-            s[f] += w * yi[f]
-            zi[f] += w * yn[f]
+def make_values(p, q, factor, upper, upper2, new):
+    """new = p factor upper - q upper2 on equal-length views."""
+    for k in range(new.size):
+        new[k] = p * factor[k] * upper[k] - q * upper2[k]
+
+
+@nb.njit(inline="always", fastmath=FASTMATH, **JIT)
+def use_values(v, y, z, yn):
+    """Adds v * yn to z and returns the sum of v * y (equal-length views)."""
+    s = 0.0
+    for k in range(v.size):
+        s += v[k] * y[k]
+        z[k] += v[k] * yn
+    return s
+
+
+@nb.njit(inline="always", **JIT)
+def make_segment(lo, split, end, has_last, p, q, factor, upper, upper2, new, mask, used):
+    """Row n's values on indices lo..end (end itself when has_last) into ``new``;
+    from ``split`` on also the values times the mask into ``used``."""
+    last = end + 1 if has_last else end
+    make_values(p, q, factor[lo:last], upper[lo:last], upper2[lo:last], new[lo:last])
+    for k in range(max(lo, split), last):
+        used[k] = new[k] * mask[k]
+
+
+@nb.njit(inline="always", **JIT)
+def use_segment(lo, split, end, has_last, new, used, y, z, yn):
+    """As :func:`segment_one` for a row already made (one field's contiguous y, z)."""
+    stop = min(split, end)
+    s = use_values(new[lo:stop], y[lo:stop], z[lo:stop], yn)
+    begin = max(lo, split)
+    if begin < end:
+        s += use_values(used[begin:end], y[begin:end], z[begin:end], yn)
     if has_last:
-        v = p * factor[end] * upper[end] - q * upper2[end]
-        new[end] = v
-        w = v * mask[end]
-        yi = y[end]
-        for f in range(K):
-            s[f] += w * yi[f]
+        s += (new[end] if end < split else used[end]) * y[end]
+    return s
 
 
 @nb.njit(inline="always", **JIT)
@@ -269,35 +289,33 @@ def quarter_turn_one(l, edge0, twice_m, yre, yim, zre, zim):
 
 @nb.njit(fastmath=FASTMATH, **JIT)
 def quarter_turn_many(l, edge0, twice_m, yre, yim, zre, zim):
-    """As :func:`quarter_turn_one` for K fields; y, z: (l + 1, K)."""
+    """As :func:`quarter_turn_one` for K fields; y, z: (K, l + 1).  Each row is
+    made once and then used for every field."""
     n1 = l + 1
-    K = yre.shape[1]
+    K = yre.shape[0]
     E = l // 2 + 1
     upper = np.empty(n1)
     upper2 = np.empty(n1)
     new = np.empty(n1)
+    used = np.empty(n1)
     mask = np.empty(n1)
     ones = np.ones(n1)
     exponent = np.zeros(n1, dtype=np.int64)
-    s_even = np.empty(K)
-    s_odd = np.empty(K)
     zre[:, :] = 0.0
     zim[:, :] = 0.0
     first = start_rows(l, edge0, upper, upper2, exponent, mask, E)
     for n in range(l, -1, -1):
         p, q, factor = step_coefficients(l, n, twice_m, ones)
         ye, ze, yo, zo, sign_e, sign_o = segment_roles(l, n, yre, yim, zre, zim)
-        end_e, _, end_o, _, n_even = segment_bounds(n, first, E)
+        end_e, split_e, end_o, split_o, n_even = segment_bounds(n, first, E)
         ni = split_index(n, E)
-        s_even[:] = 0.0
-        s_odd[:] = 0.0
-        segment_many(0, end_e, n_even, p, q, factor, upper, upper2, new, mask,
-                     ye, ze, ye[ni], s_even)
-        segment_many(E, end_o, not n_even, p, q, factor, upper, upper2, new, mask,
-                     yo, zo, yo[ni], s_odd)
+        make_segment(0, split_e, end_e, n_even, p, q, factor, upper, upper2, new, mask, used)
+        make_segment(E, split_o, end_o, not n_even, p, q, factor, upper, upper2, new, mask, used)
         for f in range(K):
-            ze[ni, f] += sign_e * s_even[f]
-            zo[ni, f] += sign_o * s_odd[f]
+            se = use_segment(0, split_e, end_e, n_even, new, used, ye[f], ze[f], ye[f, ni])
+            so = use_segment(E, split_o, end_o, not n_even, new, used, yo[f], zo[f], yo[f, ni])
+            ze[f, ni] += sign_e * se
+            zo[f, ni] += sign_o * so
         upper2, upper, new = upper, new, upper2
         if first <= n and (n & 7 == 0 or n == l):
             first = rescale_row(n, upper, upper2, exponent, mask, first, E)
@@ -306,17 +324,17 @@ def quarter_turn_many(l, edge0, twice_m, yre, yim, zre, zim):
 @nb.njit(inline="always", **JIT)
 def load_with_phase(src, l, phase, yre, yim, even_count):
     """y_m = c_m phase_m src_m into the split layout (src: complex (K, >= l + 1);
-    yre, yim: (l + 1, K)); y_0 is real."""
+    yre, yim: (K, l + 1)); y_0 is real."""
     for f in range(src.shape[0]):
         for m in range(l + 1):
             v = src[f, m] * phase[m]
             i = split_index(m, even_count)
             if m == 0:
-                yre[i, f] = v.real
-                yim[i, f] = 0.0
+                yre[f, i] = v.real
+                yim[f, i] = 0.0
             else:
-                yre[i, f] = 2.0 * v.real
-                yim[i, f] = 2.0 * v.imag
+                yre[f, i] = 2.0 * v.real
+                yim[f, i] = 2.0 * v.imag
 
 
 @nb.njit(inline="always", **JIT)
@@ -325,7 +343,7 @@ def gather(zre, zim, l, phase, dst, even_count):
     for f in range(dst.shape[0]):
         for m in range(l + 1):
             i = split_index(m, even_count)
-            v = complex(zre[i, f], zim[i, f]) * phase[m]
+            v = complex(zre[f, i], zim[f, i]) * phase[m]
             if m == 0:
                 dst[f, m] = v.real
             else:
@@ -334,10 +352,9 @@ def gather(zre, zim, l, phase, dst, even_count):
 
 @nb.njit(inline="always", **JIT)
 def quarter_turn(l, edge0, twice_m, yre, yim, zre, zim):
-    """z = Q(y) for y, z of shape (l + 1, K): the single-field kernel when K = 1."""
-    if yre.shape[1] == 1:
-        quarter_turn_one(l, edge0, twice_m, yre.reshape(l + 1), yim.reshape(l + 1),
-                         zre.reshape(l + 1), zim.reshape(l + 1))
+    """z = Q(y) for y, z of shape (K, l + 1): the fused single-field kernel when K = 1."""
+    if yre.shape[0] == 1:
+        quarter_turn_one(l, edge0, twice_m, yre[0], yim[0], zre[0], zim[0])
     else:
         quarter_turn_many(l, edge0, twice_m, yre, yim, zre, zim)
 
@@ -358,10 +375,10 @@ def rotate_degrees(coef, out, seq, edge0, first_phase, middle_phase, last_phase)
         twice_m = np.empty(n1)
         for m in range(n1):
             twice_m[split_index(m, even_count)] = 2.0 * m
-        yre = np.empty((n1, K))
-        yim = np.empty((n1, K))
-        zre = np.empty((n1, K))
-        zim = np.empty((n1, K))
+        yre = np.empty((K, n1))
+        yim = np.empty((K, n1))
+        zre = np.empty((K, n1))
+        zim = np.empty((K, n1))
         middle = np.empty((K, n1), dtype=np.complex128)
         load_with_phase(coef[:, l, :], l, first_phase, yre, yim, even_count)
         quarter_turn(l, edge0[l], twice_m, yre, yim, zre, zim)
