@@ -10,8 +10,11 @@ The numeric core works on plain numpy arrays::
 
 Submodules: :mod:`sphex.grids`, :mod:`sphex.legendre`, :mod:`sphex.transform`,
 :mod:`sphex.harmonics`, :mod:`sphex.spectra`, :mod:`sphex.filters`,
-:mod:`sphex.xr` (xarray and netCDF), :mod:`sphex.plot` (figures).  Names are
-imported on first use, so ``import sphex`` (and ``sphex --help``) stays quick.
+:mod:`sphex.flow` (wind and current fields), :mod:`sphex.models` and
+:mod:`sphex.potential` (gravity and magnetic models), :mod:`sphex.rotation`,
+:mod:`sphex.localize` (localised spectra), :mod:`sphex.xr` (xarray and netCDF),
+:mod:`sphex.plot` (figures).  Names are imported on first use, so
+``import sphex`` (and ``sphex --help``) stays quick.
 """
 from __future__ import annotations
 
@@ -27,8 +30,8 @@ _NAMES = {
     "synthesize_gradient": "sphex.transform",
     "regrid": "sphex.transform",
 }
-_SUBMODULES = ("grids", "legendre", "transform", "harmonics", "spectra", "filters", "xr", "plot",
-               "bench")
+_SUBMODULES = ("grids", "legendre", "transform", "harmonics", "spectra", "filters", "flow",
+               "models", "potential", "rotation", "localize", "xr", "plot", "bench")
 
 __all__ = list(_NAMES) + list(_SUBMODULES)
 

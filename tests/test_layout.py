@@ -30,8 +30,9 @@ import pytest
 
 ROOT = Path(__file__).resolve().parent.parent / "sphex"
 
-CORE = {"grids", "legendre", "harmonics", "transform", "spectra", "filters",
-        "flow", "models", "potential", "points", "rotation", "localize"}
+CORE = {"grids", "legendre", "harmonics", "rings", "transform", "vector_transform", "spectra",
+        "filters", "flow", "models", "normal_field", "potential", "points", "least_squares",
+        "rotation", "concentration", "localize"}
 FORBIDDEN_IN_CORE_EXTERNAL = {"xarray", "matplotlib", "dask", "distributed", "netCDF4"}
 FORBIDDEN_IN_CORE_LAYERS = {"xr", "plot", "cli", "report", "demo", "bench"}
 KERNEL_EXTERNAL = {"numpy", "numba", "llvmlite"}
