@@ -38,6 +38,7 @@ conjugate gradients).
 from __future__ import annotations
 
 import math
+import numbers
 import warnings
 from dataclasses import dataclass, field
 from typing import Callable
@@ -46,9 +47,12 @@ import numpy as np
 import scipy.linalg
 from scipy.sparse.linalg import LinearOperator, cg
 
+from sphex.grids import Grid
 from sphex.harmonics import Harmonics
+from sphex.legendre import check_norm
+from sphex.transform import analyze, synthesize
 
-__all__ = ["IllPosedWarning", "LeastSquaresFit", "RealBasis", "prior_precision",
+__all__ = ["fit_masked", "IllPosedWarning", "LeastSquaresFit", "RealBasis", "prior_precision",
            "solve_cholesky", "solve_conjugate_gradients", "CONDITION_LIMIT"]
 
 # Above this estimate of cond(normal matrix) a fit warns.  The normal equations
@@ -58,6 +62,7 @@ __all__ = ["IllPosedWarning", "LeastSquaresFit", "RealBasis", "prior_precision",
 # solve (about cond * 1.1e-16) passes 1e-8 of the solution.  Such a combination is
 # set by the noise and by rounding, not by the data: add damping or a prior.
 CONDITION_LIMIT = 1.0e8
+DEFAULT_MAXITER = 1000
 
 
 class IllPosedWarning(UserWarning):
@@ -397,3 +402,211 @@ def warn_not_converged(info: dict, damping: float) -> None:
         f"conjugate gradients stopped after {info['iterations']} iterations with a relative "
         f"residual of {info['relative_residual']:.2g}, above the tolerance: the problem is "
         f"probably ill-posed; {hint}, lower lmax, or raise maxiter", IllPosedWarning, stacklevel=3)
+
+
+# ---------------------------------------------------------------------------
+# checks shared by the estimators
+# ---------------------------------------------------------------------------
+def check_integer(name: str, value, minimum: int = 0) -> int:
+    """An integer argument (an int, or a float with an integral value) of at least ``minimum``."""
+    ok = isinstance(value, (numbers.Integral, float, np.floating)) and not isinstance(value, (bool, np.bool_))
+    if ok and isinstance(value, (float, np.floating)):
+        ok = math.isfinite(value) and float(value).is_integer()
+    if not ok or value < minimum:
+        raise ValueError(f"{name} must be an integer >= {minimum}, got {value!r}")
+    return int(value)
+
+
+def _is_real_array(value) -> bool:
+    try:
+        return np.asarray(value).dtype.kind in "fiu"
+    except (TypeError, ValueError):
+        return False
+
+
+def check_enough_data(n_data: int, unknowns: int, damping: float, what: str) -> None:
+    if n_data == 0:
+        raise ValueError(f"no data: there are no {what}, so nothing can be fitted")
+    if unknowns > n_data and damping == 0:
+        raise ValueError(f"{unknowns} unknowns ((lmax+1)^2) but only {n_data} {what}: the fit is "
+                         "underdetermined; lower lmax, or add damping (damping > 0, optionally "
+                         "with a prior) to pick the smallest solution that fits the data")
+
+
+def iterative_info(runs: list[dict]) -> dict:
+    conditions = [r["condition_estimate"] for r in runs if r["condition_estimate"] is not None]
+    info = dict(method="iterative",
+                condition_estimate=max(conditions) if conditions else None,
+                iterations=runs[0]["iterations"] if len(runs) == 1 else [r["iterations"] for r in runs],
+                converged=all(r["converged"] for r in runs),
+                relative_residual=max(r["relative_residual"] for r in runs))
+    return info
+
+
+# ---------------------------------------------------------------------------
+# least squares on a grid with missing cells
+# ---------------------------------------------------------------------------
+def fit_masked(values, grid: Grid, lmax: int, *, mask=None, damping: float = 0.0, prior=None,
+               norm: str = "orthonormal", condon_shortley: bool = True, tol: float = 1e-10,
+               maxiter: int | None = None, callback=None) -> LeastSquaresFit:
+    """Spherical-harmonic coefficients from a grid with missing cells, by least squares.
+
+    Only the observed cells enter: the estimate fits them in the area-weighted
+    least-squares sense (the grid's quadrature weights are the data weights)
+    and says nothing about the missing ones except through the coefficients.
+    Nothing is filled in; evaluate the result with
+    :func:`sphex.transform.synthesize` to see what it implies under the gaps.
+
+    Parameters
+    ----------
+    values : array_like, shape ``(..., nlat, nlon)``
+        Real field(s) on ``grid``; leading axes are a batch.  Missing cells are
+        NaN unless ``mask`` is given.
+    grid : Grid
+        The grid of the values.
+    lmax : int
+        Highest degree estimated, at most ``(nlon - 1) // 2``.
+    mask : array_like of bool, optional
+        ``True`` marks a MISSING cell (shape ``(nlat, nlon)`` or that of
+        ``values``).  Without it the NaN cells are the missing ones.  Values at
+        cells not marked missing must be finite.
+    damping, prior, norm, condon_shortley, tol, maxiter, callback
+        As for :func:`sphex.points.fit`.
+
+    Returns
+    -------
+    LeastSquaresFit
+        ``.sigmas`` is None (the operator is never formed as a matrix);
+        ``.info`` has ``method="iterative"``, ``iterations``,
+        ``condition_estimate`` and ``observed_fraction`` (of the area).
+
+    Raises
+    ------
+    ValueError
+        Every cell missing, NaN in a cell the mask says is observed, a mask
+        of the wrong shape, more unknowns than observed cells without damping.
+
+    Warns
+    -----
+    IllPosedWarning
+        When the gaps leave combinations of coefficients undetermined: the
+        condition estimate passes 1e8 (for a cap of missing cells this
+        happens once ``lmax`` resolves functions concentrated inside the cap),
+        or conjugate gradients stop without converging.
+
+    Notes
+    -----
+    With ``E`` the synthesis restricted to the observed cells and ``W`` their
+    area weights ``(2 pi / nlon) w_j``, conjugate gradients solve
+    ``(E^T W E + damping D) c = E^T W y``; ``E^T W`` is the analysis of the
+    field set to zero on the missing cells.  Up to the grid's exact degree,
+    ``E^T W E = I - M`` where ``M`` is the same operator over the missing
+    cells, whose eigenvalues are the concentrations of band-limited functions
+    inside the gaps (Simons, Dahlen and Wieczorek 2006): the problem is
+    ill-posed when a band-limited function can hide in the gaps.
+
+    References
+    ----------
+    Simons, F. J., Dahlen, F. A. and Wieczorek, M. A. (2006), Spatiospectral
+    concentration on a sphere, SIAM Review 48, 504-536.
+    """
+    check_norm(norm)
+    if not isinstance(grid, Grid):
+        raise ValueError(f"grid must be a sphex.Grid, got {type(grid).__name__}")
+    lmax = check_integer("lmax", lmax)
+    if lmax > (grid.nlon - 1) // 2:
+        raise ValueError(f"lmax={lmax} needs at least {2 * lmax + 1} longitudes, the grid has "
+                         f"{grid.nlon}: use lmax <= {(grid.nlon - 1) // 2}")
+    fields, missing = _masked_fields(values, grid, mask)
+    batch = fields.shape[:-2]
+    fields = fields.reshape((-1,) + grid.shape)
+    missing = np.broadcast_to(missing, (fields.shape[0],) + grid.shape) if missing.ndim == 2 else \
+        missing.reshape((-1,) + grid.shape)
+    cell_area = (2 * np.pi / grid.nlon) * np.repeat(grid.weights[:, None], grid.nlon, axis=1)
+    if np.any(cell_area < 0):
+        raise ValueError("the grid has negative quadrature weights, which cannot serve as data "
+                         "weights: use a Gauss grid or the 'cells' or 'poles' layout")
+    basis = RealBasis(lmax)
+    precision = prior_precision(basis, damping, prior, norm, condon_shortley)
+    maxiter = DEFAULT_MAXITER if maxiter is None else check_integer("maxiter", maxiter, 1)
+    u = np.empty((fields.shape[0], basis.size))
+    runs, rms, observed_fraction = [], [], []
+    for k in range(fields.shape[0]):
+        observed = ~missing[k] & (cell_area > 0)
+        check_enough_data(int(np.count_nonzero(observed)), basis.size, float(damping),
+                           "observed cells")
+        weight = np.where(observed, cell_area, 0.0)
+        data = np.where(observed, fields[k], 0.0)
+        u[k], run = _solve_masked(data, weight, grid, basis, precision, float(tol), maxiter, callback)
+        runs.append(run)
+        residual = data - synthesize(_orthonormal(basis, u[k]), grid)
+        rms.append(math.sqrt(float(np.sum(weight * residual ** 2) / np.sum(weight))))
+        observed_fraction.append(float(np.sum(weight) / (4 * np.pi)))
+    info = iterative_info(runs)
+    info.update(unknowns=basis.size, data=[int(np.count_nonzero(~m)) for m in missing] if batch
+                else int(np.count_nonzero(~missing[0])), basis=basis,
+                observed_fraction=observed_fraction if batch else observed_fraction[0])
+    damping_level = float(np.max(precision, initial=0.0))
+    warn_if_ill_posed(info["condition_estimate"], "iterative", damping_level)
+    for run in runs:
+        warn_not_converged(run, damping_level)
+    return LeastSquaresFit(harmonics=basis.harmonics(u, batch, norm, condon_shortley),
+                           residual_rms=np.array(rms).reshape(batch) if batch else rms[0],
+                           sigmas=None, info=info)
+
+
+def _orthonormal(basis: RealBasis, u: np.ndarray) -> Harmonics:
+    return Harmonics(basis.to_complex(u)[0], norm="orthonormal", condon_shortley=False)
+
+
+def _solve_masked(data, weight, grid: Grid, basis: RealBasis, precision: np.ndarray, tol: float,
+                  maxiter: int, callback):
+    """Conjugate gradients with synthesis and analysis as the operator pair.
+
+    ``analyze`` of a field is ``sum over cells of (2 pi / nlon) w_j f Lambda_lm e^{-i m phi}``,
+    so analysing the field set to zero on the missing cells is ``E^T W``."""
+    lmax = basis.lmax
+    observed = (weight > 0).astype(np.float64)
+
+    def adjoint(field):
+        a = analyze(observed * field, grid, lmax, norm="orthonormal", condon_shortley=False,
+                    allow_aliasing=True).coef
+        a[..., 1:] *= 2.0     # the -m terms of a real field: b_lm = w_m sum y Lambda e^{-i m phi}
+        return basis.from_adjoint(a)[0]
+
+    def apply(u):
+        return adjoint(synthesize(_orthonormal(basis, u), grid)) + precision * u
+
+    precondition = 1.0 / (np.sum(weight) / (4 * np.pi) + precision)
+    return solve_conjugate_gradients(apply, adjoint(data), precondition, tol, maxiter, callback)
+
+
+def _masked_fields(values, grid: Grid, mask) -> tuple[np.ndarray, np.ndarray]:
+    """Values (..., nlat, nlon) as float64 and the missing cells (True = missing)."""
+    if not _is_real_array(values):
+        raise ValueError("values must be real numbers (float or integer)")
+    arr = np.asarray(values, dtype=np.float64)
+    if arr.ndim < 2 or arr.shape[-2:] != grid.shape:
+        raise ValueError(f"values have shape {arr.shape} but the grid is (nlat, nlon) = {grid.shape}: "
+                         "the last two axes must be latitude then longitude")
+    if np.any(np.isinf(arr)):
+        raise ValueError("values contain inf: mark those cells missing (NaN or mask=True) "
+                         "or correct them")
+    if mask is None:
+        missing = np.isnan(arr)
+    else:
+        m = np.asarray(mask)
+        if m.dtype != bool:
+            raise ValueError(f"mask must be boolean (True = missing cell), got dtype {m.dtype}")
+        if m.shape not in (grid.shape, arr.shape):
+            raise ValueError(f"mask has shape {m.shape}; it must be {grid.shape} (one mask for all "
+                             f"fields) or {arr.shape} (True = missing cell)")
+        bad = int(np.count_nonzero(np.isnan(arr) & ~np.broadcast_to(m, arr.shape)))
+        if bad:
+            raise ValueError(f"{bad} cell(s) hold NaN but the mask marks them observed: mark them "
+                             "missing in the mask (True = missing), or leave mask=None to treat "
+                             "every NaN as missing")
+        missing = m
+    if np.all(missing):
+        raise ValueError("every cell is missing (masked or NaN): there is nothing to fit")
+    return arr, missing

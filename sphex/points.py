@@ -19,19 +19,20 @@ import math
 import numbers
 
 import numpy as np
+import scipy.linalg
+import scipy.linalg.blas
 
-from sphex.grids import Grid
 from sphex.harmonics import Harmonics
 from sphex.kernels import numba
 from sphex.kernels.points import (
     BLOCK, adjoint_kernel, design_kernel, evaluate_kernel, gradient_kernel, recursion_tables,
 )
 from sphex.least_squares import (
-    IllPosedWarning, LeastSquaresFit, RealBasis, prior_precision, solve_cholesky,
-    solve_conjugate_gradients, warn_if_ill_posed, warn_not_converged,
+    DEFAULT_MAXITER, IllPosedWarning, LeastSquaresFit, RealBasis, check_enough_data, check_integer,
+    fit_masked, iterative_info, prior_precision, solve_cholesky, solve_conjugate_gradients,
+    warn_if_ill_posed, warn_not_converged,
 )
 from sphex.legendre import check_norm, sectoral_table
-from sphex.transform import analyze, synthesize
 
 __all__ = ["evaluate", "evaluate_gradient", "evaluate_adjoint", "fit", "fit_masked",
            "LeastSquaresFit", "IllPosedWarning"]
@@ -48,16 +49,6 @@ def check_harmonics(h) -> Harmonics:
     if not np.all(np.isfinite(h.coef)):
         raise ValueError("the coefficients contain NaN or inf: check where they came from")
     return h
-
-
-def check_integer(name: str, value, minimum: int = 0) -> int:
-    """An integer argument (an int, or a float with an integral value) of at least ``minimum``."""
-    ok = isinstance(value, (numbers.Integral, float, np.floating)) and not isinstance(value, (bool, np.bool_))
-    if ok and isinstance(value, (float, np.floating)):
-        ok = math.isfinite(value) and float(value).is_integer()
-    if not ok or value < minimum:
-        raise ValueError(f"{name} must be an integer >= {minimum}, got {value!r}")
-    return int(value)
 
 
 def check_points(lat, lon) -> tuple[np.ndarray, np.ndarray]:
@@ -386,3 +377,247 @@ def _check_values(values, shape: tuple[int, ...]) -> np.ndarray:
         raise ValueError(f"values contain {bad} NaN or inf entries: drop those points (or give "
                          "them weight 0 in fit) instead of filling them")
     return y
+
+
+# ---------------------------------------------------------------------------
+# least squares from scattered points
+# ---------------------------------------------------------------------------
+DIRECT_MAX_UNKNOWNS = 10_000   # (lmax+1)^2 above which "auto" never builds the normal matrix
+DIRECT_MAX_WORK = 1.0e12       # n (lmax+1)^4 above which "auto" prefers conjugate gradients
+DESIGN_ROWS_BYTES = 1 << 27    # rows of the design matrix formed at once (128 MB)
+
+
+def fit(values, lat, lon, lmax: int, *, weights=None, damping: float = 0.0, prior=None,
+        method: str = "auto", norm: str = "orthonormal", condon_shortley: bool = True,
+        tol: float = 1e-10, maxiter: int | None = None, callback=None) -> LeastSquaresFit:
+    """Spherical-harmonic coefficients to degree ``lmax`` from values at scattered points.
+
+    Parameters
+    ----------
+    values : array_like, shape ``(...,) + np.shape(lat)``
+        Real data at the points; leading axes are a batch of fields sampled
+        at the same points (the direct method factors the normal matrix once
+        for all of them).
+    lat, lon : array_like
+        Points in degrees, one shape.
+    lmax : int
+        Highest degree estimated; there are ``(lmax + 1)^2`` real unknowns.
+    weights : array_like, optional
+        Data weights, one per point (shape of ``lat``), non-negative; points
+        with weight 0 are ignored.  Give the inverse noise variances
+        ``1 / sigma_j^2`` to get posterior standard deviations in data units;
+        without weights the noise variance is estimated from the residuals.
+    damping : float
+        Tikhonov regularisation strength (>= 0): the estimate minimises
+        ``sum_j w_j r_j^2 + damping * sum_i c_i^2 / prior_(l_i)`` over the real
+        coefficients ``c_i`` (``cos_sin()`` form) in the requested convention.
+    prior : callable or array_like, optional
+        Prior variance per degree (array of lmax+1 values, or a function of
+        the degree array), such as Kaula's rule ``lambda l: (1e-5 / l**2)**2``
+        for ``norm="full"``; inf leaves a degree unconstrained.  None: 1 for
+        every degree (plain damping).  Needs ``damping > 0``.
+    method : {"auto", "direct", "iterative"}
+        "direct": Cholesky factorisation of the normal matrix (posterior
+        standard deviations and covariance available); "iterative":
+        conjugate gradients with the fast evaluation and its adjoint as
+        operators (memory O(points + lmax^2)).  "auto" takes the direct method
+        when ``(lmax+1)^2 <= 10^4`` and ``n (lmax+1)^4 <= 10^12`` (forming the
+        normal matrix then takes seconds to a minute), else the iterative one.
+    norm, condon_shortley
+        Convention of the result (and of ``damping`` and ``prior``).
+    tol, maxiter : optional
+        Iterative method: stop when the residual of the normal equations is
+        below ``tol`` times its right-hand side, or after ``maxiter``
+        iterations (default 1000; a warning says so).
+    callback : callable, optional
+        Iterative method: called as ``callback(iteration, relative_residual)``.
+
+    Returns
+    -------
+    LeastSquaresFit
+        ``.harmonics``, ``.residual_rms`` (weighted), ``.sigmas`` (direct
+        method), ``.info`` and ``.covariance()``.
+
+    Raises
+    ------
+    ValueError
+        Points or values that are not finite, latitudes outside [-90, 90],
+        shapes that do not match, negative weights, more unknowns than data
+        without damping, a singular normal matrix.
+
+    Warns
+    -----
+    IllPosedWarning
+        When the condition estimate of the normal matrix exceeds
+        :data:`sphex.least_squares.CONDITION_LIMIT` (1e8), or conjugate
+        gradients do not converge.
+
+    Notes
+    -----
+    Normal equations ``(E^T W E + damping D) c = E^T W y`` in the real
+    orthonormal unknowns (see :mod:`sphex.least_squares`).  Direct: the
+    normal matrix is accumulated from blocks of design-matrix rows (BLAS
+    ``syrk``), factored by Cholesky, its condition estimated by LAPACK
+    ``dpocon``; the posterior covariance is ``s0^2 (E^T W E + damping D)^(-1)``
+    with ``s0^2 = 1`` when weights are given and the a posteriori variance
+    factor ``sum r^2 / (n - trace(H))`` otherwise.  Iterative: conjugate
+    gradients (``scipy.sparse.linalg.cg``) preconditioned by the diagonal
+    ``sum(w) / (4 pi) + damping D``.
+
+    References
+    ----------
+    Hestenes and Stiefel (1952); Tikhonov and Arsenin (1977); Kaula, W. M.
+    (1966), Theory of Satellite Geodesy (the power law of the prior).
+
+    Examples
+    --------
+    >>> import numpy as np
+    >>> rng = np.random.default_rng(0)
+    >>> lat = np.degrees(np.arcsin(rng.uniform(-1, 1, 400))); lon = rng.uniform(0, 360, 400)
+    >>> y = 2.0 + np.sin(np.radians(lat))                       # degrees 0 and 1
+    >>> result = fit(y, lat, lon, lmax=3)
+    >>> bool(abs(result.harmonics[0, 0].real - 2 * np.sqrt(4 * np.pi)) < 1e-10)
+    True
+    """
+    check_norm(norm)
+    lmax = check_integer("lmax", lmax)
+    lat_a, lon_a = check_points(lat, lon)
+    y = _check_values(values, lat_a.shape)
+    batch = y.shape[:y.ndim - lat_a.ndim]
+    y = y.reshape((-1, lat_a.size))
+    w = _check_weights(weights, lat_a.shape)
+    basis = RealBasis(lmax)
+    precision = prior_precision(basis, damping, prior, norm, condon_shortley)
+    n_data = int(np.count_nonzero(w))
+    check_enough_data(n_data, basis.size, float(damping), "points with positive weight")
+    method = _choose_method(method, basis.size, n_data)
+    points = PointSet(lat_a, lon_a)
+    maxiter = DEFAULT_MAXITER if maxiter is None else check_integer("maxiter", maxiter, 1)
+    if method == "direct":
+        u, info, inverse, covariance_scale = _fit_direct(points, y, w, basis, precision,
+                                                          weighted=weights is not None)
+    else:
+        u, info = _fit_iterative(points, y, w, basis, precision, float(tol), maxiter, callback)
+        inverse = covariance_scale = None
+    residual = y - point_values(points, None, basis.to_complex(u))
+    rms = np.sqrt(np.sum(w * residual ** 2, axis=-1) / np.sum(w))
+    info.update(unknowns=basis.size, data=n_data, basis=basis)
+    sigmas = None
+    if method == "direct":
+        real_scale = basis.convention_scale(norm, condon_shortley)
+        sigmas = basis.sigma_harmonics(np.sqrt(np.sum(inverse ** 2, axis=1)) * covariance_scale[:, None]
+, batch, norm, condon_shortley)
+        covariance_scale = covariance_scale[:, None] * real_scale[None, :]
+    return LeastSquaresFit(harmonics=basis.harmonics(u, batch, norm, condon_shortley),
+                           residual_rms=rms.reshape(batch)[()] if batch else float(rms[0]),
+                           sigmas=sigmas, info=info, _covariance_factor=inverse,
+                           _covariance_scale=covariance_scale)
+
+
+def point_values(points: PointSet, factors: RadialFactors | None, coef: np.ndarray) -> np.ndarray:
+    """(K, N) values in the input's order of orthonormal phase-free complex coef (K, L+1, L+1)."""
+    lmax = coef.shape[-1] - 1
+    t = np.swapaxes(coef, -1, -2).copy()
+    t[:, 1:, :] *= 2.0
+    cr = np.ascontiguousarray(t.real)
+    ci = np.ascontiguousarray(t.imag)
+    out = np.zeros((coef.shape[0], points.size))
+    if points.size:
+        xq, sq, q2, qf = _radius_arrays(points, factors)
+        evaluate_kernel(lmax, points.x, points.s, xq, sq, q2, qf, points.phi, points.cos_phi,
+                        points.sin_phi, sectoral_table(lmax), cr, ci, points.chunks(), out)
+    return points.unsorted(out)
+
+
+def _check_weights(weights, shape: tuple[int, ...]) -> np.ndarray:
+    if weights is None:
+        return np.ones(int(np.prod(shape, dtype=np.int64)))
+    if not _is_real_array(weights):
+        raise ValueError("weights must be real numbers, one per point")
+    w = np.asarray(weights, dtype=np.float64)
+    if w.shape != shape:
+        raise ValueError(f"weights have shape {w.shape} but the points have shape {shape}: give "
+                         "one weight per point (1 / noise variance)")
+    if not np.all(np.isfinite(w)) or np.any(w < 0):
+        raise ValueError("weights must be finite and >= 0 (1 / noise variance; 0 ignores a point)")
+    return w.ravel()
+
+
+def _choose_method(method: str, unknowns: int, n_data: int) -> str:
+    if method not in ("auto", "direct", "iterative"):
+        raise ValueError(f"unknown method {method!r}; valid: 'auto', 'direct', 'iterative'")
+    if method != "auto":
+        return method
+    if unknowns <= DIRECT_MAX_UNKNOWNS and n_data * float(unknowns) ** 2 <= DIRECT_MAX_WORK:
+        return "direct"
+    return "iterative"
+
+
+def _fit_direct(points: PointSet, y: np.ndarray, w: np.ndarray, basis: RealBasis,
+                precision: np.ndarray, weighted: bool):
+    """Normal matrix from blocks of design rows, Cholesky, posterior scale per field."""
+    lmax, p = basis.lmax, basis.size
+    keep = np.flatnonzero(w > 0)
+    atab = np.empty((lmax + 1, lmax + 1))
+    ctab = np.empty((lmax + 1, lmax + 1))
+    recursion_tables(lmax, atab, ctab)
+    cm = sectoral_table(lmax)
+    x, s, phi = _unsorted_coordinates(points)
+    normal = np.zeros((p, p), order="F")
+    rows = max(1, DESIGN_ROWS_BYTES // (8 * p))
+    for start in range(0, keep.size, rows):
+        idx = keep[start:start + rows]
+        A = np.empty((idx.size, p))
+        design_kernel(lmax, x[idx], s[idx], phi[idx], cm, atab, ctab, basis.col_cos,
+                      basis.col_sin, np.sqrt(w[idx]), A)
+        normal = scipy.linalg.blas.dsyrk(1.0, A, beta=1.0, c=normal, trans=1, lower=0,
+                                         overwrite_c=1)
+    normal[np.diag_indices(p)] += precision
+    rhs = basis.from_adjoint(adjoint_sums(points, None, y * w, lmax))
+    u, inverse, condition = solve_cholesky(normal, rhs)
+    del normal
+    warn_if_ill_posed(condition, "direct", float(np.max(precision, initial=0.0)))
+    posterior = np.sum(inverse ** 2, axis=1)            # diagonal of the normal matrix's inverse
+    residual = y - point_values(points, None, basis.to_complex(u))
+    freedom = keep.size - p + float(np.sum(np.where(np.isfinite(precision), precision, 0.0) * posterior))
+    variance_factor = np.sum(w * residual ** 2, axis=-1) / freedom if freedom > 0 else np.full(y.shape[0], np.nan)
+    scale = np.ones(y.shape[0]) if weighted else np.sqrt(variance_factor)
+    info = dict(method="direct", condition_estimate=condition,
+                variance_factor=variance_factor if y.shape[0] > 1 else float(variance_factor[0]),
+                degrees_of_freedom=freedom,
+                sigma_source="weights (1 / noise variance)" if weighted else "residuals")
+    return u, info, inverse, scale
+
+
+def _unsorted_coordinates(points: PointSet):
+    """x, s, phi in the input's order."""
+    out = []
+    for arr in (points.x, points.s, points.phi):
+        a = np.empty_like(arr)
+        a[points.order] = arr
+        out.append(a)
+    return out
+
+
+def _fit_iterative(points: PointSet, y: np.ndarray, w: np.ndarray, basis: RealBasis,
+                   precision: np.ndarray, tol: float, maxiter: int, callback):
+    """Conjugate gradients, one field of the batch after the other."""
+    lmax = basis.lmax
+
+    def apply(u):
+        f = point_values(points, None, basis.to_complex(u))
+        return basis.from_adjoint(adjoint_sums(points, None, f * w, lmax))[0] + precision * u
+
+    precondition = 1.0 / (np.sum(w) / (4 * np.pi) + precision)
+    rhs = basis.from_adjoint(adjoint_sums(points, None, y * w, lmax))
+    u = np.empty((y.shape[0], basis.size))
+    runs = []
+    for k in range(y.shape[0]):
+        u[k], run = solve_conjugate_gradients(apply, rhs[k], precondition, tol, maxiter, callback)
+        runs.append(run)
+    damping = float(np.max(precision, initial=0.0))
+    info = iterative_info(runs)
+    warn_if_ill_posed(info["condition_estimate"], "iterative", damping)
+    for run in runs:
+        warn_not_converged(run, damping)
+    return u, info
