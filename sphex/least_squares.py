@@ -384,8 +384,8 @@ def warn_if_ill_posed(condition: float | None, method: str, damping: float) -> N
     if condition is None or condition <= CONDITION_LIMIT:
         return
     hint = ("increase damping" if damping > 0 else
-            "add damping (for example damping=1e-6 relative to the data weights; see the "
-            "L-curve in the docs) or a prior, or lower lmax")
+            "add damping (scan it over decades and take the corner of the L-curve, "
+            "docs/points-and-fits.md) or a prior, or lower lmax")
     warnings.warn(
         f"ill-posed fit: the normal matrix has a condition estimate of {condition:.2g} ({method} "
         f"method), above {CONDITION_LIMIT:.0e}; some combinations of coefficients are hardly "
