@@ -503,7 +503,9 @@ def fit_masked(values, grid: Grid, lmax: int, *, mask=None, damping: float = 0.0
     ``E^T W E = I - M`` where ``M`` is the same operator over the missing
     cells, whose eigenvalues are the concentrations of band-limited functions
     inside the gaps (Simons, Dahlen and Wieczorek 2006): the problem is
-    ill-posed when a band-limited function can hide in the gaps.
+    ill-posed when a band-limited function can hide in the gaps.  The
+    condition estimate comes from the Lanczos values of the run and is a
+    lower estimate; a run that stops at ``maxiter`` warns as well.
 
     References
     ----------
@@ -530,11 +532,11 @@ def fit_masked(values, grid: Grid, lmax: int, *, mask=None, damping: float = 0.0
     precision = prior_precision(basis, damping, prior, norm, condon_shortley)
     maxiter = DEFAULT_MAXITER if maxiter is None else check_integer("maxiter", maxiter, 1)
     u = np.empty((fields.shape[0], basis.size))
-    runs, rms, observed_fraction = [], [], []
+    runs, rms, observed_fraction, counts = [], [], [], []
     for k in range(fields.shape[0]):
         observed = ~missing[k] & (cell_area > 0)
-        check_enough_data(int(np.count_nonzero(observed)), basis.size, float(damping),
-                           "observed cells")
+        counts.append(int(np.count_nonzero(observed)))
+        check_enough_data(counts[-1], basis.size, float(damping), "observed cells")
         weight = np.where(observed, cell_area, 0.0)
         data = np.where(observed, fields[k], 0.0)
         u[k], run = _solve_masked(data, weight, grid, basis, precision, float(tol), maxiter, callback)
@@ -543,8 +545,7 @@ def fit_masked(values, grid: Grid, lmax: int, *, mask=None, damping: float = 0.0
         rms.append(math.sqrt(float(np.sum(weight * residual ** 2) / np.sum(weight))))
         observed_fraction.append(float(np.sum(weight) / (4 * np.pi)))
     info = iterative_info(runs)
-    info.update(unknowns=basis.size, data=[int(np.count_nonzero(~m)) for m in missing] if batch
-                else int(np.count_nonzero(~missing[0])), basis=basis,
+    info.update(unknowns=basis.size, data=counts if batch else counts[0], basis=basis,
                 observed_fraction=observed_fraction if batch else observed_fraction[0])
     damping_level = float(np.max(precision, initial=0.0))
     warn_if_ill_posed(info["condition_estimate"], "iterative", damping_level)

@@ -151,14 +151,16 @@ class RadialFactors:
         self.sq = points.s * self.q
 
 
-def _kernel_coefficients(h: Harmonics, weight_orders: bool) -> tuple[np.ndarray, np.ndarray]:
-    """Real and imaginary parts, orthonormal without phase, as (K, m, l) arrays;
-    with ``weight_orders`` the orders m >= 1 are doubled (the -m terms of a real field)."""
-    coef = h.to(norm="orthonormal", condon_shortley=False).coef.reshape((-1, h.lmax + 1, h.lmax + 1))
-    if weight_orders:
-        coef = coef.copy()
-        coef[:, :, 1:] *= 2.0
-    t = np.swapaxes(coef, -1, -2)
+def _orthonormal_coef(h: Harmonics) -> np.ndarray:
+    """Coefficients of h, orthonormal without phase, as (K, L+1, L+1)."""
+    return h.to(norm="orthonormal", condon_shortley=False).coef.reshape((-1, h.lmax + 1, h.lmax + 1))
+
+
+def _kernel_arrays(coef: np.ndarray) -> tuple[np.ndarray, np.ndarray]:
+    """Real and imaginary parts of orthonormal phase-free coef (K, L+1, L+1) as the
+    kernels take them: indexed [k, m, l], orders m >= 1 doubled (the -m terms of a real field)."""
+    t = np.swapaxes(coef, -1, -2).copy()
+    t[:, 1:, :] *= 2.0
     return np.ascontiguousarray(t.real), np.ascontiguousarray(t.imag)
 
 
@@ -231,13 +233,7 @@ def evaluate(h: Harmonics, lat, lon, radius=None) -> np.ndarray:
             raise ValueError("radius= needs the reference radius of the coefficients: set it with "
                              "h.replace(radius=R) (metres)")
         factors = RadialFactors(points, h.radius, radius, h.lmax, shape)
-    cr, ci = _kernel_coefficients(h, weight_orders=True)
-    out = np.zeros((cr.shape[0], points.size))
-    if points.size:
-        xq, sq, q2, qf = _radius_arrays(points, factors)
-        evaluate_kernel(h.lmax, points.x, points.s, xq, sq, q2, qf, points.phi, points.cos_phi,
-                        points.sin_phi, sectoral_table(h.lmax), cr, ci, points.chunks(), out)
-    return points.unsorted(out).reshape(h.batch_shape + shape)
+    return point_values(points, factors, _orthonormal_coef(h)).reshape(h.batch_shape + shape)
 
 
 def evaluate_gradient(h: Harmonics, lat, lon) -> tuple[np.ndarray, np.ndarray]:
@@ -271,7 +267,7 @@ def evaluate_gradient(h: Harmonics, lat, lon) -> tuple[np.ndarray, np.ndarray]:
     lat_a, lon_a = check_points(lat, lon)
     shape = lat_a.shape
     points = PointSet(lat_a, lon_a)
-    cr, ci = _kernel_coefficients(h, weight_orders=True)
+    cr, ci = _kernel_arrays(_orthonormal_coef(h))
     east = np.zeros((cr.shape[0], points.size))
     north = np.zeros((cr.shape[0], points.size))
     if points.size:
@@ -494,22 +490,26 @@ def fit(values, lat, lon, lmax: int, *, weights=None, damping: float = 0.0, prio
     points = PointSet(lat_a, lon_a)
     maxiter = DEFAULT_MAXITER if maxiter is None else check_integer("maxiter", maxiter, 1)
     if method == "direct":
-        u, info, inverse, covariance_scale = _fit_direct(points, y, w, basis, precision,
-                                                          weighted=weights is not None)
+        u, info, inverse = _fit_direct(points, y, w, basis, precision)
     else:
         u, info = _fit_iterative(points, y, w, basis, precision, float(tol), maxiter, callback)
-        inverse = covariance_scale = None
+        inverse = None
     residual = y - point_values(points, None, basis.to_complex(u))
     rms = np.sqrt(np.sum(w * residual ** 2, axis=-1) / np.sum(w))
     info.update(unknowns=basis.size, data=n_data, basis=basis)
-    sigmas = None
+    sigmas = covariance_scale = None
     if method == "direct":
-        real_scale = basis.convention_scale(norm, condon_shortley)
-        sigmas = basis.sigma_harmonics(np.sqrt(np.sum(inverse ** 2, axis=1)) * covariance_scale[:, None]
-, batch, norm, condon_shortley)
-        covariance_scale = covariance_scale[:, None] * real_scale[None, :]
+        # s0 = 1 with weights (1 / noise variance), else the a posteriori variance factor
+        freedom = info["degrees_of_freedom"]
+        factor = np.sum(w * residual ** 2, axis=-1) / freedom if freedom > 0 else np.full(y.shape[0], np.nan)
+        info["variance_factor"] = factor if factor.size > 1 else float(factor[0])
+        s0 = np.ones(y.shape[0]) if weights is not None else np.sqrt(factor)
+        info["sigma_source"] = "weights (1 / noise variance)" if weights is not None else "residuals"
+        posterior = np.sqrt(np.sum(inverse ** 2, axis=1))   # sqrt(diag(N^-1)), N^-1 = U^-1 U^-T
+        sigmas = basis.sigma_harmonics(posterior * s0[:, None], batch, norm, condon_shortley)
+        covariance_scale = s0[:, None] * basis.convention_scale(norm, condon_shortley)[None, :]
     return LeastSquaresFit(harmonics=basis.harmonics(u, batch, norm, condon_shortley),
-                           residual_rms=rms.reshape(batch)[()] if batch else float(rms[0]),
+                           residual_rms=rms.reshape(batch) if batch else float(rms[0]),
                            sigmas=sigmas, info=info, _covariance_factor=inverse,
                            _covariance_scale=covariance_scale)
 
@@ -517,10 +517,7 @@ def fit(values, lat, lon, lmax: int, *, weights=None, damping: float = 0.0, prio
 def point_values(points: PointSet, factors: RadialFactors | None, coef: np.ndarray) -> np.ndarray:
     """(K, N) values in the input's order of orthonormal phase-free complex coef (K, L+1, L+1)."""
     lmax = coef.shape[-1] - 1
-    t = np.swapaxes(coef, -1, -2).copy()
-    t[:, 1:, :] *= 2.0
-    cr = np.ascontiguousarray(t.real)
-    ci = np.ascontiguousarray(t.imag)
+    cr, ci = _kernel_arrays(coef)
     out = np.zeros((coef.shape[0], points.size))
     if points.size:
         xq, sq, q2, qf = _radius_arrays(points, factors)
@@ -554,8 +551,11 @@ def _choose_method(method: str, unknowns: int, n_data: int) -> str:
 
 
 def _fit_direct(points: PointSet, y: np.ndarray, w: np.ndarray, basis: RealBasis,
-                precision: np.ndarray, weighted: bool):
-    """Normal matrix from blocks of design rows, Cholesky, posterior scale per field."""
+                precision: np.ndarray):
+    """Normal matrix from blocks of design rows, then Cholesky.
+
+    Returns the solution, the info (condition, degrees of freedom
+    ``n - trace(H) = n - p + sum_i damping D_i (N^-1)_ii``) and ``U^-1``."""
     lmax, p = basis.lmax, basis.size
     keep = np.flatnonzero(w > 0)
     atab = np.empty((lmax + 1, lmax + 1))
@@ -577,16 +577,9 @@ def _fit_direct(points: PointSet, y: np.ndarray, w: np.ndarray, basis: RealBasis
     u, inverse, condition = solve_cholesky(normal, rhs)
     del normal
     warn_if_ill_posed(condition, "direct", float(np.max(precision, initial=0.0)))
-    posterior = np.sum(inverse ** 2, axis=1)            # diagonal of the normal matrix's inverse
-    residual = y - point_values(points, None, basis.to_complex(u))
-    freedom = keep.size - p + float(np.sum(np.where(np.isfinite(precision), precision, 0.0) * posterior))
-    variance_factor = np.sum(w * residual ** 2, axis=-1) / freedom if freedom > 0 else np.full(y.shape[0], np.nan)
-    scale = np.ones(y.shape[0]) if weighted else np.sqrt(variance_factor)
-    info = dict(method="direct", condition_estimate=condition,
-                variance_factor=variance_factor if y.shape[0] > 1 else float(variance_factor[0]),
-                degrees_of_freedom=freedom,
-                sigma_source="weights (1 / noise variance)" if weighted else "residuals")
-    return u, info, inverse, scale
+    finite = np.where(np.isfinite(precision), precision, 0.0)
+    freedom = keep.size - p + float(np.sum(finite * np.sum(inverse ** 2, axis=1)))
+    return u, dict(method="direct", condition_estimate=condition, degrees_of_freedom=freedom), inverse
 
 
 def _unsorted_coordinates(points: PointSet):

@@ -8,6 +8,8 @@ Modules
                multi-degree advance), and Legendre functions at arbitrary points
 ``gauss``      Gauss-Legendre nodes and weights (Newton, double-double near the poles)
 ``scalar``     the analysis and synthesis kernels of scalar fields
+``points``     values, adjoint sums and surface gradient at scattered points, and
+               rows of the least-squares design matrix
 
 Each module imports only numpy, numba and its siblings.  Kernels trust their
 inputs: the public modules validate shapes, dtypes and ranges before calling
