@@ -424,6 +424,18 @@ def _is_real_array(value) -> bool:
         return False
 
 
+def check_tolerance(tol) -> float:
+    """The stopping tolerance of conjugate gradients: a number in (0, 1)."""
+    try:
+        value = float(tol)
+    except (TypeError, ValueError):
+        value = math.nan
+    if not (0.0 < value < 1.0):
+        raise ValueError(f"tol must be a number between 0 and 1 (relative residual of the normal "
+                         f"equations, default 1e-10), got {tol!r}")
+    return value
+
+
 def check_enough_data(n_data: int, unknowns: int, damping: float, what: str) -> None:
     if n_data == 0:
         raise ValueError(f"no data: there are no {what}, so nothing can be fitted")
@@ -531,6 +543,7 @@ def fit_masked(values, grid: Grid, lmax: int, *, mask=None, damping: float = 0.0
     basis = RealBasis(lmax)
     precision = prior_precision(basis, damping, prior, norm, condon_shortley)
     maxiter = DEFAULT_MAXITER if maxiter is None else check_integer("maxiter", maxiter, 1)
+    tol = check_tolerance(tol)
     u = np.empty((fields.shape[0], basis.size))
     runs, rms, observed_fraction, counts = [], [], [], []
     for k in range(fields.shape[0]):
@@ -539,7 +552,7 @@ def fit_masked(values, grid: Grid, lmax: int, *, mask=None, damping: float = 0.0
         check_enough_data(counts[-1], basis.size, float(damping), "observed cells")
         weight = np.where(observed, cell_area, 0.0)
         data = np.where(observed, fields[k], 0.0)
-        u[k], run = _solve_masked(data, weight, grid, basis, precision, float(tol), maxiter, callback)
+        u[k], run = _solve_masked(data, weight, grid, basis, precision, tol, maxiter, callback)
         runs.append(run)
         residual = data - synthesize(_orthonormal(basis, u[k]), grid)
         rms.append(math.sqrt(float(np.sum(weight * residual ** 2) / np.sum(weight))))

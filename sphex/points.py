@@ -29,6 +29,7 @@ from sphex.kernels.points import (
 )
 from sphex.least_squares import (
     DEFAULT_MAXITER, IllPosedWarning, LeastSquaresFit, RealBasis, check_enough_data, check_integer,
+    check_tolerance,
     fit_masked, iterative_info, prior_precision, solve_cholesky, solve_conjugate_gradients,
     warn_if_ill_posed, warn_not_converged,
 )
@@ -489,10 +490,11 @@ def fit(values, lat, lon, lmax: int, *, weights=None, damping: float = 0.0, prio
     method = _choose_method(method, basis.size, n_data)
     points = PointSet(lat_a, lon_a)
     maxiter = DEFAULT_MAXITER if maxiter is None else check_integer("maxiter", maxiter, 1)
+    tol = check_tolerance(tol)
     if method == "direct":
         u, info, inverse = _fit_direct(points, y, w, basis, precision)
     else:
-        u, info = _fit_iterative(points, y, w, basis, precision, float(tol), maxiter, callback)
+        u, info = _fit_iterative(points, y, w, basis, precision, tol, maxiter, callback)
         inverse = None
     residual = y - point_values(points, None, basis.to_complex(u))
     rms = np.sqrt(np.sum(w * residual ** 2, axis=-1) / np.sum(w))

@@ -458,6 +458,8 @@ def test_bad_fit_options_rejected(rng):
         fit(y[:20], lat[:20], lon[:20], 6)
     with pytest.raises(ValueError, match="maxiter must be an integer"):
         fit(y, lat, lon, 2, maxiter=2.5)
+    with pytest.raises(ValueError, match="tol must be a number between 0 and 1"):
+        fit(y, lat, lon, 2, tol=np.nan)
     with pytest.raises(ValueError, match="unknown method"):
         fit(y, lat, lon, 2, method="qr")
     with pytest.raises(ValueError, match="damping must be a finite number"):
