@@ -247,6 +247,25 @@ def _set_data_weight(gr, gi, y, kk, j, jj, cph, sph, qf):
     gi[kk, j] = -f * sph[jj]
 
 
+@nb.njit(inline="always", **JIT)
+def _adjoint_order_start(m, n, j0, P, k, y, cph, sph, qf, gr, gi, accr, acci):
+    """Data weights of lanes 0..n-1 (zero while in scaled range) and their degree-m sums."""
+    for kk in range(y.shape[0]):
+        for j in range(n):
+            if k[j] == 0:
+                _set_data_weight(gr, gi, y, kk, j, j0 + j, cph, sph, qf)
+            else:  # scaled range: negligible until it becomes plain
+                gr[kk, j] = 0.0
+                gi[kk, j] = 0.0
+        sr = 0.0
+        si = 0.0
+        for j in range(n):
+            sr += P[j] * gr[kk, j]
+            si += P[j] * gi[kk, j]
+        accr[kk, m] += sr
+        acci[kk, m] += si
+
+
 @nb.njit(parallel=True, fastmath=FASTMATH, **JIT)
 def adjoint_kernel(lmax, x, s, xq, sq, q2, qf, phi, c1, s1, cm, y, nchunks, outr, outi):
     """outr + i outi [k, m, l] = sum_j y[k, j] q_j^(l+1) Lambda_lm(theta_j) e^{-i m phi_j}.
@@ -285,20 +304,7 @@ def adjoint_kernel(lmax, x, s, xq, sq, q2, qf, phi, c1, s1, cm, y, nchunks, outr
                     continue
                 xl = xq[j0:j0 + n]
                 nscaled = order_start(m, n, xl, sq[j0:j0 + n], cm[m], 0, P, Q, k)
-                for kk in range(K):
-                    for j in range(n):
-                        if k[j] == 0:
-                            _set_data_weight(gr, gi, y, kk, j, j0 + j, cph, sph, qf)
-                        else:  # scaled range: negligible until it becomes plain
-                            gr[kk, j] = 0.0
-                            gi[kk, j] = 0.0
-                    sr = 0.0
-                    si = 0.0
-                    for j in range(n):
-                        sr += P[j] * gr[kk, j]
-                        si += P[j] * gi[kk, j]
-                    accr[t, kk, m] += sr
-                    acci[t, kk, m] += si
+                _adjoint_order_start(m, n, j0, P, k, y, cph, sph, qf, gr, gi, accr[t], acci[t])
                 l = m
                 while l < lmax:
                     if nscaled > 0 and (l - m) % CHECK_EVERY == 0:
@@ -345,6 +351,44 @@ def _gradient_start(m, xj, sj, cmm):
     return u, m * xj * u, kk
 
 
+@nb.njit(inline="always", **JIT)
+def _gradient_lanes_start(m, n, j0, x, s, cmm, U0, U1, D0, D1, se, k):
+    """Start values of lanes 0..n-1 (points j0..j0+n-1); returns how many are scaled."""
+    nscaled = 0
+    for j in range(n):
+        jj = j0 + j
+        u, d, kj = _gradient_start(m, x[jj], s[jj], cmm)
+        U1[j] = u
+        D1[j] = d
+        k[j] = kj
+        U0[j] = 0.0
+        D0[j] = 0.0
+        se[j] = s[jj] if m == 0 else s[jj] * s[jj]
+        if kj < 0:
+            nscaled += 1
+    return nscaled
+
+
+@nb.njit(inline="always", **JIT)
+def _gradient_rescale(n, l, U0, U1, D0, D1, k, G):
+    """Rescale scaled lanes that grew past BIG (degree l - 1); lanes that become plain
+    drop their sums.  Returns how many became plain."""
+    plain = 0
+    for j in range(n):
+        if k[j] < 0 and (abs(U1[j]) > BIG or abs(D1[j]) > BIG * l):
+            U0[j] *= INV_SCALE
+            U1[j] *= INV_SCALE
+            D0[j] *= INV_SCALE
+            D1[j] *= INV_SCALE
+            k[j] += 1
+            if k[j] == 0:
+                plain += 1
+                for kk in range(G.shape[0]):
+                    for r in range(4):
+                        G[kk, r, j] = 0.0
+    return plain
+
+
 @nb.njit(parallel=True, fastmath=FASTMATH, **JIT)
 def gradient_kernel(lmax, x, s, phi, c1, s1, cm, cr, ci, nchunks, east, north):
     """east += (1/sin theta) df/dphi, north += -df/dtheta at the points (unit sphere).
@@ -380,18 +424,7 @@ def gradient_kernel(lmax, x, s, phi, c1, s1, cm, cr, ci, nchunks, east, north):
                 n = live_count(m, lmax, x[j0:j1], s[j0:j1], cm[m], shift, a, c)
                 if n == 0:
                     continue
-                nscaled = 0
-                for j in range(n):
-                    jj = j0 + j
-                    u, d, kj = _gradient_start(m, x[jj], s[jj], cm[m])
-                    U1[j] = u
-                    D1[j] = d
-                    k[j] = kj
-                    U0[j] = 0.0
-                    D0[j] = 0.0
-                    se[j] = s[jj] if m == 0 else s[jj] * s[jj]
-                    if k[j] < 0:
-                        nscaled += 1
+                nscaled = _gradient_lanes_start(m, n, j0, x, s, cm[m], U0, U1, D0, D1, se, k)
                 for kk in range(K):
                     for j in range(n):
                         G[kk, 0, j] = cr[kk, m, m] * U1[j]
@@ -400,18 +433,7 @@ def gradient_kernel(lmax, x, s, phi, c1, s1, cm, cr, ci, nchunks, east, north):
                         G[kk, 3, j] = ci[kk, m, m] * D1[j]
                 for l in range(m + 1, lmax + 1):
                     if nscaled > 0 and (l - 1 - m) % CHECK_EVERY == 0:
-                        for j in range(n):
-                            if k[j] < 0 and (abs(U1[j]) > BIG or abs(D1[j]) > BIG * l):
-                                U0[j] *= INV_SCALE
-                                U1[j] *= INV_SCALE
-                                D0[j] *= INV_SCALE
-                                D1[j] *= INV_SCALE
-                                k[j] += 1
-                                if k[j] == 0:
-                                    nscaled -= 1
-                                    for kk in range(K):
-                                        for r in range(4):
-                                            G[kk, r, j] = 0.0
+                        nscaled -= _gradient_rescale(n, l, U0, U1, D0, D1, k, G)
                     al = a[l]
                     cl = c[l]
                     for j in range(n):
