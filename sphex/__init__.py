@@ -11,7 +11,8 @@ The numeric core works on plain numpy arrays::
 Submodules: :mod:`sphex.grids`, :mod:`sphex.legendre`, :mod:`sphex.transform`,
 :mod:`sphex.harmonics`, :mod:`sphex.spectra`, :mod:`sphex.filters`,
 :mod:`sphex.flow` (wind and current fields), :mod:`sphex.models` and
-:mod:`sphex.potential` (gravity and magnetic models), :mod:`sphex.rotation`,
+:mod:`sphex.potential` (gravity and magnetic models), :mod:`sphex.points`
+(scattered points, least squares), :mod:`sphex.rotation`,
 :mod:`sphex.localize` (localised spectra), :mod:`sphex.xr` (xarray and netCDF),
 :mod:`sphex.plot` (figures).  Names are imported on first use, so
 ``import sphex`` (and ``sphex --help``) stays quick.
@@ -31,7 +32,7 @@ _NAMES = {
     "regrid": "sphex.transform",
 }
 _SUBMODULES = ("grids", "legendre", "transform", "harmonics", "spectra", "filters", "flow",
-               "models", "potential", "rotation", "localize", "xr", "plot", "bench")
+               "models", "potential", "points", "rotation", "localize", "xr", "plot", "bench")
 
 __all__ = list(_NAMES) + list(_SUBMODULES)
 

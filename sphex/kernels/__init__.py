@@ -10,6 +10,8 @@ Modules
 ``scalar``     the analysis and synthesis kernels of scalar fields
 ``vector``     the analysis and synthesis kernels of tangent vector fields (east,
                north pairs from one recursion of Lambda / sin(theta) per order)
+``points``     values, adjoint sums and surface gradient at scattered points, and
+               rows of the least-squares design matrix
 
 Each module imports only numpy, numba and its siblings.  Kernels trust their
 inputs: the public modules validate shapes, dtypes and ranges before calling
