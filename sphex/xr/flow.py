@@ -71,6 +71,13 @@ def _where(da: xr.DataArray) -> str:
     return f"variable {da.name!r}"
 
 
+def _batch_coordinates(da: xr.DataArray, info: GridInfo) -> dict[str, xr.Variable]:
+    """The coordinates of ``da`` off the grid (time, level, ...), attributes included, which
+    :func:`xarray.apply_ufunc` hands on without their attributes."""
+    spatial = {info.lat_dim, info.lon_dim}
+    return {str(k): c.variable for k, c in da.coords.items() if not set(c.dims) & spatial}
+
+
 # ----------------------------------------------------------------------------
 # Coefficients of psi and chi
 # ----------------------------------------------------------------------------
@@ -162,7 +169,7 @@ def analyze_flow(u: xr.DataArray, v: xr.DataArray, lmax: int | None = None,
                      SIN: sin.assign_attrs(long_name=f"sine coefficient S_lm of {what}",
                                            **var_attrs)})
     ds = finish_coefficient_dataset(ds, lmax, norm, bool(condon_shortley), r, units["potential"],
-                                    _FLOW_NAME, None)
+                                    _FLOW_NAME, None).assign_coords(_batch_coordinates(u, info))
     return _label_potentials(ds, u, v, units["component"])
 
 
@@ -412,7 +419,9 @@ def flow_fields(u: xr.DataArray, v: xr.DataArray, like: Any = None, radius: floa
     if planetary_rotation is not None:
         gridded.append("absolute_vorticity")
     energies = ["kinetic_energy_rotational", "kinetic_energy_divergent"] if spectrum else []
-    sizes = {tmp_lat: tinfo.grid.nlat, tmp_lon: len(tinfo.put), "degree": lmax + 1}
+    sizes = {tmp_lat: tinfo.grid.nlat, tmp_lon: len(tinfo.put)}
+    if spectrum:
+        sizes["degree"] = lmax + 1
     results = xr.apply_ufunc(
         scaleout.task_function(_fields_block, u, v), u, v, pos,
         input_core_dims=[[info.lat_dim, info.lon_dim]] * 2 + [[]],
@@ -441,7 +450,8 @@ def flow_fields(u: xr.DataArray, v: xr.DataArray, like: Any = None, radius: floa
         data[name] = da.assign_attrs(long_name=f"kinetic energy per unit mass of degree l, {part} "
                                                "part", **({"units": units["energy"]}
                                                           if units["energy"] else {}))
-    out = xr.Dataset(data).assign_coords({tinfo.lat_name: lat, tinfo.lon_name: lon})
+    out = xr.Dataset(data).assign_coords({tinfo.lat_name: lat, tinfo.lon_name: lon,
+                                          **_batch_coordinates(source, info)})
     if spectrum:
         out = out.assign_coords(degree=("degree", np.arange(lmax + 1, dtype=np.int32),
                                         {"long_name": "spherical-harmonic degree l"}))
@@ -497,7 +507,8 @@ def _moved_pair(u: xr.DataArray, v: xr.DataArray, info: GridInfo, tinfo: GridInf
         attrs = dict(original.attrs)
         attrs["history"] = append_history(original.attrs, line)
         data[str(original.name)] = da.assign_attrs(attrs)
-    return xr.Dataset(data).assign_coords({tinfo.lat_name: lat, tinfo.lon_name: lon})
+    return xr.Dataset(data).assign_coords({tinfo.lat_name: lat, tinfo.lon_name: lon,
+                                           **_batch_coordinates(source, info)})
 
 
 def regrid_flow(u: xr.DataArray, v: xr.DataArray, like: Any, *,
