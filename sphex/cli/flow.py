@@ -101,6 +101,8 @@ def run(a: argparse.Namespace) -> int:
     resolved = [Path(p).resolve() for p in outputs]
     if len(set(resolved)) != len(resolved):
         raise UserError("-o, --spectrum and --plot must be three different files")
+    if Path(a.input).resolve() in resolved:
+        raise UserError(f"the output {a.output!r} is the input file; write to another file")
     for p in outputs:
         check_output_path(p, a.overwrite)
     from sphex.xr.flow_streaming import stream_flow
