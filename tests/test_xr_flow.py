@@ -243,6 +243,13 @@ def test_regrid_and_smooth_go_through_psi_and_chi(rng, series):
     assert moved["u"].dims == ("level", "time", "lat", "lon")
     assert _rel(moved["u"], east) < 1e-12 and _rel(moved["v"], north) < 1e-12
     assert moved["u"].attrs["long_name"] == "u component" and "regrid_flow" in moved["u"].attrs["history"]
+    # the diagnostics on another grid: the flow truncated to the smaller exact limit
+    coarse = sxr.flow_fields(u, v, like="gauss:11", radius=R)
+    small = flow.truncate(11)
+    assert coarse["vorticity"].dims == ("level", "time", "lat", "lon") and coarse.sizes["lat"] == 12
+    assert _rel(coarse["vorticity"], sphex.synthesize(small.vorticity(), sphex.Grid.gauss(11))) < 1e-12
+    assert _rel(coarse["northward_divergent"],
+                synthesize_flow(small.divergent(), sphex.Grid.gauss(11))[1]) < 1e-12
     # smoothing: vorticity and divergence multiplied by the same weights per degree
     weights = np.exp(-0.02 * np.arange(grid.lmax_exact + 1) ** 2)
     smooth = sxr.smooth_flow(u, v, weights=weights)

@@ -3,10 +3,11 @@ kinetic-energy spectrum of a wind or current file."""
 from __future__ import annotations
 
 import argparse
+import math
 from typing import Any
 
 from sphex.cli.shared import (
-    UserError, add_command, add_output_arguments, chunk_spec, positive_number, say, whole_number,
+    UserError, add_command, add_output_arguments, chunk_spec, say, whole_number,
 )
 
 EXAMPLE = """\
@@ -53,7 +54,7 @@ def register(sub: Any) -> None:
     q.add_argument("--radius", type=radius_km, metavar="KM",
                    help="sphere radius in km (or with a unit: 6371km, 6371008.8m); default the "
                         "file's planet_radius_km attribute, else Earth's mean radius")
-    q.add_argument("--rotation-rate", type=positive_number, metavar="RAD_PER_S",
+    q.add_argument("--rotation-rate", type=rotation_rate, metavar="RAD_PER_S",
                    help="planet's rotation rate: also write absolute_vorticity, the vorticity "
                         "plus 2 Omega sin(lat) (Earth: 7.292115e-5)")
     q.add_argument("--spectrum", metavar="CSV", help="write the kinetic-energy spectrum as CSV")
@@ -86,6 +87,18 @@ def radius_km(text: str) -> float:
         raise argparse.ArgumentTypeError(
             f"{text!r} is {value:g} km, larger than the Sun; the radius is in km "
             f"(6371), or add the unit m for metres (6371008.8m)")
+    return value
+
+
+def rotation_rate(text: str) -> float:
+    """A rotation rate in rad s-1: finite, nonzero (negative for a retrograde rotation)."""
+    try:
+        value = float(text)
+    except ValueError:
+        raise argparse.ArgumentTypeError(f"{text!r} is not a rotation rate in rad s-1 (Earth: "
+                                         "7.292115e-5)") from None
+    if not (math.isfinite(value) and value != 0):
+        raise argparse.ArgumentTypeError(f"{text!r} must be a finite, nonzero rate in rad s-1")
     return value
 
 
