@@ -81,8 +81,8 @@ def files(tmp_path_factory):
     holes["v"][1, 5, 7] = np.nan
     holes.to_netcdf(d / "holes.nc")
     # a C-grid: v on the 36 cell centres between u's 37 rows
-    stag = ds.drop_vars("v").assign(v=(("time", "lat_v", "longitude"), np.zeros((3, 36, 72), np.float32),
-                                       ds["v"].attrs))
+    stag = ds.drop_vars("v").assign(v=(("time", "lat_v", "longitude"),
+                                       np.zeros((3, 36, 72), np.float32), ds["v"].attrs))
     stag = stag.assign_coords(lat_v=("lat_v", 87.5 - 5.0 * np.arange(36), {"units": "degrees_north"}))
     stag.to_netcdf(d / "staggered.nc")
     # v with two steps of its own

@@ -242,7 +242,8 @@ def test_regrid_and_smooth_go_through_psi_and_chi(rng, series):
     east, north = synthesize_flow(flow, target)
     assert moved["u"].dims == ("level", "time", "lat", "lon")
     assert _rel(moved["u"], east) < 1e-12 and _rel(moved["v"], north) < 1e-12
-    assert moved["u"].attrs["long_name"] == "u component" and "regrid_flow" in moved["u"].attrs["history"]
+    assert moved["u"].attrs["long_name"] == "u component"
+    assert "regrid_flow" in moved["u"].attrs["history"]
     # the diagnostics on another grid: the flow truncated to the smaller exact limit
     coarse = sxr.flow_fields(u, v, like="gauss:11", radius=R)
     small = flow.truncate(11)
@@ -305,7 +306,8 @@ def test_missing_values_and_degree_limits_are_refused(series):
 
 def test_components_found_by_standard_name(series):
     _, _, u, v = series
-    ds = xr.Dataset({"ua": u, "va": v, "t": u.rename("t").assign_attrs(standard_name="air_temperature")})
+    air = u.rename("t").assign_attrs(standard_name="air_temperature")
+    ds = xr.Dataset({"ua": u, "va": v, "t": air})
     assert find_components(ds) == ("ua", "va")
     assert find_components(ds, "va", "ua") == ("va", "ua")
     with pytest.raises(ValueError, match="ambiguous.*ua, u10"):

@@ -302,6 +302,7 @@ def find_components(ds: xr.Dataset, east: str | None = None, north: str | None =
             raise ValueError(f"the components are ambiguous: {many} carry the standard names "
                              f"{EAST_STANDARD_NAMES[medium]} / {NORTH_STANDARD_NAMES[medium]}; "
                              f"choose with {options[0]} VAR {options[1]} VAR")
-    wanted = " or ".join(f"{EAST_STANDARD_NAMES[m]}/{NORTH_STANDARD_NAMES[m]}" for m in EAST_STANDARD_NAMES)
+    wanted = " or ".join(f"{EAST_STANDARD_NAMES[m]}/{NORTH_STANDARD_NAMES[m]}"
+                         for m in EAST_STANDARD_NAMES)
     raise ValueError(f"no variables with the CF standard_name {wanted} (variables: {listed}); "
                      f"name the components with {options[0]} VAR {options[1]} VAR")
