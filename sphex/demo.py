@@ -9,11 +9,14 @@ does the whole job a user would do with their own files:
    Gaussian smoothing;
 3. writes and draws the smoothed topography map, and the degree-order
    amplitude picture;
-4. analyses a twelve-step surface-temperature series in one batch.
+4. analyses a twelve-step surface-temperature series in one batch;
+5. turns four steps of its winds into vorticity, divergence, streamfunction,
+   velocity potential and the kinetic-energy spectrum, and draws them.
 
 Everything here is synthetic: Velanthe does not exist, and its "data" are
-made by :func:`make_topography` and :func:`make_temperature` from seeded
-random numbers and simple formulas.  They say so in their attributes.
+made by :func:`make_topography`, :func:`make_temperature` and
+:func:`make_winds` from seeded random numbers and simple formulas.  They say
+so in their attributes.
 """
 from __future__ import annotations
 
@@ -27,12 +30,14 @@ from typing import Any
 
 import numpy as np
 
-__all__ = ["MOON", "RADIUS_KM", "make_topography", "make_temperature", "write_demo_data", "run"]
+__all__ = ["MOON", "RADIUS_KM", "make_topography", "make_temperature", "make_winds",
+           "write_demo_data", "run"]
 
 MOON = "Velanthe"
 RADIUS_KM = 1350.0
 TOPO_FILE = "velanthe_topography.nc"
 TEMP_FILE = "velanthe_surface_temperature.nc"
+WIND_FILE = "velanthe_winds.nc"
 SMOOTH_KM = 200.0
 SEED = 20261201
 
@@ -166,14 +171,106 @@ def make_temperature():
     return ds
 
 
+def _random_potential(rng: np.random.Generator, energy: np.ndarray, radius: float,
+                      steps: int) -> np.ndarray:
+    """Orthonormal coefficients (steps, L+1, L+1) of a streamfunction or velocity potential
+    whose flow has ``energy[l]`` (m2 s-2) per degree on average, drifting east by 10 degrees
+    a step while a quarter of it is renewed."""
+    lmax = energy.size - 1
+    coef = np.zeros((steps, lmax + 1, lmax + 1), dtype=complex)
+    m = np.arange(lmax + 1)
+    for l in range(1, lmax + 1):
+        # E_l = l(l+1)/(2 R^2) P_l and P_l = sum over m of |c_lm|^2 (2 - [m=0]) / (4 pi)
+        sigma = np.sqrt(4 * np.pi * energy[l] * 2 * radius ** 2 / (l * (l + 1)) / (2 * l + 1))
+        first = rng.normal(0, sigma / np.sqrt(2), (2, l + 1))
+        coef[0, l, : l + 1] = first[0] + 1j * first[1]
+        for k in range(1, steps):
+            fresh = rng.normal(0, sigma / np.sqrt(2), (2, l + 1))
+            drift = np.exp(-1j * m[: l + 1] * np.deg2rad(10.0))
+            coef[k, l, : l + 1] = (np.sqrt(0.75) * coef[k - 1, l, : l + 1] * drift
+                                   + np.sqrt(0.25) * (fresh[0] + 1j * fresh[1]))
+    coef[..., 0] = coef[..., 0].real * np.sqrt(2)
+    return coef
+
+
+def make_winds():
+    """Velanthe's near-surface winds: four steps on a 2.5-degree grid that samples both poles.
+
+    Latitudes north to south (73, both poles), longitudes 0..357.5, the first
+    four steps of the temperature series (36 hours apart).  The flow is
+    band-limited to degree 36, the grid's exact limit, and made of
+
+    - two westerly jets near 39 degrees north and south, 24 m s-1 at their core
+      (streamfunction ``-R U c (mu^3/3 - mu^5/5)``, ``mu = sin(lat)``);
+    - a divergent outflow from the subsolar point, which follows the
+      temperature series (velocity potential ``-A cos(angle from the subsolar
+      point)``, 4 m s-1 at most);
+    - rotational eddies with energy ``~ l^-3`` from degree 6 and weaker
+      divergent eddies ``~ l^-5/3``, from seeded random coefficients that drift
+      east by 10 degrees a step.
+
+    Returns
+    -------
+    xarray.Dataset
+        ``u`` and ``v`` (m s-1) over ``(time, lat, lon)``, with the CF standard
+        names ``eastward_wind`` and ``northward_wind``.
+    """
+    import pandas as pd
+    import xarray as xr
+
+    from sphex import Grid, analyze
+    from sphex.flow import Flow, synthesize_flow
+    from sphex.harmonics import Harmonics
+
+    radius = RADIUS_KM * 1e3
+    lat = 90.0 - 2.5 * np.arange(73)
+    lon = 2.5 * np.arange(144)
+    grid = Grid.from_coords(lat, lon)
+    lmax = grid.lmax_exact
+    steps = 4
+    hours = np.arange(steps) * 36.0
+    rng = np.random.default_rng(SEED + 11)
+    l = np.arange(lmax + 1, dtype=float)
+    l[0] = 1.0
+    rot = _random_potential(rng, 10.0 / (1.0 + (l / 6.0) ** 3), radius, steps)
+    div = _random_potential(rng, 0.6 * (l / 6.0) ** (-5.0 / 3.0) / (1.0 + 6.0 / l), radius, steps)
+    mu = np.sin(np.deg2rad(lat))[:, None] + 0.0 * lon
+    jets = -radius * 24.0 / 0.186 * (mu ** 3 / 3 - mu ** 5 / 5)
+    rot += analyze(jets, grid, lmax).coef
+    for k in range(steps):
+        sub_lon = 360.0 * k / 12
+        sub_lat = 9.0 * np.sin(2 * np.pi * k / 12)
+        outflow = -4.0 * radius * _angular_distance(lat, lon, sub_lat, sub_lon - 20.0)
+        div[k] += analyze(outflow, grid, lmax).coef
+    flow = Flow(Harmonics(rot, radius=radius), Harmonics(div, radius=radius))
+    u, v = synthesize_flow(flow, grid)
+    times = pd.Timestamp("2101-01-01") + pd.to_timedelta(hours, unit="h")
+    wind = {"units": "m s-1", "comment": _SYNTHETIC}
+    ds = xr.Dataset(
+        {"u": (("time", "lat", "lon"), u.astype(np.float32),
+               {"standard_name": "eastward_wind", "long_name": "eastward wind near the surface",
+                **wind}),
+         "v": (("time", "lat", "lon"), v.astype(np.float32),
+               {"standard_name": "northward_wind", "long_name": "northward wind near the surface",
+                **wind})},
+        coords={"time": ("time", times, {"long_name": "time (fictional calendar)"}),
+                "lat": ("lat", lat, {"standard_name": "latitude", "units": "degrees_north"}),
+                "lon": ("lon", lon, {"standard_name": "longitude", "units": "degrees_east"})},
+        attrs=_global_attrs(f"Near-surface winds of {MOON} (synthetic)"),
+    )
+    ds["time"].encoding.update({"units": "hours since 2101-01-01 00:00:00", "calendar": "standard"})
+    return ds
+
+
 def write_demo_data(directory: str | os.PathLike, overwrite: bool = False) -> list[Path]:
-    """Write the two demo files into ``directory``; returns their paths."""
+    """Write the three demo files into ``directory``; returns their paths."""
     from sphex.xr.output import atomic_output
 
     d = Path(directory)
     d.mkdir(parents=True, exist_ok=True)
     out = []
-    for name, make in ((TOPO_FILE, make_topography), (TEMP_FILE, make_temperature)):
+    for name, make in ((TOPO_FILE, make_topography), (TEMP_FILE, make_temperature),
+                       (WIND_FILE, make_winds)):
         ds = make()
         enc = {v: {"zlib": True, "complevel": 4} for v in ds.data_vars}
         path = d / name
@@ -185,7 +282,7 @@ def write_demo_data(directory: str | os.PathLike, overwrite: bool = False) -> li
 
 def _bundled_data() -> Path | None:
     here = Path(__file__).resolve().parent.parent / "data_demo"
-    if (here / TOPO_FILE).exists() and (here / TEMP_FILE).exists():
+    if all((here / name).exists() for name in (TOPO_FILE, TEMP_FILE, WIND_FILE)):
         return here
     return None
 
@@ -228,6 +325,10 @@ def run(out_dir: str | os.PathLike = "sphex-demo-output", overwrite: bool = Fals
         "temp_coef": "velanthe_temperature_coef.nc",
         "temp_spectrum": "temperature_spectra.png",
         "temp_map": "temperature_map_first_step.png",
+        "wind_flow": "velanthe_wind_flow.nc",
+        "wind_vorticity": "winds_vorticity.png",
+        "wind_potential": "winds_velocity_potential.png",
+        "wind_energy": "winds_energy_spectrum.png",
     }
     if out.exists() and not out.is_dir():
         raise NotADirectoryError(f"--out {str(out)!r} is a file; give a directory")
@@ -268,6 +369,7 @@ def _make_products(out: Path, names: dict[str, str], overwrite: bool,
           f"synthetic\n  input data  {data}{made}")
     rows, checks = _topography_products(data, out, names, overwrite)
     rows += _temperature_products(data, out, names, overwrite, progress)
+    rows += _wind_products(data, out, names, overwrite)
     w = max(len(k) for k, _ in rows)
     for k, v in rows:
         print(f"  {k:<{w}}  {v}")
@@ -368,4 +470,50 @@ def _temperature_products(data: Path, out: Path, names: dict[str, str], overwrit
         ("coefficients", str(out / names["temp_coef"])),
         ("spectra plot", str(out / names["temp_spectrum"])),
         ("map", str(out / names["temp_map"])),
+    ]
+
+
+def _wind_products(data: Path, out: Path, names: dict[str, str],
+                   overwrite: bool) -> list[tuple[str, str]]:
+    """Flow diagnostics of the winds, maps of vorticity and divergence with the wind, and the
+    kinetic-energy spectrum; the summary rows."""
+    import xarray as xr
+
+    import sphex.xr as sxr
+    from sphex import plot
+    from sphex.spectra import spectral_slope
+
+    with xr.open_dataset(data / WIND_FILE) as f:
+        u, v = f["u"].load(), f["v"].load()
+    info = sxr.find_grid(u)
+    flow = sxr.flow_fields(u, v, radius=RADIUS_KM * 1e3, spectrum=True)
+    sxr.write_dataset(flow, out / names["wind_flow"], overwrite)
+    first = flow.isel(time=0)
+    plot.save(plot.wind_map_figure(first["vorticity"] * 1e6, u.isel(time=0), v.isel(time=0),
+                                   units="10^-6 s-1", label="relative vorticity",
+                                   title=f"{MOON}: vorticity and wind, first step (synthetic)"),
+              out / names["wind_vorticity"], overwrite=overwrite)
+    plot.save(plot.wind_map_figure(first["velocity_potential"] / 1e6, first["eastward_divergent"],
+                                   first["northward_divergent"], units="10^6 m2 s-1",
+                                   label="velocity potential",
+                                   title=f"{MOON}: velocity potential and divergent wind, first step"),
+              out / names["wind_potential"], overwrite=overwrite)
+    rot = flow["kinetic_energy_rotational"].mean("time")
+    div = flow["kinetic_energy_divergent"].mean("time")
+    units = flow["kinetic_energy_rotational"].attrs.get("units")
+    plot.save(plot.energy_figure(rot, div, units=units, planet_radius_km=RADIUS_KM,
+                                 note=f"mean of {u.sizes['time']} steps",
+                                 title=f"{MOON}: kinetic energy per degree of the winds"),
+              out / names["wind_energy"], overwrite=overwrite)
+    lmax = flow.sizes["degree"] - 1
+    slope = float(spectral_slope(np.asarray(rot), 8, lmax)[0])
+    share = float(rot.sum() / (rot.sum() + div.sum()))
+    return [
+        ("winds", f"{u.sizes['time']} steps on a {info.describe()}"),
+        ("flow fields", f"{out / names['wind_flow']}  (vorticity, divergence, streamfunction, "
+                        "velocity potential, rotational and divergent winds)"),
+        ("vorticity map", str(out / names["wind_vorticity"])),
+        ("potential map", str(out / names["wind_potential"])),
+        ("energy spectrum", f"{out / names['wind_energy']}  (rotational {100 * share:.0f} % of the "
+                            f"kinetic energy; its slope over degrees 8-{lmax}: {slope:.2f})"),
     ]

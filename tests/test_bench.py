@@ -26,3 +26,17 @@ def test_benchmark_reads_the_child_peak_memory_not_the_parent(tmp_path):
     with xr.open_dataset(tmp_path / "s.nc") as ds:
         assert sxr.find_grid(ds["field"]).grid == sphex.Grid.gauss(31)
         assert ds["field"].shape == (info["fields"], 32, 64)
+
+
+def test_vector_case_reports_ratios_to_two_scalar_transforms():
+    from sphex.bench import transforms, vectors
+
+    row = vectors.time_vector_pair(31, 1, transforms._best_time)
+    assert row["nlat"] == 32 and row["roundtrip_error"] < 1e-13
+    row["elements"] = transforms.elements(31, row["nlat"])
+    assert row["elements"] == 32 * 33 // 2 * 16               # (degree, order) pairs x latitude pairs
+    vectors.add_ratios(row, 1e10)
+    assert row["analysis_ratio"] == row["analysis_s"] / (2 * 8.0 * row["elements"] / 1e10)
+    assert row["synthesis_vs_two_scalar"] == row["synthesis_s"] / (2 * row["scalar_synthesis_s"])
+    text = "\n".join(vectors.format_rows([row]))
+    assert "roofline of two scalar transforms" in text and "    31 " in text

@@ -213,11 +213,15 @@ def test_demo_writes_its_products(tmp_path):
     assert r.returncode == 0, r.stderr
     names = sorted(p.name for p in out.iterdir())
     for n in ("velanthe_topography_coef.nc", "topography_spectrum.png", "topography_smoothed_200km.png",
-              "topography_smoothed_200km.nc", "topography_degree_order.png"):
+              "topography_smoothed_200km.nc", "topography_degree_order.png", "velanthe_wind_flow.nc",
+              "winds_vorticity.png", "winds_velocity_potential.png", "winds_energy_spectrum.png"):
         assert n in names
         assert str(out / n) in r.stdout
     ds = sxr.open_coefficients(out / "velanthe_topography_coef.nc")
     assert ds.attrs["lmax"] == 89 and ds.attrs["reference_radius"] == 1.35e6
+    with xr.open_dataset(out / "velanthe_wind_flow.nc") as flow:
+        assert flow.attrs["planet_radius_km"] == 1350.0 and flow.sizes["time"] == 4
+        assert flow["vorticity"].attrs["units"] == "s-1"
     r = run("demo", "--out", out)
     _assert_user_error(r, "already holds demo results", "--overwrite")
 
@@ -257,7 +261,8 @@ def test_bundled_demo_data_are_what_the_script_makes_and_say_they_are_synthetic(
     from sphex import demo
 
     here = Path(__file__).resolve().parent.parent / "data_demo"
-    for name, make in ((demo.TOPO_FILE, demo.make_topography), (demo.TEMP_FILE, demo.make_temperature)):
+    for name, make in ((demo.TOPO_FILE, demo.make_topography), (demo.TEMP_FILE, demo.make_temperature),
+                       (demo.WIND_FILE, demo.make_winds)):
         fresh = make()
         assert fresh.attrs["synthetic"] == "yes" and "fictional" in fresh.attrs["planet_name"]
         with xr.open_dataset(here / name) as shipped:
@@ -269,6 +274,12 @@ def test_bundled_demo_data_are_what_the_script_makes_and_say_they_are_synthetic(
     assert topo.grid.kind == "equiangular-cells" and topo.grid.lat[0] < 0     # south to north
     temp = sxr.find_grid(demo.make_temperature()["surface_temperature"])
     assert temp.grid.kind == "gauss" and temp.grid.lat[0] > 0                 # north to south
+    winds = demo.make_winds()
+    wind = sxr.find_grid(winds["u"])
+    assert wind.grid.kind == "equiangular-poles" and wind.grid.lat[0] > 0     # north to south
+    assert (winds["u"].attrs["standard_name"], winds["v"].attrs["standard_name"]) == \
+        ("eastward_wind", "northward_wind")
+    assert (here / demo.WIND_FILE).stat().st_size < 2**20
 
 
 def test_demo_makes_its_data_when_the_repository_copy_is_missing(tmp_path, monkeypatch, capsys):

@@ -5,6 +5,7 @@ Modules
 ``command``     the ``sphex bench`` command line (:func:`main`)
 ``transforms``  analysis and synthesis against the machine's own matrix-product rate,
                 peak memory, cold start
+``vectors``     a (u, v) pair of vector components against two scalar transforms
 ``scaleout``    dask thread scaling and the memory of a streamed long series
                 (``sphex bench --scale``)
 """

@@ -18,8 +18,8 @@ def main(argv: Sequence[str] | None = None) -> int:
     """``sphex bench [options]``: the transform benchmark, or the scale-out one with --scale."""
     parser = argparse.ArgumentParser(
         prog="sphex bench",
-        description="Time analysis and synthesis on Gauss grids against the DGEMM rate measured "
-                    "in the same run.",
+        description="Time analysis and synthesis on Gauss grids (scalar fields, and a (u, v) "
+                    "pair of vector components) against the DGEMM rate measured in the same run.",
         epilog="example: sphex bench --sizes 255 511 --no-memory")
     parser.add_argument("--sizes", type=int, nargs="+", default=list(transforms.DEFAULT_SIZES),
                         help="degrees to time (default: 255 511 1023 2047)")
@@ -29,6 +29,8 @@ def main(argv: Sequence[str] | None = None) -> int:
                         help="best of at least this many calls, more while they fit in 1 s "
                              "(default 3)")
     parser.add_argument("--no-memory", action="store_true", help="skip the peak-memory subprocesses")
+    parser.add_argument("--vector-size", type=int, default=1023, metavar="LMAX",
+                        help="degree of the vector (u, v) pair case, 0 to skip (default 1023)")
     parser.add_argument("--huge", type=int, nargs="?", const=10800, default=None, metavar="LMAX",
                         help="also one analysis and synthesis at this degree in a fresh process "
                              "(default 10800: 1.9 GB of input, several minutes)")
@@ -53,9 +55,9 @@ def main(argv: Sequence[str] | None = None) -> int:
         except ValueError:
             parser.error(f"--batch must look like 511x32 or 'none', got {args.batch!r}")
         batch = (lb, kb)
-    if any(L < 1 for L in args.sizes) or args.repeat < 1:
-        parser.error("sizes and --repeat must be positive integers")
+    if any(L < 1 for L in args.sizes) or args.repeat < 1 or args.vector_size < 0:
+        parser.error("sizes and --repeat must be positive integers, --vector-size 0 or more")
     result = transforms.run(args.sizes, batch, not args.no_memory, args.repeat, args.huge,
-                            args.cold)
+                            args.cold, args.vector_size or None)
     print(json.dumps(result, indent=2) if args.json else transforms.format_table(result))
     return 0

@@ -162,7 +162,11 @@ def cold_start(tmpdir: str | None = None) -> dict:
 
 
 def run(sizes=DEFAULT_SIZES, batch: tuple[int, int] | None = (511, 32), memory: bool = True,
-        repeat: int = 3, huge: int | None = None, cold: bool = False) -> dict:
+        repeat: int = 3, huge: int | None = None, cold: bool = False,
+        vector: int | None = 1023) -> dict:
+    """Time the scalar transforms of ``sizes`` (and the ``batch`` case), a vector pair at degree
+    ``vector`` (None: skip), then the DGEMM rate; ratios to the roofline (module docstring)."""
+    from sphex.bench import vectors
     from sphex.kernels import numba  # sphex sets the vector width before numba loads
 
     # BLAS worker threads keep spinning for a moment after a product and would
@@ -175,7 +179,11 @@ def run(sizes=DEFAULT_SIZES, batch: tuple[int, int] | None = (511, 32), memory: 
         cases.append(batch)
     for L, k in cases:
         rows.append(time_transforms(L, k, repeat))
+    vector_rows = [vectors.time_vector_pair(vector, repeat, _best_time)] if vector else []
     rate = max(dgemm_rate(), dgemm_rate())
+    for r in vector_rows:
+        r["elements"] = elements(r["lmax"], r["nlat"])
+        vectors.add_ratios(r, rate)
     for r in rows:
         L, k = r["lmax"], r["nfields"]
         roof = 8.0 * r["elements"] / rate
@@ -187,7 +195,7 @@ def run(sizes=DEFAULT_SIZES, batch: tuple[int, int] | None = (511, 32), memory: 
         if memory and k == 1:
             r.update(_peak_memory(L))
     result = {"dgemm_gflops": rate / 1e9, "threads": numba.get_num_threads(),
-              "cpu_count": os.cpu_count(), "rows": rows}
+              "cpu_count": os.cpu_count(), "rows": rows, "vector_rows": vector_rows}
     if huge:
         # one synthesis and one analysis in a fresh process: times, peak memory, round trip
         r = {"lmax": huge, "nfields": 1, "nlat": huge + 1, "nlon": 2 * huge + 2,
@@ -222,6 +230,10 @@ def format_table(result: dict) -> str:
                      f"{r['roundtrip_error']:>9.1e}")
     lines.append("(peak MB: whole process, high-water mark of one synthesis or analysis in a fresh "
                  "process, input and output included)")
+    if result.get("vector_rows"):
+        from sphex.bench.vectors import format_rows
+
+        lines += format_rows(result["vector_rows"])
     if "cold_start" in result:
         c = result["cold_start"]
         lines.append(f"cold start: first call with an empty numba cache {c['first_call_empty_cache_s']:.1f} s, "

@@ -21,6 +21,11 @@ Modules
                   :func:`regrid`, :func:`degree_power`
 ``scaleout``      dask: whole-field chunks, numba threads inside dask tasks
 ``streaming``     streaming analysis of a series larger than memory
+``flow``          winds and currents: :func:`analyze_flow`, :func:`flow_fields`,
+                  :func:`kinetic_energy`, :func:`regrid_flow`, :func:`smooth_flow`,
+                  :func:`to_flow`, :func:`from_flow`
+``flow_components`` the two components checked as a pair, the radius, units and CF names
+``flow_streaming`` flow diagnostics of a file streamed chunk by chunk: :func:`stream_flow`
 ``accessors``     ``da.sphex`` and ``ds.sphex`` (registered on import of this package)
 
 Examples
@@ -41,6 +46,10 @@ from sphex.xr import accessors  # noqa: F401  (registers da.sphex and ds.sphex)
 from sphex.xr.coefficients import COS, SIN, from_harmonics, is_coefficients, to_harmonics
 from sphex.xr.coords import GridInfo, find_grid, parse_grid
 from sphex.xr.fields import analyze, degree_power, regrid, smooth, synthesize
+from sphex.xr.flow import (
+    analyze_flow, flow_fields, from_flow, kinetic_energy, regrid_flow, smooth_flow, to_flow,
+)
+from sphex.xr.flow_components import EARTH_MEAN_RADIUS_M, RadiusAssumedWarning
 from sphex.xr.files import open_coefficients, open_harmonics, write_dataset, write_harmonics
 from sphex.xr.output import OutputExistsError, atomic_output, check_output_path
 from sphex.xr.tables import read_table, write_table
@@ -50,4 +59,6 @@ __all__ = [
     "smooth", "regrid", "degree_power", "to_harmonics", "from_harmonics",
     "write_harmonics", "write_dataset", "open_harmonics", "open_coefficients", "is_coefficients",
     "write_table", "read_table", "OutputExistsError", "atomic_output", "check_output_path",
+    "analyze_flow", "flow_fields", "kinetic_energy", "regrid_flow", "smooth_flow", "to_flow",
+    "from_flow", "EARTH_MEAN_RADIUS_M", "RadiusAssumedWarning",
 ]

@@ -25,7 +25,7 @@ from sphex.xr.files import netcdf_encoding, open_netcdf, write_netcdf
 from sphex.xr.output import atomic_output, check_output_path
 from sphex.xr.scaleout import default_block, thread_pool
 
-__all__ = ["parse_chunks", "StreamResult", "stream_analyze", "CONNECT_TIMEOUT"]
+__all__ = ["parse_chunks", "StreamResult", "stream_analyze", "write_lazily", "CONNECT_TIMEOUT"]
 
 #: How long to try reaching a distributed scheduler.
 CONNECT_TIMEOUT = "10s"
@@ -342,25 +342,55 @@ def stream_analyze(input: str | os.PathLike, var: str | None, output: str | os.P
         ds = analyze(lazy, lmax, norm=norm, condon_shortley=condon_shortley, radius=radius)
         ds.attrs["history"] = history or (f"sphex analyze {path} -v {name} --lmax {lmax} "
                                           f"--norm {norm}")
-        reporter = _ProgressReporter(n_fields, "sphex analyze", enabled=progress)
-        try:
-            if scheduler:
-                _write_distributed(ds, output, overwrite, scheduler, reporter)
-            else:
-                # the pool is left (waiting for every task it runs) before the temporary
-                # file is removed: a task still writing after a failure in another one
-                # would otherwise make the file anew
-                with atomic_output(output, overwrite) as tmp, thread_pool(), \
-                        _local_progress_callback(reporter):
-                    write_netcdf(ds, tmp)
-                reporter.fraction(1.0)
-        finally:
-            reporter.close()
+        write_lazily(ds, output, overwrite, scheduler=scheduler, fields=n_fields,
+                     label="sphex analyze", progress=progress)
     finally:
         src.close()
     return StreamResult(Path(output), name, info.describe(), int(lmax), norm,
                         bool(condon_shortley), int(n_fields), dim, int(block), int(n_chunks),
                         scheduler or "threads", time.monotonic() - t0)
+
+
+def write_lazily(ds: Any, output: str | os.PathLike, overwrite: bool = False, *,
+                 scheduler: str | None = None, fields: int = 1, label: str = "sphex",
+                 progress: bool = True) -> None:
+    """Compute a lazy (dask-backed) Dataset chunk by chunk into a netCDF file, atomically.
+
+    The streaming writer of :func:`stream_analyze`, for any lazy Dataset made
+    by the adapters (the flow diagnostics of :mod:`sphex.xr.flow_streaming`
+    use it too): dask's threads in this process following the thread rule of
+    :mod:`sphex.xr.scaleout`, or a ``dask.distributed`` scheduler; progress
+    on stderr for runs longer than two seconds; a temporary file renamed at
+    the end, so an error or interruption leaves no output.
+
+    Parameters
+    ----------
+    ds : xarray.Dataset
+        Lazy Dataset to compute and write.
+    output : path-like
+    overwrite : bool
+    scheduler : str, optional
+        Address of a running ``dask.distributed`` scheduler.
+    fields : int
+        Number of fields the run does (the progress counts them).
+    label : str
+        Text in front of the progress display.
+    progress : bool
+    """
+    reporter = _ProgressReporter(fields, label, enabled=progress)
+    try:
+        if scheduler:
+            _write_distributed(ds, output, overwrite, scheduler, reporter)
+        else:
+            # the pool is left (waiting for every task it runs) before the temporary
+            # file is removed: a task still writing after a failure in another one
+            # would otherwise make the file anew
+            with atomic_output(output, overwrite) as tmp, thread_pool(), \
+                    _local_progress_callback(reporter):
+                write_netcdf(ds, tmp)
+            reporter.fraction(1.0)
+    finally:
+        reporter.close()
 
 
 def _write_distributed(ds: Any, output: str | os.PathLike, overwrite: bool, address: str,
