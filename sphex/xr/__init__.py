@@ -21,6 +21,9 @@ Modules
                   :func:`regrid`, :func:`degree_power`
 ``scaleout``      dask: whole-field chunks, numba threads inside dask tasks
 ``streaming``     streaming analysis of a series larger than memory
+``localize``      localised (multitaper) spectra and rotation: :func:`local_power`,
+                  :func:`local_cross_power`, :func:`local_admittance`,
+                  :func:`local_correlation`, :func:`rotate`
 ``accessors``     ``da.sphex`` and ``ds.sphex`` (registered on import of this package)
 
 Examples
@@ -41,6 +44,9 @@ from sphex.xr import accessors  # noqa: F401  (registers da.sphex and ds.sphex)
 from sphex.xr.coefficients import COS, SIN, from_harmonics, is_coefficients, to_harmonics
 from sphex.xr.coords import GridInfo, find_grid, parse_grid
 from sphex.xr.fields import analyze, degree_power, regrid, smooth, synthesize
+from sphex.xr.localize import (
+    local_admittance, local_correlation, local_cross_power, local_power, rotate,
+)
 from sphex.xr.files import open_coefficients, open_harmonics, write_dataset, write_harmonics
 from sphex.xr.output import OutputExistsError, atomic_output, check_output_path
 from sphex.xr.tables import read_table, write_table
@@ -50,4 +56,5 @@ __all__ = [
     "smooth", "regrid", "degree_power", "to_harmonics", "from_harmonics",
     "write_harmonics", "write_dataset", "open_harmonics", "open_coefficients", "is_coefficients",
     "write_table", "read_table", "OutputExistsError", "atomic_output", "check_output_path",
+    "local_power", "local_cross_power", "local_admittance", "local_correlation", "rotate",
 ]
