@@ -5,6 +5,8 @@ Modules
 ``command``     the ``sphex bench`` command line (:func:`main`)
 ``transforms``  analysis and synthesis against the machine's own matrix-product rate,
                 peak memory, cold start
+``localize``    rotation (L=1023, 2047) and a localised spectrum (L=1023, 20 windows):
+                time and peak memory in fresh processes
 ``scaleout``    dask thread scaling and the memory of a streamed long series
                 (``sphex bench --scale``)
 """
