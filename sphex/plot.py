@@ -545,6 +545,16 @@ def _local_parts(local: Any) -> dict[str, Any]:
             "cap": local.cap_radius_deg, "lwin": local.lwin, "n": local.n_windows, "units": None}
 
 
+def _blurred_global(global_power: np.ndarray, p: dict[str, Any]) -> np.ndarray:
+    """The global spectrum blurred by the windows of one localised spectrum, on its degrees."""
+    from sphex.localize import expected_local_power
+
+    size = p["power"].size
+    g = np.zeros(size)
+    g[: min(size, global_power.size)] = global_power[:size]
+    return expected_local_power(g, p["cap"], p["lwin"], n_windows=p["n"])
+
+
 def _cap_text(p: dict[str, Any]) -> str:
     return (f"cap {p['cap']:g}° at {_lat_label(p['lat'])} {_lon_label(p['lon'])}, "
             f"window degree {p['lwin']}, {p['n']} window{'s' if p['n'] != 1 else ''}")
@@ -553,13 +563,18 @@ def _cap_text(p: dict[str, Any]) -> str:
 def local_spectrum_figure(local: Any, global_power: Any = None, *,
                           labels: Sequence[str] | None = None, units: str | None = None,
                           title: str | None = None, ylabel: str = "degree power",
-                          global_label: str = "global spectrum") -> Figure:
+                          global_label: str = "global spectrum", blurred: bool = True) -> Figure:
     """Localised spectra with their error bands beside the global spectrum (log-log).
 
     Each localised spectrum is drawn as a line with a band of plus and
     minus one standard error (its spread across the windows); inside its
     reliable degrees (``window degree .. lmax - window degree``) the line is
-    solid, outside dotted and pale.  The global spectrum is the ink line.
+    solid, outside dotted and pale.  The global spectrum is the ink line;
+    with ``blurred``, the global spectrum blurred by each localised
+    spectrum's windows (:func:`sphex.localize.expected_local_power`: what
+    the localised spectrum would be, on average, if the region were like the
+    whole planet) is drawn dashed over the reliable degrees.  That is the
+    curve to compare a localised spectrum with.
 
     Parameters
     ----------
@@ -575,6 +590,8 @@ def local_spectrum_figure(local: Any, global_power: Any = None, *,
     units : str, optional
         Units of the power (default from the Dataset).
     title, ylabel, global_label : str
+    blurred : bool
+        Also draw the blurred global spectrum (needs ``global_power``).
 
     Returns
     -------
@@ -618,6 +635,12 @@ def local_spectrum_figure(local: Any, global_power: Any = None, *,
             if inside.any():
                 tops.append(float((power + err)[inside].max()))
                 lows.append(float(lower[inside].min()))
+            if global_power is not None and blurred:
+                expected = _blurred_global(_as_1d(global_power), p)
+                keep = inside & (expected > 0)
+                ax.plot(np.where(keep, l, np.nan), np.where(keep, expected, np.nan),
+                        color=INK if len(parts) == 1 else colour, lw=1.1, ls=(0, (5, 3)),
+                        zorder=3, label="global, blurred by the windows" if i == 0 else None)
         ax.set_xscale("log")
         ax.set_yscale("log")
         lmax = max(p["power"].size for p in parts) - 1

@@ -11,7 +11,7 @@ import xarray as xr
 
 import sphex
 import sphex.xr as sxr
-from sphex.localize import local_power
+from sphex.localize import expected_local_power, local_power
 from sphex.spectra import degree_power
 
 LMAX = 30
@@ -61,14 +61,18 @@ def test_coefficient_file_gives_the_core_result_in_csv_and_plot(files):
     assert r.returncode == 0, r.stderr
     assert "reliable degrees 8..22" in r.stdout and f"wrote {csv}" in r.stdout
     header, table = read_csv(csv)
-    assert header == ["degree", "global_power", "local_power", "local_power_error", "valid"]
+    assert header == ["degree", "global_power", "blurred_global_power", "local_power",
+                      "local_power_error", "valid"]
     h1 = sphex.Harmonics(files["h"].coef[1])
     core = local_power(h1, *CENTRE, 40.0, 8)
     np.testing.assert_array_equal(table[:, 0], np.arange(LMAX + 1))
     np.testing.assert_allclose(table[:, 1], degree_power(h1), rtol=1e-12)
-    np.testing.assert_allclose(table[:, 2], core.power, rtol=1e-12)
-    np.testing.assert_allclose(table[:, 3], core.error, rtol=1e-12)
-    np.testing.assert_array_equal(table[:, 4], core.valid.astype(float))
+    np.testing.assert_allclose(table[:, 2], expected_local_power(degree_power(h1), 40.0, 8,
+                                                                 n_windows=core.n_windows),
+                               rtol=1e-12)
+    np.testing.assert_allclose(table[:, 3], core.power, rtol=1e-12)
+    np.testing.assert_allclose(table[:, 4], core.error, rtol=1e-12)
+    np.testing.assert_array_equal(table[:, 5], core.valid.astype(float))
     assert png.read_bytes()[:8] == b"\x89PNG\r\n\x1a\n"
 
 
@@ -81,7 +85,7 @@ def test_grid_file_with_pick_and_negative_latitude(files):
     assert "3 windows" in r.stdout
     _, table = read_csv(csv)
     core = local_power(sphex.Harmonics(files["h"].coef[1]), *CENTRE, 40.0, 8, n_windows=3)
-    np.testing.assert_allclose(table[:, 2], core.power, rtol=1e-10)
+    np.testing.assert_allclose(table[:, 3], core.power, rtol=1e-10)
     # printed table without --csv/--plot
     r = run(files["series"], "--at", "-28,128", "--cap", "40", "--window-degree", "8",
             "--pick", "time=0")
@@ -118,4 +122,4 @@ def test_several_fields_need_a_pick_and_existing_output_needs_overwrite(files):
     assert out.read_text() == "keep me\n"
     r = run(files["coef"], "--at", "10,20", "--cap", "40", "--window-degree", "8", "--csv", out,
             "--overwrite")
-    assert r.returncode == 0 and out.read_text().startswith("degree,global_power")
+    assert r.returncode == 0 and out.read_text().startswith("degree,global_power,")

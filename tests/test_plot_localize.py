@@ -5,7 +5,8 @@ import numpy as np
 import pytest
 
 from sphex import Harmonics, plot
-from sphex.localize import local_power
+from sphex.localize import expected_local_power, local_power
+from sphex.spectra import degree_power
 
 
 def haversine_deg(lat1, lon1, lat2, lon2):
@@ -80,11 +81,19 @@ def test_local_spectrum_figure_draws_the_global_and_local_curves(rng):
     c[:, 0] = c[:, 0].real
     h = Harmonics(c)
     loc = local_power(h, 20.0, 40.0, 40.0, 8)
-    glob = np.abs(c) ** 2 @ np.ones(lmax + 1)
+    glob = degree_power(h)
     fig = plot.local_spectrum_figure(loc, glob, title="t")
     ax = fig.axes[0]
     labels = [t.get_text() for t in ax.get_legend().get_texts()]
     assert labels[0] == "global spectrum" and "window degree 8" in labels[1]
+    assert labels[2] == "global, blurred by the windows"
+    # the dashed curve is the global spectrum blurred by the same windows, on the reliable degrees
+    dashed = [ln for ln in ax.lines if ln.get_label() == labels[2]][0]
+    expected = expected_local_power(glob, 40.0, 8, n_windows=loc.n_windows)
+    y = np.asarray(dashed.get_ydata(), dtype=float)
+    inside = np.isfinite(y)
+    np.testing.assert_array_equal(np.flatnonzero(inside), np.arange(8, lmax - 8 + 1))
+    np.testing.assert_allclose(y[inside], expected[inside], rtol=1e-14)
     assert ax.get_xscale() == "log" and ax.get_yscale() == "log"
     with pytest.raises(ValueError, match="labels"):
         plot.local_spectrum_figure(loc, glob, labels=["a", "b"])

@@ -19,6 +19,7 @@ import xarray as xr
 
 import sphex.xr as sxr
 from sphex import plot
+from sphex.localize import expected_local_power
 
 ROOT = Path(__file__).resolve().parents[2]
 DATA = ROOT / "data_demo" / "velanthe_topography.nc"
@@ -40,9 +41,10 @@ def main() -> None:
     conc = a["window_concentration"]
     print(f"{int(a['n_windows'])} windows, concentration {conc.min():.4f}..{conc.max():.6f}, "
           f"reliable degrees {int(a['valid_degree_min'])}..{int(a['valid_degree_max'])}")
-    for l in (15, 20, 30, 50, 74):
+    blurred = expected_local_power(glob.values, CAP_DEG, WINDOW_DEGREE, int(a["n_windows"]))
+    for l in (15, 18, 20, 25, 30, 50, 70, 74):
         print(f"  degree {l}: local {float(local.power[l]):.4g} +- {float(local.power_error[l]):.2g}"
-              f" m^2, global {float(glob[l]):.4g} m^2")
+              f" m^2, global {float(glob[l]):.4g} m^2, blurred by the windows {blurred[l]:.4g} m^2")
     fig = plot.local_spectrum_figure(local, glob, title="Orun basin against the whole of Velanthe")
     plot.save(fig, IMAGES / "orun_local_spectrum.png", overwrite=True)
     fig = plot.map_figure(topo, center=0.0, title="Velanthe: the cap of the localised spectrum")

@@ -90,7 +90,9 @@ def register(sub: Any) -> None:
     q.add_argument("--pick", type=pick, metavar="DIM=I",
                    help="one field of a file with extra dimensions, by index (time=0)")
     q.add_argument("--lmax", type=whole_number, metavar="N", help="degree limit")
-    q.add_argument("--csv", metavar="CSV", help="write degree, global and local power, error, valid")
+    q.add_argument("--csv", metavar="CSV",
+                   help="write degree, global power (raw and blurred by the windows), local power, "
+                        "its error, valid")
     q.add_argument("--plot", metavar="PNG", help="write the local spectrum beside the global one")
     q.add_argument("--overwrite", action="store_true", help="replace CSV/PNG if they exist")
     # let "--at -28,128" through as a value: argparse takes a word starting with '-' for an
@@ -114,9 +116,10 @@ def run(a: argparse.Namespace) -> int:
     lat, lon = a.at
     local = local_power(ds, lat, lon, a.cap, a.window_degree, a.windows)
     glob = degree_power(ds)
-    lines = _summary(source, local, glob)
+    rows = _rows(local, glob)
+    lines = _summary(source, rows, local)
     if a.csv:
-        _write_csv(a.csv, a.overwrite, local, glob)
+        _write_csv(a.csv, a.overwrite, rows)
         lines.append(f"wrote {a.csv}")
     if a.plot:
         from sphex import plot
@@ -125,10 +128,11 @@ def run(a: argparse.Namespace) -> int:
         plot.save(fig, a.plot, overwrite=a.overwrite)
         lines.append(f"wrote {a.plot}")
     if not a.csv and not a.plot:
-        lines.append(f"{'degree':>6} {'global_power':>22} {'local_power':>22} "
-                     f"{'local_power_error':>22} valid")
-        for row in _rows(local, glob):
-            lines.append(f"{row[0]:6d} {row[1]:22.15g} {row[2]:22.15g} {row[3]:22.15g} {row[4]:5d}")
+        names = ("global_power", "blurred_global_power", "local_power", "local_power_error")
+        lines.append(f"{'degree':>6} " + " ".join(f"{n:>22}" for n in names) + " valid")
+        for row in rows:
+            lines.append(f"{row[0]:6d} " + " ".join(f"{v:22.15g}" for v in row[1:5])
+                         + f" {row[5]:5d}")
     say(*lines)
     return 0
 
@@ -216,18 +220,24 @@ def _check_windows(a: argparse.Namespace, lmax: int) -> None:
                         "--window-degree or --cap, or give --windows K")
 
 
-def _rows(local: Any, glob: Any) -> list[tuple[int, float, float, float, int]]:
+def _rows(local: Any, glob: Any) -> list[tuple[int, float, float, float, float, int]]:
+    """(degree, global, blurred global, local, local error, valid) per degree."""
     import numpy as np
+
+    from sphex.localize import expected_local_power
 
     power = np.asarray(local["power"].values)
     error = np.asarray(local["power_error"].values)
     valid = np.asarray(local["valid"].values)
     g = np.asarray(glob.values)
-    return [(l, float(g[l]), float(power[l]), float(error[l]), int(valid[l]))
+    at = local.attrs
+    blurred = expected_local_power(g, float(at["cap_radius_deg"]), int(at["window_degree"]),
+                                   int(at["n_windows"]))
+    return [(l, float(g[l]), float(blurred[l]), float(power[l]), float(error[l]), int(valid[l]))
             for l in range(power.size)]
 
 
-def _summary(source: str, local: Any, glob: Any) -> list[str]:
+def _summary(source: str, rows: list, local: Any) -> list[str]:
     import numpy as np
 
     at = local.attrs
@@ -239,23 +249,24 @@ def _summary(source: str, local: Any, glob: Any) -> list[str]:
              f"{at['cap_radius_deg']:g} deg, window degree {int(at['window_degree'])}",
              f"  {int(at['n_windows'])} windows, concentration {conc.min():.4f} to {conc.max():.6f}"]
     if lo <= hi:
-        band = slice(lo, hi + 1)
-        loc = float(local["power"].values[band].sum())
-        gl = float(np.asarray(glob.values)[band].sum())
-        lines.append(f"  reliable degrees {lo}..{hi}: local power {loc:.6g} {units}, "
-                     f"global {gl:.6g} {units} (ratio {loc / gl:.3g})" if gl > 0 else
-                     f"  reliable degrees {lo}..{hi}: local power {loc:.6g} {units}")
+        loc = sum(r[3] for r in rows[lo:hi + 1])
+        blurred = sum(r[2] for r in rows[lo:hi + 1])
+        text = f"  reliable degrees {lo}..{hi}: local power {loc:.6g} {units}"
+        if blurred > 0:
+            text += (f", global blurred by the windows {blurred:.6g} {units} "
+                     f"(ratio {loc / blurred:.3g})")
+        lines.append(text)
     else:
         lines.append(f"  no reliable degree: lmax {hi + int(at['window_degree'])} is below twice the "
                      "window degree; lower --window-degree")
     return lines
 
 
-def _write_csv(path: str, overwrite: bool, local: Any, glob: Any) -> None:
+def _write_csv(path: str, overwrite: bool, rows: list) -> None:
     from sphex.xr.output import atomic_output
 
     with atomic_output(path, overwrite) as tmp:
         with open(tmp, "w", encoding="utf-8") as f:
-            f.write("degree,global_power,local_power,local_power_error,valid\n")
-            for l, g, p, e, v in _rows(local, glob):
-                f.write(f"{l},{g:.17g},{p:.17g},{e:.17g},{v}\n")
+            f.write("degree,global_power,blurred_global_power,local_power,local_power_error,valid\n")
+            for l, g, b, p, e, v in rows:
+                f.write(f"{l},{g:.17g},{b:.17g},{p:.17g},{e:.17g},{v}\n")
