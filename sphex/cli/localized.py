@@ -4,6 +4,7 @@ from __future__ import annotations
 import argparse
 import math
 import re
+from pathlib import Path
 from typing import Any
 
 from sphex.cli.shared import (
@@ -124,7 +125,8 @@ def run(a: argparse.Namespace) -> int:
     if a.plot:
         from sphex import plot
 
-        fig = plot.local_spectrum_figure(local, glob, title=f"Localised spectrum: {source}")
+        fig = plot.local_spectrum_figure(local, glob,
+                                         title=f"Localised spectrum: {Path(a.input).name}")
         plot.save(fig, a.plot, overwrite=a.overwrite)
         lines.append(f"wrote {a.plot}")
     if not a.csv and not a.plot:
