@@ -123,3 +123,15 @@ def test_bad_inputs_name_the_fix(batch_coefficients):
         sxr.local_power(xr.Dataset({"x": ("a", [1.0])}), 0.0, 0.0, CAP, LWIN)
     with pytest.raises(ValueError, match="outside the coefficients"):
         sxr.local_power(batch_coefficients, 0.0, 0.0, CAP, LWIN, lmax=LMAX + 1)
+
+
+def test_dask_backed_field_gives_the_same_spectrum(rng):
+    pytest.importorskip("dask")
+    grid = sphex.Grid.gauss(LMAX)
+    h = random_harmonics(rng, LMAX, batch=(4,))
+    da = xr.DataArray(sphex.synthesize(h, grid), dims=("time", "lat", "lon"),
+                      coords={"lat": grid.lat, "lon": grid.lon}, name="t")
+    eager = sxr.local_power(da, 5.0, 60.0, CAP, LWIN)
+    lazy = sxr.local_power(da.chunk({"time": 2}), 5.0, 60.0, CAP, LWIN)
+    np.testing.assert_allclose(lazy.power.values, eager.power.values, rtol=1e-13)
+    assert lazy.power.dims == ("time", "degree")
