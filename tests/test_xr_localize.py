@@ -123,6 +123,9 @@ def test_bad_inputs_name_the_fix(batch_coefficients):
         sxr.local_power(xr.Dataset({"x": ("a", [1.0])}), 0.0, 0.0, CAP, LWIN)
     with pytest.raises(ValueError, match="outside the coefficients"):
         sxr.local_power(batch_coefficients, 0.0, 0.0, CAP, LWIN, lmax=LMAX + 1)
+    other = batch_coefficients.assign_coords(member=["a", "c"])
+    with pytest.raises(ValueError, match="coordinates differ"):
+        sxr.local_cross_power(batch_coefficients, other, 0.0, 0.0, CAP, LWIN)
 
 
 def test_dask_backed_field_gives_the_same_spectrum(rng):

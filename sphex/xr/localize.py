@@ -92,6 +92,11 @@ def _common_fields(datasets: list[xr.Dataset]) -> tuple[list[Harmonics], list[Ha
     dims: list[Hashable] = []
     for ds in datasets:
         dims += [d for d in _batch_dims(ds) if d not in dims]
+    try:
+        xr.align(*(ds[COS] for ds in datasets), join="exact")
+    except ValueError:
+        raise ValueError("the two fields' coordinates differ along a dimension they share; "
+                         "select matching fields first (for example with .sel)") from None
     cos = xr.broadcast(*(ds[COS] for ds in datasets))
     sin = xr.broadcast(*(ds[SIN] for ds in datasets))
     order = (*dims, *_SPATIAL)
