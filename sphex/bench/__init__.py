@@ -6,6 +6,9 @@ Modules
 ``transforms``  analysis and synthesis against the machine's own matrix-product rate,
                 peak memory, cold start
 ``vectors``     a (u, v) pair of vector components against two scalar transforms
+
+``localize``    rotation (L=1023, 2047) and a localised spectrum (L=1023, 20 windows):
+                time and peak memory in fresh processes
 ``scaleout``    dask thread scaling and the memory of a streamed long series
                 (``sphex bench --scale``)
 """

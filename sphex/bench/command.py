@@ -36,6 +36,9 @@ def main(argv: Sequence[str] | None = None) -> int:
                              "(default 10800: 1.9 GB of input, several minutes)")
     parser.add_argument("--cold", action="store_true",
                         help="also time the first call with an empty numba cache and a warm CLI call")
+    parser.add_argument("--no-rotation", action="store_true",
+                        help="skip rotation (L=1023, 2047) and the localised spectrum (L=1023, "
+                             "20 windows)")
     parser.add_argument("--scale", action="store_true",
                         help="run the dask scale-out benchmark instead (see sphex.bench.scaleout)")
     parser.add_argument("--json", action="store_true", help="print JSON instead of a table")
@@ -59,5 +62,11 @@ def main(argv: Sequence[str] | None = None) -> int:
         parser.error("sizes and --repeat must be positive integers, --vector-size 0 or more")
     result = transforms.run(args.sizes, batch, not args.no_memory, args.repeat, args.huge,
                             args.cold, args.vector_size or None)
-    print(json.dumps(result, indent=2) if args.json else transforms.format_table(result))
+    table = transforms.format_table(result)
+    if not args.no_rotation:
+        from sphex.bench import localize
+
+        result["rotation_and_local_spectra"] = localize.run(repeat=args.repeat)
+        table += "\n\n" + localize.format_table(result["rotation_and_local_spectra"])
+    print(json.dumps(result, indent=2) if args.json else table)
     return 0

@@ -13,7 +13,7 @@ import sys
 from collections.abc import Sequence
 from typing import Any, NoReturn
 
-from sphex.cli import bench, demo, fields, flow, inspection, spectrum, transforms
+from sphex.cli import bench, demo, fields, flow, inspection, localized, spectrum, transforms
 from sphex.cli.shared import FORMATTER, PROG, UserError, report_error
 
 __all__ = ["main", "build_parser"]
@@ -28,6 +28,7 @@ commands:
   analyze     grid file -> spherical-harmonic coefficient file
   synthesize  coefficient file -> grid file (any supported grid)
   spectrum    degree power spectrum (table, CSV, plot)
+  local-spectrum  localised (multitaper) spectrum of a region, with errors
   smooth      isotropic smoothing (Gaussian, spherical cap, degree taper)
   regrid      spectral regridding onto another grid
   flow        vorticity, divergence, streamfunction, velocity potential and
@@ -46,7 +47,7 @@ start here:
 """
 
 #: The subcommand modules, in the order their subcommands are listed.
-COMMAND_MODULES = (transforms, spectrum, fields, flow, inspection, demo, bench)
+COMMAND_MODULES = (transforms, spectrum, localized, fields, flow, inspection, demo, bench)
 
 
 class OneLineParser(argparse.ArgumentParser):

@@ -26,6 +26,10 @@ Modules
                   :func:`to_flow`, :func:`from_flow`
 ``flow_components`` the two components checked as a pair, the radius, units and CF names
 ``flow_streaming`` flow diagnostics of a file streamed chunk by chunk: :func:`stream_flow`
+
+``localize``      localised (multitaper) spectra and rotation: :func:`local_power`,
+                  :func:`local_cross_power`, :func:`local_admittance`,
+                  :func:`local_correlation`, :func:`rotate`
 ``accessors``     ``da.sphex`` and ``ds.sphex`` (registered on import of this package)
 
 Examples
@@ -50,6 +54,10 @@ from sphex.xr.flow import (
     analyze_flow, flow_fields, from_flow, kinetic_energy, regrid_flow, smooth_flow, to_flow,
 )
 from sphex.xr.flow_components import EARTH_MEAN_RADIUS_M, RadiusAssumedWarning
+
+from sphex.xr.localize import (
+    local_admittance, local_correlation, local_cross_power, local_power, rotate,
+)
 from sphex.xr.files import open_coefficients, open_harmonics, write_dataset, write_harmonics
 from sphex.xr.output import OutputExistsError, atomic_output, check_output_path
 from sphex.xr.tables import read_table, write_table
@@ -61,4 +69,6 @@ __all__ = [
     "write_table", "read_table", "OutputExistsError", "atomic_output", "check_output_path",
     "analyze_flow", "flow_fields", "kinetic_energy", "regrid_flow", "smooth_flow", "to_flow",
     "from_flow", "EARTH_MEAN_RADIUS_M", "RadiusAssumedWarning",
+
+    "local_power", "local_cross_power", "local_admittance", "local_correlation", "rotate",
 ]
