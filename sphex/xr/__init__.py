@@ -14,6 +14,9 @@ Modules
                   :func:`from_harmonics`, :func:`to_harmonics`, :func:`is_coefficients`
 ``models``        potential models in netCDF: :func:`write_model`, :func:`read_model`,
                   :func:`open_model` (also registered with :func:`sphex.models.open_model`)
+``potential``     gravity and magnetic quantities as Datasets: :func:`gravity_fields`,
+                  :func:`magnetic_fields`, :func:`degree_variances`,
+                  :func:`error_degree_variances`
 ``tables``        plain text tables: :func:`write_table`, :func:`read_table`
 ``files``         netCDF files: :func:`write_dataset`, :func:`write_harmonics`,
                   :func:`open_coefficients`, :func:`open_harmonics`
@@ -45,6 +48,9 @@ from sphex.xr.coords import GridInfo, find_grid, parse_grid
 from sphex.xr.fields import analyze, degree_power, regrid, smooth, synthesize
 from sphex.xr.files import open_coefficients, open_harmonics, write_dataset, write_harmonics
 from sphex.xr.models import open_model, read_model, write_model
+from sphex.xr.potential import (
+    degree_variances, error_degree_variances, gravity_fields, magnetic_fields,
+)
 from sphex.xr.output import OutputExistsError, atomic_output, check_output_path
 from sphex.xr.tables import read_table, write_table
 
@@ -53,5 +59,6 @@ __all__ = [
     "smooth", "regrid", "degree_power", "to_harmonics", "from_harmonics",
     "write_harmonics", "write_dataset", "open_harmonics", "open_coefficients", "is_coefficients",
     "write_table", "read_table", "OutputExistsError", "atomic_output", "check_output_path",
-    "open_model", "read_model", "write_model",
+    "open_model", "read_model", "write_model", "gravity_fields", "magnetic_fields",
+    "degree_variances", "error_degree_variances",
 ]
