@@ -13,7 +13,7 @@ import sys
 from collections.abc import Sequence
 from typing import Any, NoReturn
 
-from sphex.cli import bench, demo, fields, inspection, spectrum, transforms
+from sphex.cli import bench, demo, fields, inspection, potential, spectrum, transforms
 from sphex.cli.shared import FORMATTER, PROG, UserError, report_error
 
 __all__ = ["main", "build_parser"]
@@ -31,6 +31,9 @@ commands:
   smooth      isotropic smoothing (Gaussian, spherical cap, degree taper)
   regrid      spectral regridding onto another grid
   inspect     what grid each variable is on, or why it is not usable
+  gravity     gravity model file -> grid of geoid, anomalies, deflections
+              (not certified for surveying, engineering or navigation)
+  geomagnetic geomagnetic model file -> grid of field components, D and I
   demo        the whole job on bundled synthetic data
   bench       speed measurements
 
@@ -44,7 +47,7 @@ start here:
 """
 
 #: The subcommand modules, in the order their subcommands are listed.
-COMMAND_MODULES = (transforms, spectrum, fields, inspection, demo, bench)
+COMMAND_MODULES = (transforms, spectrum, fields, inspection, potential, demo, bench)
 
 
 class OneLineParser(argparse.ArgumentParser):
