@@ -82,8 +82,8 @@ from sphex.points import check_points, evaluate, evaluate_gradient
 from sphex.transform import synthesize_rings
 
 __all__ = ["gravity", "magnetic", "normal_gravity", "degree_variances",
-           "error_degree_variances", "kaula_rule", "magnetic_power", "GRAVITY_QUANTITIES",
-           "MAGNETIC_COMPONENTS", "NormalField", "GRS80", "WGS84"]
+           "error_degree_variances", "crossing_degree", "kaula_rule", "magnetic_power",
+           "GRAVITY_QUANTITIES", "MAGNETIC_COMPONENTS", "NormalField", "GRS80", "WGS84"]
 
 GRAVITY_QUANTITIES = ("geoid", "height_anomaly", "anomaly", "disturbance", "radial_gradient",
                       "deflection_north", "deflection_east")
@@ -641,6 +641,35 @@ def error_degree_variances(model, norm: str | None = None) -> np.ndarray:
     norm = h.norm if norm is None else norm
     C, S = h.to(norm=norm).cos_sin()  # the phase convention stays: signs of sigmas are kept
     return np.sum(C**2 + S**2, axis=-1)
+
+
+def crossing_degree(signal, error) -> int | None:
+    """The first degree (from 2) where the error degree variances reach the degree variances.
+
+    Parameters
+    ----------
+    signal, error : array_like, shape (lmax + 1,)
+        Degree variances and error degree variances of one model.
+
+    Returns
+    -------
+    int or None
+        The degree, or None when the errors stay below the signal up to lmax:
+        from there on the model carries no information about the field.
+
+    Examples
+    --------
+    >>> from sphex.potential import crossing_degree
+    >>> crossing_degree([1.0, 0.0, 1e-6, 1e-8, 1e-10], [0.0, 0.0, 1e-12, 1e-9, 1e-9])
+    4
+    """
+    s = np.asarray(signal, dtype=np.float64)
+    e = np.asarray(error, dtype=np.float64)
+    if s.ndim != 1 or s.shape != e.shape:
+        raise ValueError(f"signal and error must be two 1-D arrays of one length, got shapes "
+                         f"{s.shape} and {e.shape}")
+    reached = np.flatnonzero(e[2:] >= s[2:])
+    return int(reached[0]) + 2 if reached.size else None
 
 
 def kaula_rule(lmax: int, constant: float = 1e-5) -> np.ndarray:
