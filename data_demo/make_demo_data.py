@@ -2,7 +2,7 @@
 
 Run from the repository root::
 
-    /work/venv/bin/python data_demo/make_demo_data.py            # (re)writes the two files here
+    /work/venv/bin/python data_demo/make_demo_data.py            # (re)writes the files here
     python data_demo/make_demo_data.py --out DIR                # somewhere else
 
 The data are invented (seeded random numbers and simple formulas in
@@ -13,6 +13,9 @@ The data are invented (seeded random numbers and simple formulas in
 - ``velanthe_surface_temperature.nc``: ``surface_temperature`` (K), 12 time
   steps on a 48 x 96 Gauss-Legendre grid, latitudes north to south, longitudes
   from 0 (CF standard_name attributes).
+- ``velanthe_gravity.gfc``: an invented degree-40 gravity model in the
+  gravity-field exchange format (keyword header, ``gfc`` rows with formal
+  standard deviations); its header says it is invented.
 """
 from __future__ import annotations
 

@@ -463,7 +463,7 @@ def model_spectrum_figure(signal: Any, error: Any = None, *, kaula: float | None
     if kaula is not None:
         ax.lines[-1].set_linestyle((0, (2, 2)))
         ax.lines[-1].set_color(INK)
-    ax.legend(frameon=False, loc="upper right", fontsize=8.5)
+    ax.legend(frameon=False, loc="best", fontsize=8.5)
     if e is not None:
         cross = crossing_degree(s, e)
         if cross is not None:

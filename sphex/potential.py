@@ -349,6 +349,11 @@ def _disturbing(h: Harmonics, gm: float, normal: NormalField | None) -> Harmonic
     """Coefficients of T = V - U_gravitational (h itself without a normal field)."""
     if normal is None:
         return h
+    if not 0.9 < normal.gm / gm < 1.1:
+        raise ValueError(f"the normal field's GM ({normal.gm:.6g} m^3 s^-2) is not the model's "
+                         f"({gm:.6g}): it belongs to another body; use normal='sphere' (the "
+                         "model's own GM/r) for a body without an ellipsoid, or a NormalField "
+                         "of this body")
     if h.lmax < 2 * ZONAL_COUNT:
         h = h.truncate(2 * ZONAL_COUNT)  # room for the normal field's zonal terms
     coef = h.coef.copy()
@@ -378,10 +383,13 @@ def gravity(model, grid: Grid, quantity, height: float = 0.0, normal="grs80", *,
     height : float
         Metres above the reference sphere (``surface="sphere"``) or the
         ellipsoid (``surface="ellipsoid"``).  ``"geoid"`` needs 0.
-    normal : {"grs80", "wgs84"}, NormalField or None
+    normal : {"grs80", "wgs84", "sphere"}, NormalField or None
         The normal field removed (rescaled to the model's GM and radius); it
-        also gives normal gravity ``gamma``.  None removes nothing and takes
-        ``gamma = GM/r^2``.
+        also gives normal gravity ``gamma``.  "sphere" removes the model's own
+        ``GM/r`` (a body without an ellipsoid: quantities relative to the
+        sphere of radius R).  None removes nothing and takes
+        ``gamma = GM/r^2``.  A normal field whose GM differs from the
+        model's by more than 10 % is refused (it belongs to another body).
     gm : float, optional
         GM (m^3 s^-2) of Harmonics input, or of a model file without it.
     surface : {"sphere", "ellipsoid"}
@@ -441,6 +449,8 @@ def gravity(model, grid: Grid, quantity, height: float = 0.0, normal="grs80", *,
                          "quantity='height_anomaly' for values at a height")
     grid = _check_where(grid)
     surface = _check_surface(surface)
+    if isinstance(normal, str) and normal.lower() == "sphere":
+        normal = NormalField(gm=gm, semi_major_axis=h.radius)  # GM/r of the model itself
     normal = normal_field(normal)
     rings = _locate(grid, h.radius, height, surface, normal)
     t = _disturbing(h, gm, normal)

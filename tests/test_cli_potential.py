@@ -18,6 +18,7 @@ def model_files(tmp_path_factory):
     d = tmp_path_factory.mktemp("models")
     (d / "m.gfc").write_text(gravity_text())
     (d / "f.shc").write_text(SHC)
+    (d / "moon.gfc").write_text(gravity_text().replace("3.986004415E+14", "4.9E+12"))
     text = gravity_text()
     (d / "truncated.gfc").write_text(text[: text.rindex("gfc")])  # the last row cut off
     return d
@@ -82,6 +83,7 @@ def test_spectrum_of_a_model_file(model_files, tmp_path):
     (["gravity", "m.gfc", "--grid", "gauss:8", "--lmax", "9"], "above the model's degree 3"),
     (["geomagnetic", "f.shc", "--grid", "gauss:8", "--epoch", "1900"], "outside the file's epochs"),
     (["spectrum", "truncated.gfc"], "truncated.gfc"),
+    (["gravity", "moon.gfc", "--grid", "gauss:8"], "belongs to another body"),
 ])
 def test_model_errors_exit_2_with_one_line(model_files, tmp_path, args, words):
     out = tmp_path / "out.nc"

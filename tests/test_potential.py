@@ -333,6 +333,8 @@ def test_gravity_errors():
     magnetic_model = PotentialModel(harmonics=h.replace(units="nT"), kind="magnetic")
     with pytest.raises(ValueError, match="use sphex.potential.magnetic"):
         gravity(magnetic_model, grid, "anomaly", gm=GM)
+    with pytest.raises(ValueError, match="belongs to another body; use normal='sphere'"):
+        gravity(h, grid, "anomaly", gm=4.9e12)  # a moon's GM against the Earth's normal field
     with pytest.raises(ValueError, match="drop gm"):
         gravity(PotentialModel(harmonics=h, gm=GM), grid, "anomaly", gm=GM)
 

@@ -23,13 +23,14 @@ end_of_head, then gfc rows; gzipped is fine) or a sphex netCDF model file.
 Quantities (spherical approximation; SI units, deflections in arcseconds):
 geoid (m), height_anomaly (m), anomaly and disturbance (m s-2),
 radial_gradient (s-2), deflection_north and deflection_east. The normal field
-(grs80, wgs84 or none) is removed first; --surface ellipsoid reads the grid's
+(grs80 or wgs84 for the Earth; sphere, the model's own GM/r, for other bodies;
+or none) is removed first; --surface ellipsoid reads the grid's
 latitudes as geodetic and --height as ellipsoidal height.
 
 {CAUTION}
 
 example:
-  sphex gravity velanthe_gravity.gfc --grid gauss:89 --quantity geoid anomaly --normal none -o velanthe_geoid.nc
+  sphex gravity velanthe_gravity.gfc --grid gauss:89 --quantity geoid anomaly --normal sphere -o velanthe_geoid.nc
 """
 
 GEOMAGNETIC_EXAMPLE = """\
@@ -53,8 +54,9 @@ def register(sub: Any) -> None:
     q.add_argument("--quantity", nargs="+", choices=GRAVITY_CHOICES, default=["geoid"],
                    metavar="Q", help="one or more of: " + ", ".join(GRAVITY_CHOICES)
                    + " (default geoid)")
-    q.add_argument("--normal", choices=("grs80", "wgs84", "none"), default="grs80",
-                   help="normal field removed (default grs80; none for other planets)")
+    q.add_argument("--normal", choices=("grs80", "wgs84", "sphere", "none"), default="grs80",
+                   help="normal field removed: grs80 (default) or wgs84 for the Earth; sphere "
+                        "(the model's own GM/r) for other bodies; none removes nothing")
     q.add_argument("--gm", type=float, metavar="M3S2",
                    help="GM in m^3 s^-2, for a model file that does not state it")
     add_output_arguments(q)
@@ -134,6 +136,13 @@ def run_gravity(a: argparse.Namespace) -> int:
     like = _grid(a.grid)
     if model.gm is not None and a.gm is not None:
         raise UserError(f"{a.model} states GM = {model.gm!r}; drop --gm")
+    gm = model.gm if model.gm is not None else a.gm
+    if a.normal in ("grs80", "wgs84") and gm is not None:
+        from sphex.normal_field import normal_field
+
+        if not 0.9 < normal_field(a.normal).gm / gm < 1.1:
+            raise UserError(f"{a.model}: GM {gm:.6g} m^3 s^-2 is not the Earth's; the normal "
+                            f"field {a.normal} belongs to another body: use --normal sphere")
     ds = gravity_fields(model, like, height=a.height, quantities=a.quantity,
                         normal=None if a.normal == "none" else a.normal, gm=a.gm,
                         surface=a.surface)

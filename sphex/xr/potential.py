@@ -8,6 +8,7 @@ surveying, engineering or navigation.
 """
 from __future__ import annotations
 
+import dataclasses
 import os
 from collections.abc import Sequence
 from typing import Any
@@ -53,13 +54,22 @@ MAGNETIC_ATTRIBUTES: dict[str, tuple[str, str, str | None]] = {
 }
 
 
-def _model(model: Any) -> PotentialModel | Harmonics:
+def _model(model: Any, lmax: int | None = None) -> PotentialModel | Harmonics:
     if isinstance(model, (str, os.PathLike)):
-        return open_model(model)
-    if isinstance(model, (PotentialModel, Harmonics)):
+        model = open_model(model)
+    if not isinstance(model, (PotentialModel, Harmonics)):
+        raise ValueError(f"model must be a PotentialModel, Harmonics or a model file path, got "
+                         f"{type(model).__name__}")
+    if lmax is None:
         return model
-    raise ValueError(f"model must be a PotentialModel, Harmonics or a model file path, got "
-                     f"{type(model).__name__}")
+    if isinstance(lmax, bool) or int(lmax) != lmax or not 0 <= lmax <= model.lmax:
+        raise ValueError(f"lmax must be a whole number from 0 to the model's degree "
+                         f"{model.lmax}, got {lmax!r}")
+    if isinstance(model, Harmonics):
+        return model.truncate(int(lmax))
+    sigmas = None if model.sigmas is None else model.sigmas.truncate(int(lmax))
+    return dataclasses.replace(model, harmonics=model.harmonics.truncate(int(lmax)),
+                               sigmas=sigmas)
 
 
 def _batch_dims(model) -> tuple[tuple[str, ...], dict]:
@@ -99,12 +109,14 @@ def _model_attributes(model) -> dict:
         out["tide_system"] = model.tide_system
     if model.epoch is not None and np.ndim(model.epoch) == 0:
         out["epoch"] = float(model.epoch)
+    out["model_lmax_used"] = int(model.lmax)
     return {k: v for k, v in out.items() if v not in ("", None)}
 
 
 def gravity_fields(model, like, *, height: float = 0.0,
                    quantities: Sequence[str] | str = ("geoid", "anomaly"), normal="grs80",
-                   gm: float | None = None, surface: str = "sphere") -> xr.Dataset:
+                   gm: float | None = None, surface: str = "sphere",
+                   lmax: int | None = None) -> xr.Dataset:
     """Gravity quantities of a model on a grid, as a Dataset with units and CF attributes.
 
     Parameters
@@ -121,7 +133,11 @@ def gravity_fields(model, like, *, height: float = 0.0,
     quantities : str or sequence of str
         Names of :data:`sphex.potential.GRAVITY_QUANTITIES`; one variable each.
     normal, gm, surface
-        As :func:`sphex.potential.gravity`.
+        As :func:`sphex.potential.gravity` (``normal="sphere"`` removes the
+        model's own ``GM/r``: for bodies other than the Earth).
+    lmax : int, optional
+        Use the model up to this degree only (for example below the degree
+        where its errors reach its signal).
 
     Returns
     -------
@@ -150,17 +166,17 @@ def gravity_fields(model, like, *, height: float = 0.0,
     >>> ds["anomaly"].attrs["units"], ds["anomaly"].dims
     ('m s-2', ('lat', 'lon'))
     """
-    model = _model(model)
+    model = _model(model, lmax)
     info, lat, lon = synthesis_target(like)
     values = potential.gravity(model, info.grid, list(_names(quantities)), height, normal,
                                gm=gm, surface=surface)
-    field = normal_field(normal)
+    field = None if isinstance(normal, str) and normal.lower() == "sphere" else normal_field(normal)
     attrs = {"title": "gravity field quantities (sphex)", "height": float(height),
              "height_units": "m", **_model_attributes(model),
              "latitude_kind": "geodetic" if surface == "ellipsoid" else "geocentric",
              "reference_surface_kind": surface,
-             "normal_field": ("none" if field is None else
-                              normal if isinstance(normal, str) else "user-defined"),
+             "normal_field": (normal if isinstance(normal, str) else
+                              "none" if field is None else "user-defined"),
              "comment": CAUTION}
     return _dataset(values, GRAVITY_ATTRIBUTES, model, like, info, lat, lon, attrs)
 
@@ -176,7 +192,8 @@ def _names(names: Sequence[str] | str) -> list[str]:
 
 def magnetic_fields(model, like, *, height: float = 0.0,
                     components: Sequence[str] | str = ("north", "east", "down"),
-                    surface: str = "sphere", ellipsoid="wgs84") -> xr.Dataset:
+                    surface: str = "sphere", ellipsoid="wgs84",
+                    lmax: int | None = None) -> xr.Dataset:
     """Magnetic field components of a model on a grid, as a Dataset with units.
 
     Parameters
@@ -192,13 +209,15 @@ def magnetic_fields(model, like, *, height: float = 0.0,
         Names of :data:`sphex.potential.MAGNETIC_COMPONENTS`.
     surface, ellipsoid
         As :func:`sphex.potential.magnetic`.
+    lmax : int, optional
+        Use the model up to this degree only.
 
     Returns
     -------
     xarray.Dataset
         One variable per component, tesla (X, Y, Z, H, F) or degrees (D, I).
     """
-    model = _model(model)
+    model = _model(model, lmax)
     info, lat, lon = synthesis_target(like)
     values = potential.magnetic(model, info.grid, list(_names(components)), height,
                                 surface=surface, ellipsoid=ellipsoid)
