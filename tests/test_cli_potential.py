@@ -73,6 +73,10 @@ def test_spectrum_of_a_model_file(model_files, tmp_path):
     got = np.array([[float(x) for x in row[1:]] for row in rows[1:]])
     np.testing.assert_allclose(got[:, 0], dv, rtol=1e-15)
     np.testing.assert_allclose(got[:, 1], ev, rtol=1e-15)
+    png = tmp_path / "s.png"
+    r = run("spectrum", model_files / "m.gfc", "--plot", png)
+    assert r.returncode == 0, r.stderr
+    assert png.read_bytes()[:8] == b"\x89PNG\r\n\x1a\n"
 
 
 @pytest.mark.parametrize("args, words", [

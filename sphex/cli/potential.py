@@ -225,3 +225,15 @@ def model_spectra(path: str, lmax: int | None):
     what = (f"{model.kind} model {model.name or path} to degree {model.lmax} "
             f"({series[0].attrs['normalization']} coefficients)")
     return out, what
+
+
+def draw_model_spectrum(path: str, overwrite: bool, spectra, name: str) -> None:
+    """The plot of ``sphex spectrum MODEL --plot``: degree variances, error degree variances
+    (when the model has them) and the degree where they cross."""
+    from sphex import plot
+
+    error = spectra.isel(series=1) if spectra.sizes["series"] > 1 else None
+    fig = plot.model_spectrum_figure(spectra.isel(series=0), error,
+                                     units=spectra.attrs.get("units") or None,
+                                     title=f"Degree variances: {name}")
+    plot.save(fig, path, overwrite=overwrite)

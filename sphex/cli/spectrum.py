@@ -69,8 +69,13 @@ def run(a: argparse.Namespace) -> int:
     if a.csv:
         _write_csv(a.csv, a.overwrite, labels, table, units)
         lines.append(f"wrote {a.csv}")
-    if a.plot:
+    if a.plot and isinstance(ds, xr.DataArray):  # a model file: signal, error and their crossing
+        from sphex.cli.potential import draw_model_spectrum
+
+        draw_model_spectrum(a.plot, a.overwrite, power, Path(a.input).name)
+    elif a.plot:
         _draw_power_plot(a.plot, a.overwrite, labels, table, units, a.slope, Path(a.input).name)
+    if a.plot:
         lines.append(f"wrote {a.plot}")
     if not a.csv and not a.plot:
         w = max(22, *(len(x) for x in labels)) if labels else 22
