@@ -50,10 +50,13 @@ Evaluation is by the fast transforms on a :class:`~sphex.grids.Grid`
 (:func:`~sphex.transform.synthesize_rings`: the radial factors are per-degree
 weights applied inside the Legendre stage, one set per ring radius, so the
 coefficients are not copied per quantity), or, for a pair ``(lat, lon)`` of
-arrays, by the exact point sums of :func:`sphex.points.evaluate` and
-:func:`sphex.points.evaluate_gradient` (about ``(lmax+1)^2 / 2`` recursion
-steps per point; gradients once per distinct radius, so on the ellipsoid once
-per distinct latitude).  The one place that evaluates is :func:`_evaluate`.
+arrays, by the exact point sums of :func:`sphex.points.evaluate` (about
+``(lmax+1)^2 / 2`` recursion steps per point, each point at its own radius).
+Gradients come from :func:`sphex.points.evaluate_gradient` once per distinct
+radius when there are few radii; with many (points on the ellipsoid), from
+three value sums at the points' own radii (``df/dlon`` and ``cos(lat)
+df/dlat`` as expansions of degree lmax + 1), except within 0.57 degrees of a
+pole, where the per-radius path keeps full precision.  The one place that evaluates is :func:`_evaluate`.
 
 Units are SI throughout, except declination and inclination (degrees) and
 deflections of the vertical (arcseconds).  Magnetic fields are in tesla.
@@ -282,8 +285,9 @@ class _Points:
     def evaluate(self, h: Harmonics, degree_part: np.ndarray, shift: int, power: int,
                  gradient: bool):
         """As :meth:`_Rings.evaluate`, by :func:`sphex.points.evaluate` (values: the points'
-        radii passed on, the rest of the radial factor per point) or
-        :func:`sphex.points.evaluate_gradient` (once per distinct radius)."""
+        radii passed on, the rest of the radial factor per point); gradients by
+        :func:`sphex.points.evaluate_gradient` once per distinct radius, or, with many
+        radii, by :meth:`_gradient_by_values` away from the poles."""
         R = h.radius
         if not gradient:
             weighted = h.filter(degree_part).replace(radius=R)
@@ -293,8 +297,15 @@ class _Points:
         east = np.empty(h.batch_shape + self.lon.shape)
         north = np.empty_like(east)
         radii, group = np.unique(self.radius, return_inverse=True)
+        polar = _cos_lat(self.geocentric) < 1e-2  # within 0.57 degrees of a pole
+        if radii.size > 8 and not polar.all():  # many radii: the gradient from value sums
+            away = ~polar
+            east[..., away], north[..., away] = self._gradient_by_values(
+                h.filter(degree_part), away, shift, power)
+            group = np.where(polar, group, -1)
         l = np.arange(h.lmax + 1, dtype=np.float64)
-        for k, r in enumerate(radii):
+        for k in np.unique(group[group >= 0]):
+            r = radii[k]
             with np.errstate(over="ignore", under="ignore"):
                 factor = degree_part * np.exp((l + shift) * math.log(R / r)) / r**power
             if not np.all(np.isfinite(factor)):
@@ -307,8 +318,45 @@ class _Points:
             east[..., at], north[..., at] = e, n
         return east, north
 
+    def _gradient_by_values(self, h: Harmonics, at: np.ndarray, shift: int, power: int):
+        """(east, north) per radian of ``sum_l (R/r)^(l+shift) / r^power h_l`` at points with
+        their own radii, away from the poles, from three value sums.
+
+        ``df/dlon`` has the coefficients ``i m a_lm``; ``cos(lat) df/dlat`` is the sum
+        over degree l of ``-a_lm (l eps_(l+1,m) Lambda_(l+1,m) - (l+1) eps_lm
+        Lambda_(l-1,m))`` with ``eps_lm = sqrt((l^2 - m^2) / (4 l^2 - 1))`` for
+        orthonormal functions (common practice: the derivative recursion of the
+        Legendre functions); the radial factor of degree l moves with its term, hence
+        the factors ``r/R`` and ``R/r`` of the raised and lowered parts."""
+        R, L = h.radius, h.lmax
+        a = h.to("orthonormal", True).coef
+        l = np.arange(L + 2, dtype=np.float64)[:, None]
+        m = np.arange(L + 2, dtype=np.float64)[None, :]
+        with np.errstate(invalid="ignore"):
+            eps = np.where(l > m, np.sqrt((l * l - m * m) / (4 * l * l - 1)), 0.0)
+        raised = np.zeros(a.shape[:-2] + (L + 2, L + 2), complex)
+        lowered = np.zeros_like(raised)
+        raised[..., 1:, :-1] = -l[:-1] * eps[1:, :-1] * a
+        lowered[..., :L, :L + 1] = (l[1:L + 1] + 1) * eps[1:L + 1, :L + 1] * a[..., 1:, :]
+        along = a * 1j * m[:, :L + 1]
+        lat, lon, r = self.geocentric[at], self.lon[at], self.radius[at]
+
+        def values(coef):
+            return evaluate(Harmonics(coef, radius=R), lat, lon, radius=r)
+
+        with np.errstate(over="ignore"):
+            rest = (R / r) ** (shift - 1) / r**power
+        cos_lat = _cos_lat(lat)
+        north = (values(raised) * (r / R) + values(lowered[..., :L + 1, :L + 1]) * (R / r))
+        return values(along) * (rest / cos_lat), north * (rest / cos_lat)
+
     def shaped(self, values: np.ndarray) -> np.ndarray:
         return values.reshape(values.shape[:-1] + self.shape)
+
+
+def _cos_lat(lat_deg: np.ndarray) -> np.ndarray:
+    """cos(lat) to full relative precision next to the poles (90 - |lat| is exact there)."""
+    return np.sin(np.radians(90.0 - np.abs(lat_deg)))
 
 
 def _locate(where, reference_radius: float, height: float, surface: str,

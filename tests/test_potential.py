@@ -257,8 +257,9 @@ def test_point_mass_quantities_at_scattered_points():
         # at the poles east and north refer to the meridian lon, as the closed form's do
         err = np.max(np.abs(got[name] - expected[name])) / np.max(np.abs(expected[name]))
         assert err < 1e-10, (name, err)
-    # at points on the ellipsoid: the same as the grid computation at the grid's nodes
-    grid = Grid.equiangular(7, 12, "cells")
+    # at points on the ellipsoid: the same as the grid computation at the grid's nodes (19
+    # latitudes: 19 radii, so the gradient comes from value sums, except next to the poles)
+    grid = Grid.equiangular(19, 12, "poles")
     mesh_lat, mesh_lon = np.meshgrid(grid.lat, grid.lon, indexing="ij")
     on_grid = gravity(h, grid, ["anomaly", "deflection_north"], height=900.0, gm=GM,
                       surface="ellipsoid")
@@ -525,3 +526,23 @@ def test_dipole_at_scattered_points_on_the_sphere_and_ellipsoid():
     scale = np.max(np.sqrt(X**2 + Y**2 + Z**2))
     for name, expected in (("north", X), ("east", Y), ("down", Z)):
         assert np.max(np.abs(got[name] - expected)) < 1e-13 * scale, name
+
+
+def test_gradients_at_many_radii_equal_those_point_by_point():
+    # on the ellipsoid every latitude has its own radius: the gradient then comes from value
+    # sums (away from the poles); one point at a time it comes from the gradient kernel
+    rng = np.random.default_rng(13)
+    L = 13
+    C = np.tril(rng.standard_normal((L + 1, L + 1))) * 100
+    S = np.tril(rng.standard_normal((L + 1, L + 1))) * 100
+    S[:, 0] = 0
+    h = Harmonics.from_cos_sin(C, S, norm="schmidt", condon_shortley=False, radius=A, units="nT")
+    lat = np.concatenate([rng.uniform(-90, 90, 30), [89.0, 89.4, 89.5, 89.99, -89.3, 90.0]])
+    lon = rng.uniform(0, 360, lat.size)
+    got = magnetic(h, (lat, lon), ["north", "east"], height=2000.0, surface="ellipsoid")
+    scale = max(np.abs(got["north"]).max(), np.abs(got["east"]).max())
+    for i in range(lat.size):
+        one = magnetic(h, (lat[i:i + 1], lon[i:i + 1]), ["north", "east"], height=2000.0,
+                       surface="ellipsoid")
+        for name in ("north", "east"):
+            assert abs(got[name][i] - one[name][0]) < 1e-13 * scale, (name, lat[i])
