@@ -2,7 +2,7 @@
 
 Run from the repository root::
 
-    /work/venv/bin/python data_demo/make_demo_data.py            # (re)writes the three files here
+    .venv/bin/python data_demo/make_demo_data.py            # (re)writes the files here
     python data_demo/make_demo_data.py --out DIR                # somewhere else
 
 The data are invented (seeded random numbers and simple formulas in
@@ -16,6 +16,9 @@ The data are invented (seeded random numbers and simple formulas in
 - ``velanthe_winds.nc``: ``u`` and ``v`` (m s-1, CF standard names
   ``eastward_wind`` / ``northward_wind``), 4 time steps on a 73 x 144 grid
   with both poles (2.5 degrees), latitudes north to south, longitudes 0..357.5.
+- ``velanthe_gravity.gfc``: an invented degree-40 gravity model in the
+  gravity-field exchange format (keyword header, ``gfc`` rows with formal
+  standard deviations); its header says it is invented.
 """
 from __future__ import annotations
 

@@ -31,6 +31,7 @@ from typing import Any
 import numpy as np
 
 __all__ = ["MOON", "RADIUS_KM", "make_topography", "make_temperature", "make_winds",
+           "make_gravity_model",
            "write_demo_data", "run"]
 
 MOON = "Velanthe"
@@ -262,13 +263,81 @@ def make_winds():
     return ds
 
 
+GRAVITY_FILE = "velanthe_gravity.gfc"
+GRAVITY_LMAX = 40
+#: Velanthe's invented GM (m^3 s^-2): a 1350 km ice-and-rock sphere of mean density 1.9 g/cm^3.
+GRAVITY_GM = 1.3068e12
+#: Density contrast of the surface ice over the mean density, for the topography's attraction.
+_ICE_OVER_MEAN = 0.92 / 1.9
+#: Degree where the invented formal errors reach the signal.
+_ERROR_DEGREE = 30
+
+
+def make_gravity_model() -> str:
+    """Velanthe's invented gravity model, as the text of a gravity-field exchange file.
+
+    The potential is the attraction of the demo topography (a thin ice shell,
+    ``3 (rho_ice / rho_mean) h_lm / ((2l+1) R)`` per fully normalised
+    coefficient) compensated at long wavelengths by the factor
+    ``l^2 / (l^2 + 36)``, plus seeded noise of the stated formal standard
+    deviations, which grow with degree and reach the signal near degree 30.
+    Degree 40, with sigmas; the header says it is invented.
+
+    Returns
+    -------
+    str
+    """
+    from sphex import Grid, analyze
+
+    topo_ds = make_topography()
+    grid = Grid.from_coords(topo_ds["latitude"].values, topo_ds["longitude"].values)
+    h = analyze(topo_ds["topography"].values.astype(np.float64), grid, GRAVITY_LMAX)
+    C, S = h.to("full", False).cos_sin()
+    l = np.arange(GRAVITY_LMAX + 1, dtype=np.float64)[:, None]
+    factor = 3.0 * _ICE_OVER_MEAN / ((2 * l + 1) * RADIUS_KM * 1e3) * l**2 / (l**2 + 36.0)
+    C, S = C * factor, S * factor
+    C[0, 0], C[1], S[1] = 1.0, 0.0, 0.0         # GM defines degree 0; centre of mass at the origin
+    rms = np.sqrt(np.sum(C**2 + S**2, axis=1) / (2 * l[:, 0] + 1))
+    sigma = rms[_ERROR_DEGREE] * np.exp((l - _ERROR_DEGREE) / 4.0) * np.ones_like(C)
+    sigma[:2] = 0.0
+    rng = np.random.default_rng(SEED + 12)
+    lower = np.tri(GRAVITY_LMAX + 1, dtype=bool)
+    sigma_s = np.where(lower & (np.arange(GRAVITY_LMAX + 1) > 0)[None, :], sigma, 0.0)
+    sigma = np.where(lower, sigma, 0.0)
+    C = C + rng.normal(0.0, 1.0, C.shape) * sigma
+    S = S + rng.normal(0.0, 1.0, S.shape) * sigma_s
+    lines = [f"{MOON}: an invented gravity field for the sphex demo ({_SYNTHETIC}).",
+             "The attraction of the invented demo topography, partly compensated, with invented",
+             "formal errors. Not a model of any real body.",
+             "begin_of_head",
+             "product_type            gravity_field",
+             f"modelname               {MOON.upper()}-G{GRAVITY_LMAX}-INVENTED",
+             f"earth_gravity_constant  {GRAVITY_GM:.6e}",
+             f"radius                  {RADIUS_KM * 1e3:.1f}",
+             f"max_degree              {GRAVITY_LMAX}",
+             "errors                  formal",
+             "norm                    fully_normalized",
+             "tide_system             none",
+             "key     L    M             C                  S              sigma C     sigma S",
+             "end_of_head"]
+    for n in range(GRAVITY_LMAX + 1):
+        for m in range(n + 1):
+            lines.append(f"gfc {n:4d} {m:4d} {C[n, m]: .12e} {S[n, m]: .12e} "
+                         f"{sigma[n, m]:.4e} {sigma_s[n, m]:.4e}")
+    return "\n".join(lines) + "\n"
+
+
 def write_demo_data(directory: str | os.PathLike, overwrite: bool = False) -> list[Path]:
-    """Write the three demo files into ``directory``; returns their paths."""
+    """Write the demo files (topography, temperature, winds, gravity model) into
+    ``directory``; returns their paths."""
     from sphex.xr.output import atomic_output
 
     d = Path(directory)
     d.mkdir(parents=True, exist_ok=True)
     out = []
+    with atomic_output(d / GRAVITY_FILE, overwrite) as tmp:
+        Path(tmp).write_text(make_gravity_model(), encoding="ascii")
+    out.append(d / GRAVITY_FILE)
     for name, make in ((TOPO_FILE, make_topography), (TEMP_FILE, make_temperature),
                        (WIND_FILE, make_winds)):
         ds = make()

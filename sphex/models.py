@@ -20,9 +20,11 @@ Two open exchange formats of the trade are read here:
   nanotesla, of ``V = a sum_n (a/r)^(n+1) sum_m (g cos m lon + h sin m lon) P_n^m``).
 
 Gzipped files are recognised by their first bytes and read as they are.
-Other formats (the project's own netCDF coefficient files) are read by
-readers registered with :func:`register_model_reader` by the layers above
-the numeric core; this module never reads netCDF itself.
+Other formats are read by readers registered with
+:func:`register_model_reader` by the layers above the numeric core; this
+module never reads netCDF itself.  The project's own netCDF model files are
+read by :func:`sphex.xr.open_model`, or by :func:`open_model` once
+:mod:`sphex.xr` has been imported (the import registers the reader).
 """
 from __future__ import annotations
 
@@ -239,9 +241,9 @@ def open_model(path, epoch=None, *, extrapolate: bool = False,
         if detect(path, head):
             return read(path, epoch=epoch, extrapolate=extrapolate, radius=radius)
     if head.startswith(_NETCDF_MAGIC):
-        raise ValueError(f"{path} is a netCDF file: netCDF coefficient files are read by the "
-                         "xarray layer; import sphex.xr (which registers its reader) and call "
-                         "open_model again, or read it with sphex.xr.open_harmonics")
+        raise ValueError(f"{path} is a netCDF file: netCDF model files are read by the xarray "
+                         "layer; open it with sphex.xr.open_model(path), or import sphex.xr "
+                         "first (which registers its reader) and call open_model again")
     with _open_text(path, head) as text:
         kind = _sniff(path, text)
     if kind == "gravity":

@@ -49,9 +49,14 @@ Earth).
 Evaluation is by the fast transforms on a :class:`~sphex.grids.Grid`
 (:func:`~sphex.transform.synthesize_rings`: the radial factors are per-degree
 weights applied inside the Legendre stage, one set per ring radius, so the
-coefficients are not copied per quantity).  Values at scattered points will
-come from :func:`sphex.points.evaluate`; the one place that evaluates is
-:func:`_evaluate`.
+coefficients are not copied per quantity), or, for a pair ``(lat, lon)`` of
+arrays, by the exact point sums of :func:`sphex.points.evaluate` (about
+``(lmax+1)^2 / 2`` recursion steps per point, each point at its own radius).
+Gradients come from :func:`sphex.points.evaluate_gradient` once per distinct
+radius when there are few radii; with many (points on the ellipsoid), from
+three value sums at the points' own radii (``df/dlon`` and ``cos(lat)
+df/dlat`` as expansions of degree lmax + 1), except within 0.57 degrees of a
+pole, where the per-radius path keeps full precision.  The one place that evaluates is :func:`_evaluate`.
 
 Units are SI throughout, except declination and inclination (degrees) and
 deflections of the vertical (arcseconds).  Magnetic fields are in tesla.
@@ -76,11 +81,12 @@ from sphex.harmonics import Harmonics
 from sphex.legendre import norm_column
 from sphex.models import PotentialModel
 from sphex.normal_field import GRS80, WGS84, ZONAL_COUNT, NormalField, normal_field
+from sphex.points import check_points, evaluate, evaluate_gradient
 from sphex.transform import synthesize_rings
 
 __all__ = ["gravity", "magnetic", "normal_gravity", "degree_variances",
-           "error_degree_variances", "kaula_rule", "magnetic_power", "GRAVITY_QUANTITIES",
-           "MAGNETIC_COMPONENTS", "NormalField", "GRS80", "WGS84"]
+           "error_degree_variances", "crossing_degree", "kaula_rule", "magnetic_power",
+           "GRAVITY_QUANTITIES", "MAGNETIC_COMPONENTS", "NormalField", "GRS80", "WGS84"]
 
 GRAVITY_QUANTITIES = ("geoid", "height_anomaly", "anomaly", "disturbance", "radial_gradient",
                       "deflection_north", "deflection_east")
@@ -126,12 +132,14 @@ def _check_surface(surface) -> str:
     return surface
 
 
-def _check_where(grid) -> Grid:
+def _check_where(grid) -> Grid | tuple[np.ndarray, np.ndarray]:
     if isinstance(grid, Grid):
         return grid
-    raise ValueError(f"grid must be a sphex.Grid (Grid.gauss, Grid.equiangular, Grid.from_coords), "
-                     f"got {type(grid).__name__}; values at scattered points are not available "
-                     "from sphex.potential yet")
+    if isinstance(grid, tuple) and len(grid) == 2:
+        return check_points(*grid)
+    raise ValueError(f"grid must be a sphex.Grid (Grid.gauss, Grid.equiangular, Grid.from_coords) "
+                     f"or a pair (lat, lon) of arrays in degrees for scattered points, got "
+                     f"{type(grid).__name__}")
 
 
 def _gravity_source(model, gm) -> tuple[Harmonics, float]:
@@ -233,12 +241,138 @@ class _Rings:
         return weights / (r[..., None] ** power if r.ndim else r**power)
 
 
-def _evaluate(h: Harmonics, rings: _Rings, weights: np.ndarray, gradient: bool):
-    """Values (or the (east, north) gradient on the unit sphere) of ``sum_l w_l h_l`` on the
-    rings.  The single place that evaluates; values at scattered points
-    (sphex.points.evaluate) will branch off here."""
-    return synthesize_rings(h, rings.colat, rings.nlon, rings.lon0, degree_weights=weights,
-                            gradient=gradient)
+    def evaluate(self, h: Harmonics, degree_part: np.ndarray, shift: int, power: int,
+                 gradient: bool):
+        """``sum_l g_l (R/r)^(l+shift) / r^power h_l`` on the rings (or its gradient on the
+        unit sphere), ``g`` = ``degree_part``."""
+        weights = self.over_radius(degree_part * self.radial_factor(h.lmax, h.radius, shift), power)
+        return synthesize_rings(h, self.colat, self.nlon, self.lon0, degree_weights=weights,
+                                gradient=gradient)
+
+    def shaped(self, values: np.ndarray) -> np.ndarray:
+        return values
+
+
+class _Points:
+    """Scattered points where they really are: geocentric latitude and radius per point.
+
+    Held flattened, ``(n,)``; :meth:`shaped` gives the caller's shape back.  Same
+    attributes as :class:`_Rings`, per point instead of per row."""
+
+    def __init__(self, lat: np.ndarray, lon: np.ndarray, reference_radius: float, height: float,
+                 surface: str, ellipsoid: NormalField | None):
+        self.shape = lat.shape
+        self.lon = lon.ravel()
+        geodetic = lat.ravel()
+        if surface == "sphere":
+            r = reference_radius + height
+            if not r > 0:
+                raise ValueError(f"height {height!r} puts the sphere at or below the centre")
+            self.radius = np.full(geodetic.size, r)
+            self.geocentric = geodetic
+            self.tilt = np.zeros(geodetic.size)
+            return
+        if ellipsoid is None:
+            raise ValueError("surface='ellipsoid' needs a reference ellipsoid: give a normal "
+                             "field with one (normal='grs80', 'wgs84' or a NormalField)")
+        self.geocentric, self.radius = ellipsoid.geocentric(geodetic, height)
+        self.tilt = np.radians(geodetic - self.geocentric)
+
+    def per_row(self, values) -> np.ndarray:
+        """A per-point quantity, (n,), broadcasting against ``batch + (n,)``."""
+        return np.broadcast_to(np.asarray(values, dtype=np.float64), self.lon.shape)
+
+    def evaluate(self, h: Harmonics, degree_part: np.ndarray, shift: int, power: int,
+                 gradient: bool):
+        """As :meth:`_Rings.evaluate`, by :func:`sphex.points.evaluate` (values: the points'
+        radii passed on, the rest of the radial factor per point); gradients by
+        :func:`sphex.points.evaluate_gradient` once per distinct radius, or, with many
+        radii, by :meth:`_gradient_by_values` away from the poles."""
+        R = h.radius
+        if not gradient:
+            weighted = h.filter(degree_part).replace(radius=R)
+            with np.errstate(over="ignore"):
+                rest = (R / self.radius) ** (shift - 1) / self.radius**power
+            return evaluate(weighted, self.geocentric, self.lon, radius=self.radius) * rest
+        east = np.empty(h.batch_shape + self.lon.shape)
+        north = np.empty_like(east)
+        radii, group = np.unique(self.radius, return_inverse=True)
+        polar = _cos_lat(self.geocentric) < 1e-2  # within 0.57 degrees of a pole
+        if radii.size > 8 and not polar.all():  # many radii: the gradient from value sums
+            away = ~polar
+            east[..., away], north[..., away] = self._gradient_by_values(
+                h.filter(degree_part), away, shift, power)
+            group = np.where(polar, group, -1)
+        l = np.arange(h.lmax + 1, dtype=np.float64)
+        for k in np.unique(group[group >= 0]):
+            r = radii[k]
+            with np.errstate(over="ignore", under="ignore"):
+                factor = degree_part * np.exp((l + shift) * math.log(R / r)) / r**power
+            if not np.all(np.isfinite(factor)):
+                raise ValueError("continuing the field down below its reference radius "
+                                 "overflows: use a height closer to the reference sphere or "
+                                 "truncate the model")
+            at = group == k
+            e, n = evaluate_gradient(h.filter(factor).replace(radius=None),
+                                     self.geocentric[at], self.lon[at])
+            east[..., at], north[..., at] = e, n
+        return east, north
+
+    def _gradient_by_values(self, h: Harmonics, at: np.ndarray, shift: int, power: int):
+        """(east, north) per radian of ``sum_l (R/r)^(l+shift) / r^power h_l`` at points with
+        their own radii, away from the poles, from three value sums.
+
+        ``df/dlon`` has the coefficients ``i m a_lm``; ``cos(lat) df/dlat`` is the sum
+        over degree l of ``-a_lm (l eps_(l+1,m) Lambda_(l+1,m) - (l+1) eps_lm
+        Lambda_(l-1,m))`` with ``eps_lm = sqrt((l^2 - m^2) / (4 l^2 - 1))`` for
+        orthonormal functions (common practice: the derivative recursion of the
+        Legendre functions); the radial factor of degree l moves with its term, hence
+        the factors ``r/R`` and ``R/r`` of the raised and lowered parts."""
+        R, L = h.radius, h.lmax
+        a = h.to("orthonormal", True).coef
+        l = np.arange(L + 2, dtype=np.float64)[:, None]
+        m = np.arange(L + 2, dtype=np.float64)[None, :]
+        with np.errstate(invalid="ignore"):
+            eps = np.where(l > m, np.sqrt((l * l - m * m) / (4 * l * l - 1)), 0.0)
+        raised = np.zeros(a.shape[:-2] + (L + 2, L + 2), complex)
+        lowered = np.zeros_like(raised)
+        raised[..., 1:, :-1] = -l[:-1] * eps[1:, :-1] * a
+        lowered[..., :L, :L + 1] = (l[1:L + 1] + 1) * eps[1:L + 1, :L + 1] * a[..., 1:, :]
+        along = a * 1j * m[:, :L + 1]
+        lat, lon, r = self.geocentric[at], self.lon[at], self.radius[at]
+
+        def values(coef):
+            return evaluate(Harmonics(coef, radius=R), lat, lon, radius=r)
+
+        with np.errstate(over="ignore"):
+            rest = (R / r) ** (shift - 1) / r**power
+        cos_lat = _cos_lat(lat)
+        north = (values(raised) * (r / R) + values(lowered[..., :L + 1, :L + 1]) * (R / r))
+        return values(along) * (rest / cos_lat), north * (rest / cos_lat)
+
+    def shaped(self, values: np.ndarray) -> np.ndarray:
+        return values.reshape(values.shape[:-1] + self.shape)
+
+
+def _cos_lat(lat_deg: np.ndarray) -> np.ndarray:
+    """cos(lat) to full relative precision next to the poles (90 - |lat| is exact there)."""
+    return np.sin(np.radians(90.0 - np.abs(lat_deg)))
+
+
+def _locate(where, reference_radius: float, height: float, surface: str,
+            ellipsoid: NormalField | None):
+    """The computation points of a grid (rings) or of a (lat, lon) pair (points)."""
+    if isinstance(where, Grid):
+        return _Rings(where, reference_radius, height, surface, ellipsoid)
+    return _Points(*where, reference_radius, height, surface, ellipsoid)
+
+
+def _evaluate(h: Harmonics, where, degree_part: np.ndarray, shift: int, power: int,
+              gradient: bool):
+    """Values (or the (east, north) gradient on the unit sphere) of
+    ``sum_l g_l (R/r)^(l+shift) / r^power h_l`` where asked: the single place that
+    evaluates, by the fast transforms on a grid or by the point sums at points."""
+    return where.evaluate(h, np.asarray(degree_part, dtype=np.float64), shift, power, gradient)
 
 
 # ---------------------------------------------------------------------------
@@ -263,6 +397,11 @@ def _disturbing(h: Harmonics, gm: float, normal: NormalField | None) -> Harmonic
     """Coefficients of T = V - U_gravitational (h itself without a normal field)."""
     if normal is None:
         return h
+    if not 0.9 < normal.gm / gm < 1.1:
+        raise ValueError(f"the normal field's GM ({normal.gm:.6g} m^3 s^-2) is not the model's "
+                         f"({gm:.6g}): it belongs to another body; use normal='sphere' (the "
+                         "model's own GM/r) for a body without an ellipsoid, or a NormalField "
+                         "of this body")
     if h.lmax < 2 * ZONAL_COUNT:
         h = h.truncate(2 * ZONAL_COUNT)  # room for the normal field's zonal terms
     coef = h.coef.copy()
@@ -280,8 +419,10 @@ def gravity(model, grid: Grid, quantity, height: float = 0.0, normal="grs80", *,
         A gravity model (:func:`sphex.models.open_model`), or dimensionless
         coefficients of ``V = GM/r sum (R/r)^l V_l`` with ``radius`` set
         (then ``gm`` is needed).
-    grid : Grid
-        Where to compute (any sphex grid; any degree on any grid).
+    grid : Grid or (lat, lon)
+        Where to compute: any sphex grid (any degree on any grid), or a pair
+        of arrays of one shape, latitudes and longitudes in degrees, for
+        scattered points.
     quantity : str or sequence of str
         One or several of ``"geoid"``, ``"height_anomaly"``, ``"anomaly"``,
         ``"disturbance"``, ``"radial_gradient"``, ``"deflection_north"``,
@@ -290,10 +431,13 @@ def gravity(model, grid: Grid, quantity, height: float = 0.0, normal="grs80", *,
     height : float
         Metres above the reference sphere (``surface="sphere"``) or the
         ellipsoid (``surface="ellipsoid"``).  ``"geoid"`` needs 0.
-    normal : {"grs80", "wgs84"}, NormalField or None
+    normal : {"grs80", "wgs84", "sphere"}, NormalField or None
         The normal field removed (rescaled to the model's GM and radius); it
-        also gives normal gravity ``gamma``.  None removes nothing and takes
-        ``gamma = GM/r^2``.
+        also gives normal gravity ``gamma``.  "sphere" removes the model's own
+        ``GM/r`` (a body without an ellipsoid: quantities relative to the
+        sphere of radius R).  None removes nothing and takes
+        ``gamma = GM/r^2``.  A normal field whose GM differs from the
+        model's by more than 10 % is refused (it belongs to another body).
     gm : float, optional
         GM (m^3 s^-2) of Harmonics input, or of a model file without it.
     surface : {"sphere", "ellipsoid"}
@@ -305,8 +449,8 @@ def gravity(model, grid: Grid, quantity, height: float = 0.0, normal="grs80", *,
     Returns
     -------
     ndarray or dict of ndarray
-        ``batch_shape + grid.shape`` per quantity (a dict keyed by quantity
-        when a sequence was asked for).  m, m s^-2, s^-2, arcseconds.
+        ``batch_shape + grid.shape`` (or ``+ lat.shape`` at points) per
+        quantity (a dict keyed by quantity when a sequence was asked for).  m, m s^-2, s^-2, arcseconds.
 
     Raises
     ------
@@ -353,10 +497,11 @@ def gravity(model, grid: Grid, quantity, height: float = 0.0, normal="grs80", *,
                          "quantity='height_anomaly' for values at a height")
     grid = _check_where(grid)
     surface = _check_surface(surface)
+    if isinstance(normal, str) and normal.lower() == "sphere":
+        normal = NormalField(gm=gm, semi_major_axis=h.radius)  # GM/r of the model itself
     normal = normal_field(normal)
-    rings = _Rings(grid, h.radius, height, surface, normal)
+    rings = _locate(grid, h.radius, height, surface, normal)
     t = _disturbing(h, gm, normal)
-    base = rings.radial_factor(t.lmax, t.radius, 0)
     if normal is None:
         gamma = gm / rings.per_row(rings.radius) ** 2
     else:
@@ -369,22 +514,21 @@ def gravity(model, grid: Grid, quantity, height: float = 0.0, normal="grs80", *,
     for name in names:
         if name in factors:
             degree_part, power = factors[name]
-            weights = rings.over_radius(gm * degree_part * base, power)
-            out[name] = _evaluate(t, rings, weights, gradient=False)
+            out[name] = _evaluate(t, rings, gm * degree_part, 0, power, gradient=False)
     if "geoid" in names or "height_anomaly" in names:
-        potential = _evaluate(t, rings, rings.over_radius(gm * base, 1), gradient=False)
+        potential = _evaluate(t, rings, gm * np.ones_like(l), 0, 1, gradient=False)
         zeta = np.divide(potential, gamma, out=potential)
         for name in ("geoid", "height_anomaly"):
             if name in names:
                 out[name] = zeta
     if "deflection_north" in names or "deflection_east" in names:
-        east, north = _evaluate(t, rings, rings.over_radius(gm * base, 1), gradient=True)
+        east, north = _evaluate(t, rings, gm * np.ones_like(l), 0, 1, gradient=True)
         scale = -ARCSECONDS_PER_RADIAN / (r * gamma)
         out["deflection_north"] = np.multiply(north, scale, out=north)
         out["deflection_east"] = np.multiply(east, scale, out=east)
     if single:
-        return out[names[0]]
-    return {name: out[name] for name in names}
+        return rings.shaped(out[names[0]])
+    return {name: rings.shaped(out[name]) for name in names}
 
 
 def normal_gravity(geodetic_lat_deg, normal="grs80") -> np.ndarray:
@@ -426,7 +570,9 @@ def magnetic(model, grid: Grid, component, height: float = 0.0, *, surface: str 
         A magnetic model (``.shc`` via :func:`sphex.models.open_model`), or
         coefficients of ``V = R sum (R/r)^(l+1) V_l`` with ``radius`` set and
         ``units`` "nT" or "T".  Any normalisation and phase convention.
-    grid : Grid
+    grid : Grid or (lat, lon)
+        A sphex grid, or a pair of arrays of one shape (degrees) for
+        scattered points.
     component : str or sequence of str
         One or several of ``"north"`` (X), ``"east"`` (Y), ``"down"`` (Z),
         ``"horizontal"`` (H), ``"total"`` (F), ``"declination"`` (D),
@@ -444,8 +590,8 @@ def magnetic(model, grid: Grid, component, height: float = 0.0, *, surface: str 
     Returns
     -------
     ndarray or dict of ndarray
-        ``batch_shape + grid.shape``; tesla for X, Y, Z, H, F; degrees for
-        D (east of north) and I (positive down).
+        ``batch_shape + grid.shape`` (``+ lat.shape`` at points); tesla for X, Y, Z,
+        H, F; degrees for D (east of north) and I (positive down).
 
     Notes
     -----
@@ -461,20 +607,19 @@ def magnetic(model, grid: Grid, component, height: float = 0.0, *, surface: str 
     grid = _check_where(grid)
     surface = _check_surface(surface)
     field = normal_field(ellipsoid) if surface == "ellipsoid" else None
-    rings = _Rings(grid, h.radius, height, surface, field)
+    rings = _locate(grid, h.radius, height, surface, field)
     rotate = surface == "ellipsoid"
     need_xy = set(names) != {"down"} or rotate
     need_z = bool(set(names) & {"down", "total", "inclination"}) or (rotate and names != ["east"])
-    base = scale * rings.radial_factor(h.lmax, h.radius, 2)
+    l = np.arange(h.lmax + 1, dtype=np.float64)
     X = Y = Z = None
     if need_xy:
-        east, north = _evaluate(h, rings, base, gradient=True)
+        east, north = _evaluate(h, rings, np.full(l.size, scale), 2, 0, gradient=True)
         X, Y = np.negative(north, out=north), np.negative(east, out=east)
     if need_z:
-        l = np.arange(h.lmax + 1, dtype=np.float64)
-        Z = _evaluate(h, rings, -(l + 1.0) * base, gradient=False)
+        Z = _evaluate(h, rings, -(l + 1.0) * scale, 2, 0, gradient=False)
     if rotate and X is not None and Z is not None:
-        c, s = np.cos(rings.tilt)[:, None], np.sin(rings.tilt)[:, None]
+        c, s = rings.per_row(np.cos(rings.tilt)), rings.per_row(np.sin(rings.tilt))
         X, Z = X * c + Z * s, -X * s + Z * c
     out = {}
     for name in names:
@@ -492,7 +637,9 @@ def magnetic(model, grid: Grid, component, height: float = 0.0, *, surface: str 
             out[name] = np.degrees(np.arctan2(Y, X))
         else:
             out[name] = np.degrees(np.arctan2(Z, np.hypot(X, Y)))
-    return out[names[0]] if single else out
+    if single:
+        return rings.shaped(out[names[0]])
+    return {name: rings.shaped(value) for name, value in out.items()}
 
 
 # ---------------------------------------------------------------------------
@@ -552,6 +699,35 @@ def error_degree_variances(model, norm: str | None = None) -> np.ndarray:
     norm = h.norm if norm is None else norm
     C, S = h.to(norm=norm).cos_sin()  # the phase convention stays: signs of sigmas are kept
     return np.sum(C**2 + S**2, axis=-1)
+
+
+def crossing_degree(signal, error) -> int | None:
+    """The first degree (from 2) where the error degree variances reach the degree variances.
+
+    Parameters
+    ----------
+    signal, error : array_like, shape (lmax + 1,)
+        Degree variances and error degree variances of one model.
+
+    Returns
+    -------
+    int or None
+        The degree, or None when the errors stay below the signal up to lmax:
+        from there on the model carries no information about the field.
+
+    Examples
+    --------
+    >>> from sphex.potential import crossing_degree
+    >>> crossing_degree([1.0, 0.0, 1e-6, 1e-8, 1e-10], [0.0, 0.0, 1e-12, 1e-9, 1e-9])
+    4
+    """
+    s = np.asarray(signal, dtype=np.float64)
+    e = np.asarray(error, dtype=np.float64)
+    if s.ndim != 1 or s.shape != e.shape:
+        raise ValueError(f"signal and error must be two 1-D arrays of one length, got shapes "
+                         f"{s.shape} and {e.shape}")
+    reached = np.flatnonzero(e[2:] >= s[2:])
+    return int(reached[0]) + 2 if reached.size else None
 
 
 def kaula_rule(lmax: int, constant: float = 1e-5) -> np.ndarray:

@@ -330,7 +330,7 @@ def test_netcdf_without_registered_reader(tmp_path, monkeypatch):
     monkeypatch.setattr(models, "_READERS", [])
     path = tmp_path / "model.nc"
     path.write_bytes(b"\x89HDF\r\n\x1a\n" + bytes(100))  # the HDF5 signature netCDF-4 files start with
-    with pytest.raises(ValueError, match="import sphex.xr"):
+    with pytest.raises(ValueError, match="sphex.xr.open_model\\(path\\), or import sphex.xr"):
         open_model(path)
 
 

@@ -227,6 +227,49 @@ def test_point_mass_on_the_ellipsoid_with_the_normal_field_removed():
         assert err < 1e-10, (name, err)  # measured 4.5e-15, 9.5e-15
 
 
+def scattered_points(n: int, seed: int) -> tuple[np.ndarray, np.ndarray]:
+    """Seeded random points, the poles and the point above the mass among them, as a 2-D array."""
+    rng = np.random.default_rng(seed)
+    lat = np.degrees(np.arcsin(rng.uniform(-1, 1, n)))
+    lon = rng.uniform(-180, 540, n)
+    lat[:3], lon[:3] = [90.0, -90.0, LAT0], [12.0, 0.0, LON0]
+    return lat.reshape(2, -1), lon.reshape(2, -1)
+
+
+def test_point_mass_quantities_at_scattered_points():
+    depth, height = 0.2 * R, 0.05 * R
+    r = R + height
+    lmax = truncation_degree((R - depth) / r, 2)
+    h = point_mass_harmonics(depth, lmax).to("full", False)
+    lat, lon = scattered_points(40, seed=12)
+    quantities = ["anomaly", "disturbance", "radial_gradient", "height_anomaly",
+                  "deflection_north", "deflection_east"]
+    got = gravity(h, (lat, lon), quantities, height=height, normal=None, gm=GM)
+    ref = point_mass_field(depth, r, lat, lon)
+    gamma = GM / r**2
+    north = -ref["dlat"] / (r * gamma) * ARCSEC
+    east = -ref["dlon_over_cos"] / (r * gamma) * ARCSEC
+    expected = {"anomaly": ref["anomaly"], "disturbance": ref["disturbance"],
+                "radial_gradient": ref["radial_gradient"], "height_anomaly": ref["potential"] / gamma,
+                "deflection_north": north, "deflection_east": east}
+    for name in quantities:
+        assert got[name].shape == lat.shape
+        # at the poles east and north refer to the meridian lon, as the closed form's do
+        err = np.max(np.abs(got[name] - expected[name])) / np.max(np.abs(expected[name]))
+        assert err < 1e-10, (name, err)
+    # at points on the ellipsoid: the same as the grid computation at the grid's nodes (19
+    # latitudes: 19 radii, so the gradient comes from value sums, except next to the poles)
+    grid = Grid.equiangular(19, 12, "poles")
+    mesh_lat, mesh_lon = np.meshgrid(grid.lat, grid.lon, indexing="ij")
+    on_grid = gravity(h, grid, ["anomaly", "deflection_north"], height=900.0, gm=GM,
+                      surface="ellipsoid")
+    at_points = gravity(h, (mesh_lat, mesh_lon), ["anomaly", "deflection_north"], height=900.0,
+                        gm=GM, surface="ellipsoid")
+    for name in on_grid:
+        np.testing.assert_allclose(at_points[name], on_grid[name], rtol=0,
+                                   atol=1e-12 * np.max(np.abs(on_grid[name])))
+
+
 def normal_field_model(field: NormalField, gm: float, radius: float, lmax: int = 24) -> Harmonics:
     """The normal field's gravitational potential written as a model with another GM and radius:
     C_00 = GM_n / GM, C_2n,0 = -J2n / sqrt(4n + 1) (GM_n / GM) (a / R)^2n (fully normalised)."""
@@ -284,11 +327,15 @@ def test_gravity_errors():
         gravity(h, grid, "anomaly", gm=GM, surface="geoid")
     with pytest.raises(ValueError, match="overflows"):
         gravity(point_mass_harmonics(0.2 * R, 400), grid, "anomaly", gm=GM, height=-0.9 * R)
-    with pytest.raises(ValueError, match="scattered points"):
-        gravity(h, (np.zeros(3), np.zeros(3)), "anomaly", gm=GM)
+    with pytest.raises(ValueError, match="pair \\(lat, lon\\)"):
+        gravity(h, "everywhere", "anomaly", gm=GM)
+    with pytest.raises(ValueError, match="latitudes must lie in"):
+        gravity(h, (np.array([95.0]), np.array([0.0])), "anomaly", gm=GM)
     magnetic_model = PotentialModel(harmonics=h.replace(units="nT"), kind="magnetic")
     with pytest.raises(ValueError, match="use sphex.potential.magnetic"):
         gravity(magnetic_model, grid, "anomaly", gm=GM)
+    with pytest.raises(ValueError, match="belongs to another body; use normal='sphere'"):
+        gravity(h, grid, "anomaly", gm=4.9e12)  # a moon's GM against the Earth's normal field
     with pytest.raises(ValueError, match="drop gm"):
         gravity(PotentialModel(harmonics=h, gm=GM), grid, "anomaly", gm=GM)
 
@@ -449,3 +496,53 @@ def test_kaula_rule():
     l = np.arange(2, 51)
     np.testing.assert_allclose(k[2:], (2 * l + 1) * 1e-10 / l**4, rtol=1e-15)
     np.testing.assert_allclose(kaula_rule(10, constant=2e-5)[2:], 4 * kaula_rule(10)[2:], rtol=1e-15)
+
+
+def test_dipole_at_scattered_points_on_the_sphere_and_ellipsoid():
+    g = (-29400.0, -1450.0, 4650.0)
+    lat, lon = scattered_points(30, seed=7)
+    height = 420e3
+    north, east, up = local_frame(lat, lon)
+    X, Y, Z = dipole_field(*g, (A + height) * up, north, east, up)
+    got = magnetic(dipole(*g), (lat, lon), ["north", "east", "down", "declination", "inclination"],
+                   height=height)
+    F = np.sqrt(X**2 + Y**2 + Z**2)
+    for name, expected in (("north", X), ("east", Y), ("down", Z)):
+        assert got[name].shape == lat.shape
+        assert np.max(np.abs(got[name] - expected)) < 1e-13 * np.max(F), name
+    away = np.abs(lat) < 90.0  # D is the angle of the meridian's frame, defined off the poles
+    np.testing.assert_allclose(got["declination"][away], np.degrees(np.arctan2(Y, X))[away], atol=1e-9)
+    np.testing.assert_allclose(got["inclination"], np.degrees(np.arctan2(Z, np.hypot(X, Y))), atol=1e-9)
+    # geodetic points: position and frame built directly (common practice)
+    a, e2 = WGS84.semi_major_axis, WGS84.eccentricity_squared
+    phi, lam = np.radians(lat), np.radians(lon)
+    n = a / np.sqrt(1 - e2 * np.sin(phi) ** 2)
+    position = np.stack([(n + 2000.0) * np.cos(phi) * np.cos(lam),
+                         (n + 2000.0) * np.cos(phi) * np.sin(lam),
+                         (n * (1 - e2) + 2000.0) * np.sin(phi)])
+    X, Y, Z = dipole_field(*g, position, north, east, up)
+    got = magnetic(dipole(*g), (lat, lon), ["north", "east", "down"], height=2000.0,
+                   surface="ellipsoid")
+    scale = np.max(np.sqrt(X**2 + Y**2 + Z**2))
+    for name, expected in (("north", X), ("east", Y), ("down", Z)):
+        assert np.max(np.abs(got[name] - expected)) < 1e-13 * scale, name
+
+
+def test_gradients_at_many_radii_equal_those_point_by_point():
+    # on the ellipsoid every latitude has its own radius: the gradient then comes from value
+    # sums (away from the poles); one point at a time it comes from the gradient kernel
+    rng = np.random.default_rng(13)
+    L = 13
+    C = np.tril(rng.standard_normal((L + 1, L + 1))) * 100
+    S = np.tril(rng.standard_normal((L + 1, L + 1))) * 100
+    S[:, 0] = 0
+    h = Harmonics.from_cos_sin(C, S, norm="schmidt", condon_shortley=False, radius=A, units="nT")
+    lat = np.concatenate([rng.uniform(-90, 90, 30), [89.0, 89.4, 89.5, 89.99, -89.3, 90.0]])
+    lon = rng.uniform(0, 360, lat.size)
+    got = magnetic(h, (lat, lon), ["north", "east"], height=2000.0, surface="ellipsoid")
+    scale = max(np.abs(got["north"]).max(), np.abs(got["east"]).max())
+    for i in range(lat.size):
+        one = magnetic(h, (lat[i:i + 1], lon[i:i + 1]), ["north", "east"], height=2000.0,
+                       surface="ellipsoid")
+        for name in ("north", "east"):
+            assert abs(got[name][i] - one[name][0]) < 1e-13 * scale, (name, lat[i])

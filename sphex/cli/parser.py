@@ -13,7 +13,9 @@ import sys
 from collections.abc import Sequence
 from typing import Any, NoReturn
 
-from sphex.cli import bench, demo, fields, flow, inspection, localized, spectrum, transforms
+from sphex.cli import (
+    bench, demo, fields, flow, inspection, localized, potential, spectrum, transforms,
+)
 from sphex.cli.shared import FORMATTER, PROG, UserError, report_error
 
 __all__ = ["main", "build_parser"]
@@ -34,6 +36,9 @@ commands:
   flow        vorticity, divergence, streamfunction, velocity potential and
               kinetic-energy spectrum of winds or currents
   inspect     what grid each variable is on, or why it is not usable
+  gravity     gravity model file -> grid of geoid, anomalies, deflections
+              (not certified for surveying, engineering or navigation)
+  geomagnetic geomagnetic model file -> grid of field components, D and I
   demo        the whole job on bundled synthetic data
   bench       speed measurements
 
@@ -47,7 +52,8 @@ start here:
 """
 
 #: The subcommand modules, in the order their subcommands are listed.
-COMMAND_MODULES = (transforms, spectrum, localized, fields, flow, inspection, demo, bench)
+COMMAND_MODULES = (transforms, spectrum, localized, fields, flow, potential, inspection, demo,
+                   bench)
 
 
 class OneLineParser(argparse.ArgumentParser):

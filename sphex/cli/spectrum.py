@@ -18,6 +18,7 @@ field (its sum is the mean square), in the field's units squared.  Without
 example:
   sphex spectrum topo_coef.nc --plot topo_spectrum.png --slope 10:60
   sphex spectrum my_field.nc -v topo --csv topo_power.csv
+  sphex spectrum velanthe_gravity.gfc --csv velanthe_degree_variances.csv
 """
 
 #: Fields summarised one by one in the report; more are counted.
@@ -30,7 +31,8 @@ def register(sub: Any) -> None:
     """Add ``spectrum`` to the subcommands."""
     q = add_command(sub, "spectrum",
                     "Degree power spectrum of coefficients or of a gridded variable", EXAMPLE)
-    q.add_argument("input", metavar="FILE", help="coefficient file, or netCDF grid file with -v")
+    q.add_argument("input", metavar="FILE", help="coefficient file, netCDF grid file with -v, or "
+                   "model file (gravity exchange, .shc, sphex model)")
     q.add_argument("-v", "--var", metavar="VAR", help="variable of a grid file")
     q.add_argument("--lmax", type=whole_number, metavar="N", help="degree limit")
     q.add_argument("--plot", metavar="PNG", help="write a log-log plot")
@@ -48,11 +50,12 @@ def run(a: argparse.Namespace) -> int:
         if p:
             check_output_path(p, a.overwrite)
     import numpy as np
+    import xarray as xr
 
     from sphex.xr.fields import degree_power
 
     ds, source = _coefficients_of_input(a)
-    power = degree_power(ds)
+    power = ds if isinstance(ds, xr.DataArray) else degree_power(ds)  # model files: already
     lmax = power.sizes["degree"] - 1
     if a.slope and a.slope[1] > lmax:
         raise UserError(f"--slope {a.slope[0]}:{a.slope[1]} goes past the highest degree {lmax}")
@@ -66,8 +69,13 @@ def run(a: argparse.Namespace) -> int:
     if a.csv:
         _write_csv(a.csv, a.overwrite, labels, table, units)
         lines.append(f"wrote {a.csv}")
-    if a.plot:
+    if a.plot and isinstance(ds, xr.DataArray):  # a model file: signal, error and their crossing
+        from sphex.cli.potential import draw_model_spectrum
+
+        draw_model_spectrum(a.plot, a.overwrite, power, Path(a.input).name)
+    elif a.plot:
         _draw_power_plot(a.plot, a.overwrite, labels, table, units, a.slope, Path(a.input).name)
+    if a.plot:
         lines.append(f"wrote {a.plot}")
     if not a.csv and not a.plot:
         w = max(22, *(len(x) for x in labels)) if labels else 22
@@ -80,10 +88,13 @@ def run(a: argparse.Namespace) -> int:
 
 def _coefficients_of_input(a: argparse.Namespace) -> tuple[Any, str]:
     """The coefficient Dataset of the input (read, or analysed from a grid file) and what it is."""
+    from sphex.cli.potential import is_model_file, model_spectra
     from sphex.xr.coords import check_lmax
     from sphex.xr.fields import analyze
     from sphex.xr.files import open_coefficients
 
+    if is_model_file(a.input):  # degree variances (and error degree variances) of the model
+        return model_spectra(a.input, a.lmax)
     if _looks_like_coefficients(a.input):
         ds = open_coefficients(a.input)
         if a.lmax is not None:

@@ -12,6 +12,11 @@ Modules
                   :func:`parse_grid`
 ``coefficients``  coefficient Datasets (the layout, also that of the netCDF files):
                   :func:`from_harmonics`, :func:`to_harmonics`, :func:`is_coefficients`
+``models``        potential models in netCDF: :func:`write_model`, :func:`read_model`,
+                  :func:`open_model` (also registered with :func:`sphex.models.open_model`)
+``potential``     gravity and magnetic quantities as Datasets: :func:`gravity_fields`,
+                  :func:`magnetic_fields`, :func:`degree_variances`,
+                  :func:`error_degree_variances`
 ``tables``        plain text tables: :func:`write_table`, :func:`read_table`
 ``files``         netCDF files: :func:`write_dataset`, :func:`write_harmonics`,
                   :func:`open_coefficients`, :func:`open_harmonics`
@@ -59,6 +64,10 @@ from sphex.xr.localize import (
     local_admittance, local_correlation, local_cross_power, local_power, rotate,
 )
 from sphex.xr.files import open_coefficients, open_harmonics, write_dataset, write_harmonics
+from sphex.xr.models import open_model, read_model, write_model
+from sphex.xr.potential import (
+    degree_variances, error_degree_variances, gravity_fields, magnetic_fields,
+)
 from sphex.xr.output import OutputExistsError, atomic_output, check_output_path
 from sphex.xr.tables import read_table, write_table
 
@@ -71,4 +80,7 @@ __all__ = [
     "from_flow", "EARTH_MEAN_RADIUS_M", "RadiusAssumedWarning",
 
     "local_power", "local_cross_power", "local_admittance", "local_correlation", "rotate",
+
+    "open_model", "read_model", "write_model", "gravity_fields", "magnetic_fields",
+    "degree_variances", "error_degree_variances",
 ]
