@@ -1,0 +1,22 @@
+"""matplotlib figures in the project's own look.
+
+``figures``  the house style, spectra, maps, the degree-order picture, saving
+``winds``    kinetic-energy spectra and maps of winds and currents
+``local``    cap outlines and localised spectra
+``models``   spectra of potential models with their formal errors
+
+Every figure function is re-exported here: ``from sphex import plot``, then
+``plot.power_figure(...)``.
+"""
+from __future__ import annotations
+
+from sphex.plot.figures import (
+    PALETTE, heat, map_figure, power_figure, relief, save, triangle_figure,
+)
+from sphex.plot.figures import energy_figure, wind_map_figure
+from sphex.plot.figures import cap_outline, draw_cap, local_spectrum_figure
+from sphex.plot.figures import model_spectrum_figure
+
+__all__ = ["PALETTE", "relief", "heat", "power_figure", "map_figure", "triangle_figure", "save",
+           "energy_figure", "wind_map_figure", "cap_outline", "draw_cap", "local_spectrum_figure",
+           "model_spectrum_figure"]
