@@ -13,9 +13,9 @@ from __future__ import annotations
 from sphex.plot.figures import (
     PALETTE, heat, map_figure, power_figure, relief, save, triangle_figure,
 )
-from sphex.plot.figures import energy_figure, wind_map_figure
-from sphex.plot.figures import cap_outline, draw_cap, local_spectrum_figure
-from sphex.plot.figures import model_spectrum_figure
+from sphex.plot.local import cap_outline, draw_cap, local_spectrum_figure
+from sphex.plot.models import model_spectrum_figure
+from sphex.plot.winds import energy_figure, wind_map_figure
 
 __all__ = ["PALETTE", "relief", "heat", "power_figure", "map_figure", "triangle_figure", "save",
            "energy_figure", "wind_map_figure", "cap_outline", "draw_cap", "local_spectrum_figure",
