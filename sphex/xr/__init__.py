@@ -19,6 +19,7 @@ Modules
 ``missing``       missing values found and named by their coordinates
 ``fields``        the field adapters: :func:`analyze`, :func:`synthesize`, :func:`smooth`,
                   :func:`regrid`, :func:`degree_power`
+``points``        fields at scattered points (stations, tracks): :func:`evaluate`
 ``scaleout``      dask: whole-field chunks, numba threads inside dask tasks
 ``streaming``     streaming analysis of a series larger than memory
 ``accessors``     ``da.sphex`` and ``ds.sphex`` (registered on import of this package)
@@ -43,11 +44,12 @@ from sphex.xr.coords import GridInfo, find_grid, parse_grid
 from sphex.xr.fields import analyze, degree_power, regrid, smooth, synthesize
 from sphex.xr.files import open_coefficients, open_harmonics, write_dataset, write_harmonics
 from sphex.xr.output import OutputExistsError, atomic_output, check_output_path
+from sphex.xr.points import evaluate
 from sphex.xr.tables import read_table, write_table
 
 __all__ = [
     "COS", "SIN", "GridInfo", "find_grid", "parse_grid", "analyze", "synthesize",
-    "smooth", "regrid", "degree_power", "to_harmonics", "from_harmonics",
+    "smooth", "regrid", "degree_power", "evaluate", "to_harmonics", "from_harmonics",
     "write_harmonics", "write_dataset", "open_harmonics", "open_coefficients", "is_coefficients",
     "write_table", "read_table", "OutputExistsError", "atomic_output", "check_output_path",
 ]
