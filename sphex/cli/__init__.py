@@ -19,6 +19,7 @@ Modules
 ``transforms``   ``analyze`` and ``synthesize``
 ``spectrum``     ``spectrum``
 ``fields``       ``smooth`` and ``regrid``
+``points``       ``sample``
 ``inspection``   ``inspect``
 ``demo``         ``demo``
 ``bench``        ``bench`` (handed to :mod:`sphex.bench`)

@@ -13,7 +13,7 @@ import sys
 from collections.abc import Sequence
 from typing import Any, NoReturn
 
-from sphex.cli import bench, demo, fields, inspection, spectrum, transforms
+from sphex.cli import bench, demo, fields, inspection, points, spectrum, transforms
 from sphex.cli.shared import FORMATTER, PROG, UserError, report_error
 
 __all__ = ["main", "build_parser"]
@@ -30,6 +30,7 @@ commands:
   spectrum    degree power spectrum (table, CSV, plot)
   smooth      isotropic smoothing (Gaussian, spherical cap, degree taper)
   regrid      spectral regridding onto another grid
+  sample      coefficients or a model at the points of a CSV file (stations, tracks)
   inspect     what grid each variable is on, or why it is not usable
   demo        the whole job on bundled synthetic data
   bench       speed measurements
@@ -44,7 +45,7 @@ start here:
 """
 
 #: The subcommand modules, in the order their subcommands are listed.
-COMMAND_MODULES = (transforms, spectrum, fields, inspection, demo, bench)
+COMMAND_MODULES = (transforms, spectrum, fields, points, inspection, demo, bench)
 
 
 class OneLineParser(argparse.ArgumentParser):
