@@ -155,3 +155,12 @@ def test_analyze_missing_fit_warns_when_ill_posed_and_damping_tames_it(rng):
         ds = sxr.analyze(da, lmax=20, missing="fit", damping=1e-6)
     assert ds.attrs["fit_damping"] == 1e-6 and ds.attrs["fit_converged"] == 1
     assert ds.attrs["fit_residual_rms"] < 1e-2
+
+
+def test_analyze_missing_fit_reports_progress_in_hundredths_of_a_field(rng):
+    _, da = _capped(rng, 4, batch=(2,))
+    calls = []
+    sxr.analyze(da, lmax=4, missing="fit", progress=lambda done, total: calls.append((done, total)))
+    done = [c[0] for c in calls]
+    assert all(c[1] == 200 for c in calls) and done[-1] == 200 and (100, 200) in calls
+    assert done == sorted(done) and len(set(done)) == len(done) and len(calls) > 4   # never backwards

@@ -49,21 +49,26 @@ class _FitProgress:
 
     The share of a field done is the decades of residual reduction so far over
     those the tolerance asks for (conjugate gradients converge about
-    geometrically), held below one step until the field is finished."""
+    geometrically, though not monotonically: the count never goes back), held
+    below one step until the field is finished."""
 
     def __init__(self, progress: Callable[[int, int], None], fields: int, tol: float):
         self.progress = progress
         self.total = fields * STEPS_PER_FIELD
         self.decades = -math.log10(tol)
         self.field = 0
+        self.steps = 0
 
     def __call__(self, iteration: int, residual: float) -> None:
         share = -math.log10(residual) / self.decades if residual > 0 else 1.0
         steps = int(min(max(share, 0.0), 1.0) * (STEPS_PER_FIELD - 1))
-        self.progress(self.field * STEPS_PER_FIELD + steps, self.total)
+        if steps > self.steps:
+            self.steps = steps
+            self.progress(self.field * STEPS_PER_FIELD + steps, self.total)
 
     def field_done(self) -> None:
         self.field += 1
+        self.steps = 0
         self.progress(self.field * STEPS_PER_FIELD, self.total)
 
 
