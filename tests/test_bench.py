@@ -26,3 +26,15 @@ def test_benchmark_reads_the_child_peak_memory_not_the_parent(tmp_path):
     with xr.open_dataset(tmp_path / "s.nc") as ds:
         assert sxr.find_grid(ds["field"]).grid == sphex.Grid.gauss(31)
         assert ds["field"].shape == (info["fields"], 32, 64)
+
+
+def test_point_benchmark_measures_the_same_series_on_grid_and_points():
+    from sphex.bench import points
+
+    e = points.time_point_evaluation(lmax=20, points=500, repeat=1)
+    assert e["max_difference"] < 1e-12 * max(1.0, e["max_value"])   # one series, two summations
+    assert e["ns_per_point_coefficient"] > 0 and e["synthesis_ns_per_element"] > 0
+    f = points.time_iterative_fit(lmax=6, points=400)
+    assert f["unknowns"] == 49 and f["coefficient_error"] < 1e-8 and f["iterations"] > 1
+    lines = points.format_points({"points_evaluation": e, "points_fit": f})
+    assert "ns per point per (l, m)" in lines[1] and "49 unknowns" in lines[2]
