@@ -5,7 +5,14 @@ Each field is estimated from its observed cells alone by
 filled), and the coefficient Dataset records how: the method, the damping,
 and per field the weighted residual RMS, the iterations, whether conjugate
 gradients converged, a (lower) condition estimate and the observed fraction
-of the area.  The core's :class:`~sphex.least_squares.IllPosedWarning` is
+of the area.
+
+The fit is made to the anomalies about the area-weighted mean of the
+observed cells, and that mean is added back to degree 0.  Without damping
+this changes nothing (a constant is in the span of the degree-0 function);
+with damping it makes the poorly determined combinations of coefficients
+relax towards the observed mean instead of towards zero, which for a field
+such as a temperature in kelvin would be far from any value it takes.  The core's :class:`~sphex.least_squares.IllPosedWarning` is
 passed on to the caller unchanged.
 """
 from __future__ import annotations
@@ -102,8 +109,9 @@ def analyze_observed(da: xr.DataArray, info: GridInfo, lmax: int, *, norm: str,
         As :func:`sphex.xr.analyze`, plus the attributes ``fit_method``,
         ``fit_damping``, ``fit_prior``, ``fit_residual_rms`` (units of the
         field), ``fit_iterations``, ``fit_converged``,
-        ``fit_condition_estimate`` (a lower estimate; NaN when none) and
-        ``fit_observed_fraction``: one value for a single field, else one per
+        ``fit_condition_estimate`` (a lower estimate; NaN when none),
+        ``fit_observed_fraction`` and ``fit_reference_mean`` (the observed
+        mean the anomalies were taken about): one value for a single field, else one per
         field in the order of ``fit_fields`` (the batch dimensions, last
         varying fastest).
 
@@ -123,11 +131,18 @@ def analyze_observed(da: xr.DataArray, info: GridInfo, lmax: int, *, norm: str,
     s_out = np.empty((fields.shape[0], n, n))
     report = _FitProgress(progress, fields.shape[0], tol) if progress else None
     per_field: dict[str, list] = {k: [] for k in ("residual_rms", "iterations", "converged",
-                                                  "condition_estimate", "observed_fraction")}
+                                                  "condition_estimate", "observed_fraction",
+                                                  "reference_mean")}
+    cell_area = np.repeat(np.asarray(info.grid.weights)[:, None], info.grid.nlon, axis=1)
     for k, field in enumerate(fields):
-        result = fit_masked(field, info.grid, lmax, damping=damping, prior=prior, norm=norm,
+        observed = np.isfinite(field)
+        mean = float(np.sum(np.where(observed, field, 0.0) * cell_area)
+                     / max(np.sum(cell_area * observed), np.finfo(float).tiny))
+        result = fit_masked(field - mean, info.grid, lmax, damping=damping, prior=prior, norm=norm,
                             condon_shortley=condon_shortley, tol=tol, callback=report)
         c_out[k], s_out[k] = result.harmonics.cos_sin()
+        c_out[k, 0, 0] += mean * _degree_zero_value(norm)
+        per_field["reference_mean"].append(mean)
         fit_info = result.info
         condition = fit_info.get("condition_estimate")
         per_field["residual_rms"].append(float(result.residual_rms))
@@ -153,6 +168,12 @@ def analyze_observed(da: xr.DataArray, info: GridInfo, lmax: int, *, norm: str,
                                     None if da.name is None else str(da.name), da.attrs)
     ds.attrs.update(_fit_attributes(per_field, batch_dims, damping, prior))
     return ds
+
+
+def _degree_zero_value(norm: str) -> float:
+    """C_00 of the constant field 1 in normalisation ``norm`` (the degree-0 function is
+    ``1 / sqrt(4 pi)`` orthonormal, 1 in the other three conventions)."""
+    return math.sqrt(4 * math.pi) if norm == "orthonormal" else 1.0
 
 
 def _fit_attributes(per_field: dict[str, list], batch_dims: list, damping: float,
