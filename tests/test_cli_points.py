@@ -155,3 +155,18 @@ def test_sample_is_listed_and_its_help_has_an_example(capsys):
     assert e.value.code == 0
     out = capsys.readouterr().out
     assert "example:" in out and "--continue" in out
+
+
+def test_sample_a_series_gives_one_column_per_time_step(files):
+    d = files["dir"]
+    rng = np.random.default_rng(12)
+    h = random_harmonics(rng, 6, batch=(2,), units="K")
+    time = np.array(["2101-01-01", "2101-01-02T12:00"], dtype="datetime64[ns]")
+    sxr.from_harmonics(h, dims=("time",), coords={"time": time}, name="t").to_netcdf(d / "series.nc")
+    (d / "two.csv").write_text("lat,lon\n10,20\n-30,100\n")
+    r = run("sample", "series.nc", "two.csv", "-o", "two_out.csv", cwd=d)
+    assert r.returncode == 0, r.stderr
+    header, rows = _read_csv(d / "two_out.csv")
+    assert header == ["lat", "lon", "t_2101-01-01", "t_2101-01-02T12:00"]
+    want = evaluate(h, [10.0, -30.0], [20.0, 100.0])          # (time, point)
+    np.testing.assert_allclose([[float(v) for v in row[2:]] for row in rows], want.T, atol=1e-12)

@@ -327,6 +327,8 @@ def _value_columns(values, name: str | None, table: PointTable) -> tuple[dict, s
 def _coordinate_text(v: Any) -> str:
     import numpy as np
 
+    if hasattr(v, "to_datetime64"):          # pandas Timestamp, as xarray's stack gives
+        v = v.to_datetime64()
     if isinstance(v, np.datetime64):
         text = str(np.datetime_as_string(v, unit="m")).replace("T00:00", "")
     elif isinstance(v, (float, np.floating)):
