@@ -40,3 +40,14 @@ def test_vector_case_reports_ratios_to_two_scalar_transforms():
     assert row["synthesis_vs_two_scalar"] == row["synthesis_s"] / (2 * row["scalar_synthesis_s"])
     text = "\n".join(vectors.format_rows([row]))
     assert "roofline of two scalar transforms" in text and "    31 " in text
+
+def test_point_benchmark_measures_the_same_series_on_grid_and_points():
+    from sphex.bench import points
+
+    e = points.time_point_evaluation(lmax=20, points=500, repeat=1)
+    assert e["max_difference"] < 1e-12 * max(1.0, e["max_value"])   # one series, two summations
+    assert e["ns_per_point_coefficient"] > 0 and e["synthesis_ns_per_element"] > 0
+    f = points.time_iterative_fit(lmax=6, points=400)
+    assert f["unknowns"] == 49 and f["coefficient_error"] < 1e-8 and f["iterations"] > 1
+    lines = points.format_points({"points_evaluation": e, "points_fit": f})
+    assert "ns per point per (l, m)" in lines[1] and "49 unknowns" in lines[2]

@@ -9,6 +9,9 @@ Modules
 
 ``localize``    rotation (L=1023, 2047) and a localised spectrum (L=1023, 20 windows):
                 time and peak memory in fresh processes
+
+``points``      evaluation at scattered points against the transform, an iterative fit
+                (``--points``, ``--fit``)
 ``scaleout``    dask thread scaling and the memory of a streamed long series
                 (``sphex bench --scale``)
 """

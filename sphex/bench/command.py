@@ -1,7 +1,9 @@
 """``sphex bench``: the benchmark's command line (also ``python -m sphex.bench``).
 
-Without ``--scale`` it runs :mod:`sphex.bench.transforms`; with ``--scale``
-the remaining options go to :mod:`sphex.bench.scaleout`.
+Without ``--scale`` it runs :mod:`sphex.bench.transforms` and the evaluation
+at scattered points of :mod:`sphex.bench.points` (``--points``; the iterative
+fit with ``--fit``); with ``--scale`` the remaining options go to
+:mod:`sphex.bench.scaleout`.
 """
 from __future__ import annotations
 
@@ -9,7 +11,7 @@ import argparse
 import json
 from collections.abc import Sequence
 
-from sphex.bench import transforms
+from sphex.bench import points, transforms
 
 __all__ = ["main"]
 
@@ -39,6 +41,12 @@ def main(argv: Sequence[str] | None = None) -> int:
     parser.add_argument("--no-rotation", action="store_true",
                         help="skip rotation (L=1023, 2047) and the localised spectrum (L=1023, "
                              "20 windows)")
+    parser.add_argument("--points", type=int, default=1_000_000, metavar="N",
+                        help="scattered points for the evaluation of degree-360 coefficients "
+                             "(default 1000000; 0 skips it)")
+    parser.add_argument("--fit", action="store_true",
+                        help="also an iterative fit of degree 180 from 10^6 points (about ten "
+                             "minutes on two cores)")
     parser.add_argument("--scale", action="store_true",
                         help="run the dask scale-out benchmark instead (see sphex.bench.scaleout)")
     parser.add_argument("--json", action="store_true", help="print JSON instead of a table")
@@ -58,11 +66,17 @@ def main(argv: Sequence[str] | None = None) -> int:
         except ValueError:
             parser.error(f"--batch must look like 511x32 or 'none', got {args.batch!r}")
         batch = (lb, kb)
-    if any(L < 1 for L in args.sizes) or args.repeat < 1 or args.vector_size < 0:
-        parser.error("sizes and --repeat must be positive integers, --vector-size 0 or more")
+    if (any(L < 1 for L in args.sizes) or args.repeat < 1 or args.vector_size < 0
+            or args.points < 0):
+        parser.error("sizes and --repeat must be positive integers, --vector-size and --points "
+                     "0 or more")
     result = transforms.run(args.sizes, batch, not args.no_memory, args.repeat, args.huge,
                             args.cold, args.vector_size or None)
-    table = transforms.format_table(result)
+    if args.points:
+        result["points_evaluation"] = points.time_point_evaluation(points=args.points)
+    if args.fit:
+        result["points_fit"] = points.time_iterative_fit()
+    table = "\n".join([transforms.format_table(result)] + points.format_points(result))
     if not args.no_rotation:
         from sphex.bench import localize
 

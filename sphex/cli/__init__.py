@@ -20,6 +20,8 @@ Modules
 ``spectrum``     ``spectrum``
 ``fields``       ``smooth`` and ``regrid``
 ``flow``         ``flow`` (winds and currents)
+
+``points``       ``sample``
 ``inspection``   ``inspect``
 ``demo``         ``demo``
 ``bench``        ``bench`` (handed to :mod:`sphex.bench`)

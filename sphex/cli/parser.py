@@ -14,7 +14,7 @@ from collections.abc import Sequence
 from typing import Any, NoReturn
 
 from sphex.cli import (
-    bench, demo, fields, flow, inspection, localized, potential, spectrum, transforms,
+    bench, demo, fields, flow, inspection, localized, points, potential, spectrum, transforms,
 )
 from sphex.cli.shared import FORMATTER, PROG, UserError, report_error
 
@@ -35,6 +35,7 @@ commands:
   regrid      spectral regridding onto another grid
   flow        vorticity, divergence, streamfunction, velocity potential and
               kinetic-energy spectrum of winds or currents
+  sample      coefficients or a model at the points of a CSV file (stations, tracks)
   inspect     what grid each variable is on, or why it is not usable
   gravity     gravity model file -> grid of geoid, anomalies, deflections
               (not certified for surveying, engineering or navigation)
@@ -52,8 +53,8 @@ start here:
 """
 
 #: The subcommand modules, in the order their subcommands are listed.
-COMMAND_MODULES = (transforms, spectrum, localized, fields, flow, potential, inspection, demo,
-                   bench)
+COMMAND_MODULES = (transforms, spectrum, localized, fields, flow, potential, points, inspection,
+                   demo, bench)
 
 
 class OneLineParser(argparse.ArgumentParser):

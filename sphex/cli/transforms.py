@@ -2,6 +2,7 @@
 from __future__ import annotations
 
 import argparse
+import sys
 from pathlib import Path
 from typing import Any
 
@@ -16,8 +17,14 @@ as time) and variables cos_coef / sin_coef; its attributes state the
 normalisation, phase convention, lmax, reference radius and units.  A file
 name ending in .txt gets a plain text table (one field only).
 
+Fields with missing values (NaN, such as ocean-only fields) are refused unless
+--missing fit: each field is then estimated from its observed cells by least
+squares (nothing is filled); the file records the residual RMS, iterations and
+condition estimate.  Large gaps need --damping (a warning says so).
+
 example:
   sphex analyze data_demo/velanthe_topography.nc -v topography --lmax 60 -o topo_coef.nc
+  sphex analyze ocean_only.nc -v ssh --lmax 40 --missing fit --damping 1e-4 -o ssh_coef.nc
 """
 
 SYNTHESIZE_EXAMPLE = """\
@@ -48,6 +55,11 @@ def register(sub: Any) -> None:
     q.add_argument("--scheduler", metavar="ADDRESS",
                    help="run on this dask.distributed scheduler (e.g. tcp://10.0.0.5:8786) instead "
                         "of threads in this process")
+    q.add_argument("--missing", choices=["raise", "fit"], default="raise",
+                   help="fields with NaN: refuse them (raise, the default) or fit the observed "
+                        "cells by least squares (fit)")
+    q.add_argument("--damping", type=positive_number, metavar="X",
+                   help="with --missing fit: Tikhonov damping, for gaps too large for lmax")
     add_output_arguments(q, "output coefficient file (.nc, or .txt for a text table)")
     q.set_defaults(func=run_analyze)
 
@@ -68,6 +80,10 @@ def run_analyze(a: argparse.Namespace) -> int:
 
     check_output_path(a.output, a.overwrite)
     phase = "no phase" if a.no_phase else "Condon-Shortley phase"
+    if a.damping is not None and a.missing != "fit":
+        raise UserError("--damping only applies to --missing fit; add it or drop --damping")
+    if a.missing == "fit":
+        return run_analyze_fit(a, phase)
     if Path(a.output).suffix.lower() not in (".txt", ".tab", ".dat"):
         from sphex.xr.streaming import stream_analyze
 
@@ -94,6 +110,53 @@ def run_analyze(a: argparse.Namespace) -> int:
     write_table(to_harmonics(ds), a.output, overwrite=a.overwrite,
                 name=ds.attrs.get("field_name"))
     say(f"read  {a.input}: {da.name!r} on a {info.describe()}",
+        f"wrote {a.output}: {n} field{'s' if n != 1 else ''}, degrees 0..{lmax}, "
+        f"{a.norm} normalisation, {phase}")
+    return 0
+
+
+def run_analyze_fit(a: argparse.Namespace, phase: str) -> int:
+    """--missing fit: the fields are fitted in memory, one by one, with the core's warnings
+    shown as one line each."""
+    import warnings
+
+    import numpy as np
+
+    from sphex.least_squares import IllPosedWarning
+    from sphex.xr.coefficients import to_harmonics
+    from sphex.xr.coords import check_lmax
+    from sphex.xr.fields import analyze
+    from sphex.xr.files import write_harmonics
+    from sphex.xr.tables import write_table
+
+    da, _ = load_variable(a.input, a.var)
+    info = grid_of(da, a.input)
+    lmax = check_lmax(a.lmax, info.grid, False, f"variable {da.name!r}")
+    n = count_fields(da, info)
+    table = Path(a.output).suffix.lower() in (".txt", ".tab", ".dat")
+    if table and n != 1:
+        raise UserError(f"a text table holds one field but {da.name!r} has {n}; write .nc instead")
+    with warnings.catch_warnings(record=True) as caught, progress_bar(100 * n, "fit") as bar:
+        warnings.simplefilter("always", IllPosedWarning)
+        ds = analyze(da, lmax, norm=a.norm, condon_shortley=not a.no_phase, radius=a.radius,
+                     missing="fit", damping=a.damping or 0.0,
+                     progress=bar if bar.enabled else None)
+    for w in caught:
+        print(f"sphex analyze: warning: {w.message}", file=sys.stderr)
+    if table:
+        write_table(to_harmonics(ds), a.output, overwrite=a.overwrite,
+                    name=ds.attrs.get("field_name"))
+    else:
+        write_harmonics(ds, a.output, overwrite=a.overwrite)
+    units = f" {da.attrs['units']}" if "units" in da.attrs else ""
+    rms = np.atleast_1d(ds.attrs["fit_residual_rms"])
+    its = np.atleast_1d(ds.attrs["fit_iterations"])
+    cond = np.atleast_1d(ds.attrs["fit_condition_estimate"])
+    say(f"read  {a.input}: {da.name!r} on a {info.describe()}",
+        f"fit   observed {100 * float(np.min(ds.attrs['fit_observed_fraction'])):.1f}% of the area"
+        f"{' or more' if n > 1 else ''}; residual rms {rms.max():.3g}{units}"
+        f"{' (largest)' if n > 1 else ''}, {its.max()} iterations{' (most)' if n > 1 else ''}, "
+        f"condition estimate {np.max(cond):.3g}, damping {a.damping or 0:g}",
         f"wrote {a.output}: {n} field{'s' if n != 1 else ''}, degrees 0..{lmax}, "
         f"{a.norm} normalisation, {phase}")
     return 0

@@ -24,6 +24,7 @@ Modules
 ``missing``       missing values found and named by their coordinates
 ``fields``        the field adapters: :func:`analyze`, :func:`synthesize`, :func:`smooth`,
                   :func:`regrid`, :func:`degree_power`
+``points``        fields at scattered points (stations, tracks): :func:`evaluate`
 ``scaleout``      dask: whole-field chunks, numba threads inside dask tasks
 ``streaming``     streaming analysis of a series larger than memory
 ``flow``          winds and currents: :func:`analyze_flow`, :func:`flow_fields`,
@@ -69,11 +70,12 @@ from sphex.xr.potential import (
     degree_variances, error_degree_variances, gravity_fields, magnetic_fields,
 )
 from sphex.xr.output import OutputExistsError, atomic_output, check_output_path
+from sphex.xr.points import evaluate
 from sphex.xr.tables import read_table, write_table
 
 __all__ = [
     "COS", "SIN", "GridInfo", "find_grid", "parse_grid", "analyze", "synthesize",
-    "smooth", "regrid", "degree_power", "to_harmonics", "from_harmonics",
+    "smooth", "regrid", "degree_power", "evaluate", "to_harmonics", "from_harmonics",
     "write_harmonics", "write_dataset", "open_harmonics", "open_coefficients", "is_coefficients",
     "write_table", "read_table", "OutputExistsError", "atomic_output", "check_output_path",
     "analyze_flow", "flow_fields", "kinetic_energy", "regrid_flow", "smooth_flow", "to_flow",

@@ -24,6 +24,7 @@ from sphex.xr.coefficients import (
     COS, SIN, as_coefficients, finish_coefficient_dataset, harmonics_from_cos_sin, read_conventions,
 )
 from sphex.xr.coords import GridInfo, check_lmax, find_grid, synthesis_target
+from sphex.xr.least_squares import analyze_observed, check_missing
 from sphex.xr.missing import (
     FieldNames, field_positions, refuse_missing_in_block, refuse_missing_in_memory,
 )
@@ -102,7 +103,8 @@ def _prepare_fields(da: xr.DataArray, info: GridInfo
 def analyze(da: xr.DataArray, lmax: int | None = None, *, norm: str = "orthonormal",
             condon_shortley: bool = True, radius: float | None = None,
             allow_aliasing: bool = False,
-            progress: Callable[[int, int], None] | None = None) -> xr.Dataset:
+            progress: Callable[[int, int], None] | None = None, missing: str = "raise",
+            damping: float = 0.0, prior: Any = None) -> xr.Dataset:
     """Spherical-harmonic coefficients of a gridded DataArray.
 
     Parameters
@@ -123,7 +125,19 @@ def analyze(da: xr.DataArray, lmax: int | None = None, *, norm: str = "orthonorm
         Allow ``lmax`` above the grid's exact limit (the result is aliased).
     progress : callable, optional
         ``progress(done, total)`` called as blocks of fields finish (numpy-backed
-        input only).
+        input only); with ``missing="fit"`` as the fits proceed, counted in
+        hundredths of a field.
+    missing : {"raise", "fit"}
+        What to do with missing values (NaN): ``"raise"`` refuses them with a
+        ValueError naming the fields; ``"fit"`` estimates each field's
+        coefficients from its observed cells by regularised least squares
+        (:func:`sphex.least_squares.fit_masked`; nothing is filled, the input
+        is computed in memory) and records the residual RMS, iterations,
+        condition estimate and observed fraction in ``fit_*`` attributes.
+    damping, prior
+        Regularisation of ``missing="fit"`` (see
+        :func:`sphex.points.fit`): needed when the gaps are large enough
+        for functions of degree ``<= lmax`` to hide in them.
 
     Returns
     -------
@@ -135,13 +149,24 @@ def analyze(da: xr.DataArray, lmax: int | None = None, *, norm: str = "orthonorm
     Raises
     ------
     ValueError
-        No usable grid, ``lmax`` too high, unknown ``norm``, missing values.
+        No usable grid, ``lmax`` too high, unknown ``norm``, missing values
+        (with ``missing="raise"``), an unknown ``missing``.
+
+    Warns
+    -----
+    IllPosedWarning
+        With ``missing="fit"``, when the observed cells leave combinations of
+        coefficients undetermined (add damping or lower ``lmax``).
     """
     da = _single_dataarray(da)
     check_norm(norm)
     info = find_grid(da)
     where = f"variable {da.name!r}" if da.name is not None else "the field"
     lmax = check_lmax(lmax, info.grid, allow_aliasing, where)
+    check_missing(missing, damping, prior)
+    if missing == "fit":
+        return analyze_observed(da, info, lmax, norm=norm, condon_shortley=condon_shortley,
+                                radius=radius, damping=damping, prior=prior, progress=progress)
     da, pos, names = _prepare_fields(da, info)
     n = lmax + 1
     c, s = xr.apply_ufunc(

@@ -58,8 +58,10 @@ class FieldNames:
         count = "missing values (NaN or inf)" if nbad is None else \
             f"{nbad} missing value{'s' if nbad != 1 else ''} (NaN or inf)"
         return (f"{self.name} has {count}, in {listed}{tail}; spherical-harmonic analysis "
-                "needs complete global fields (fill the gaps first, or select the complete "
-                "steps with .sel / .isel)")
+                "needs complete global fields: estimate the coefficients from the observed "
+                "cells by least squares with analyze(..., missing='fit') (command line: sphex "
+                "analyze --missing fit, with --damping for large gaps), or select the "
+                "complete steps with .sel / .isel")
 
 
 def field_positions(da: xr.DataArray, core: tuple[Hashable, Hashable]
