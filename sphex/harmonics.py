@@ -26,6 +26,7 @@ import numbers
 import numpy as np
 
 from sphex.legendre import check_norm, norm_scale
+from sphex.limits import check_memory, peak_magnitude, refuse_overflow, whole_number
 
 __all__ = ["Harmonics", "convert_factor"]
 
@@ -139,6 +140,14 @@ class Harmonics:
         fields.update(changes)
         return Harmonics(**fields)
 
+    def _derived(self, coef: np.ndarray, what: str, **changes) -> "Harmonics":
+        """``replace(coef=coef)`` for a result computed from these coefficients, refused
+        when it overflowed (finite coefficients in, inf or NaN out)."""
+        if not np.isfinite(peak_magnitude(coef)) and np.isfinite(peak_magnitude(self.coef)):
+            refuse_overflow(coef, f"{what} of coefficients up to {peak_magnitude(self.coef):.3g}",
+                            "divide the coefficients by a power of ten (larger units) first")
+        return self.replace(coef=coef, **changes)
+
     def __repr__(self):
         extra = "".join(f", {k}={v!r}" for k, v in (("radius", self.radius), ("units", self.units))
                         if v is not None)
@@ -173,7 +182,10 @@ class Harmonics:
             raise ValueError(f"converting lmax={self.lmax} coefficients to {norm!r} leaves double range "
                              "(unnormalised functions overflow above degree ~150): truncate first "
                              "(h.truncate(...)) or keep a normalised convention")
-        return self.replace(coef=np.where(tri, self.coef * g, 0), norm=norm, condon_shortley=cs)
+        with np.errstate(over="ignore", invalid="ignore"):
+            coef = np.where(tri, self.coef * g, 0)
+        return self._derived(coef, f"the conversion to {norm!r}",
+                             norm=norm, condon_shortley=cs)
 
     def cos_sin(self) -> tuple[np.ndarray, np.ndarray]:
         """Real-form coefficients ``(C, S)``, each ``(..., lmax+1, lmax+1)`` indexed [l, m]."""
@@ -211,10 +223,14 @@ class Harmonics:
         return other.to(self.norm, self.condon_shortley).coef
 
     def __add__(self, other):
-        return self.replace(coef=self.coef + self._aligned(other))
+        other = self._aligned(other)
+        with np.errstate(over="ignore", invalid="ignore"):
+            return self._derived(self.coef + other, "the sum")
 
     def __sub__(self, other):
-        return self.replace(coef=self.coef - self._aligned(other))
+        other = self._aligned(other)
+        with np.errstate(over="ignore", invalid="ignore"):
+            return self._derived(self.coef - other, "the difference")
 
     def __neg__(self):
         return self.replace(coef=-self.coef)
@@ -222,20 +238,25 @@ class Harmonics:
     def __mul__(self, scalar):
         if not isinstance(scalar, numbers.Real) or isinstance(scalar, bool):
             return NotImplemented
-        return self.replace(coef=self.coef * float(scalar))
+        with np.errstate(over="ignore", invalid="ignore"):
+            coef = self.coef * float(scalar)
+        return self._derived(coef, f"the product with {float(scalar):g}")
 
     __rmul__ = __mul__
 
     def __truediv__(self, scalar):
         if not isinstance(scalar, numbers.Real) or isinstance(scalar, bool):
             return NotImplemented
-        return self.replace(coef=self.coef / float(scalar))
+        with np.errstate(over="ignore", invalid="ignore", divide="ignore"):
+            coef = self.coef / float(scalar)
+        return self._derived(coef, f"the quotient by {float(scalar):g}")
 
     def truncate(self, lmax: int) -> "Harmonics":
         """Coefficients up to degree ``lmax`` (zero-padded when larger than self.lmax)."""
-        if int(lmax) != lmax or lmax < 0:
-            raise ValueError(f"lmax must be a non-negative integer, got {lmax!r}")
-        lmax = int(lmax)
+        lmax = whole_number(lmax, "lmax")
+        fields = int(np.prod(self.batch_shape))
+        check_memory(16.0 * fields * (lmax + 1) ** 2, f"Harmonics.truncate({lmax}) of {fields} "
+                     f"field{'s' if fields != 1 else ''}", "truncate to a lower degree")
         n = min(lmax, self.lmax) + 1
         coef = np.zeros(self.batch_shape + (lmax + 1, lmax + 1), dtype=np.complex128)
         coef[..., :n, :n] = self.coef[..., :n, :n]
@@ -254,4 +275,6 @@ class Harmonics:
         if not np.all(np.isfinite(w)):
             raise ValueError("filter weights contain NaN or inf")
         w = w[..., : self.lmax + 1]
-        return self.replace(coef=self.coef * w[..., :, None])
+        with np.errstate(over="ignore", invalid="ignore"):
+            coef = self.coef * w[..., :, None]
+        return self._derived(coef, "the filtered coefficients")
