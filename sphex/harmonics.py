@@ -191,9 +191,15 @@ class Harmonics:
         """Real-form coefficients ``(C, S)``, each ``(..., lmax+1, lmax+1)`` indexed [l, m]."""
         r = _real_form_factor(self.lmax, self.norm)
         scale = np.where(np.arange(self.lmax + 1) == 0, 1.0, 2.0 / r)
-        C = self.coef.real * scale
-        S = -self.coef.imag * scale
+        with np.errstate(over="ignore"):
+            C = self.coef.real * scale
+            S = -self.coef.imag * scale
         S[..., :, 0] = 0.0
+        if not (np.isfinite(peak_magnitude(C)) and np.isfinite(peak_magnitude(S))) \
+                and np.isfinite(peak_magnitude(self.coef)):
+            refuse_overflow(np.stack([C, S]), f"the real-form (cosine/sine) coefficients, "
+                            f"sqrt(2) times the complex ones up to {peak_magnitude(self.coef):.3g},",
+                            "divide the coefficients by a power of ten (larger units) first")
         return C, S
 
     @classmethod

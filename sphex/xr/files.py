@@ -12,6 +12,7 @@ from sphex.harmonics import Harmonics
 from sphex.xr.coefficients import (
     as_coefficients, exact_dataset_from_harmonics, from_harmonics, is_coefficients, to_harmonics,
 )
+from sphex.xr.conventions import conventions_stated
 from sphex.xr.coords import one_line
 from sphex.xr.output import atomic_output, check_output_path
 from sphex.xr.tables import is_table_file, read_table
@@ -132,11 +133,23 @@ def open_coefficients(path: str | os.PathLike) -> xr.Dataset:
     Returns
     -------
     xarray.Dataset
+        In the order of the file's ``degree`` and ``order`` labels, with its
+        conventions stated in the attributes.
 
     Raises
     ------
     FileNotFoundError, ValueError
-        Missing file; not netCDF; not in the coefficient layout.
+        Missing file; not netCDF; damaged; not in the coefficient layout;
+        degree or order labels that repeat, skip or do not start at 0; an
+        ``lmax`` attribute that disagrees with the data; unknown or
+        contradictory convention attributes (the message names them and the
+        values allowed).
+
+    Warns
+    -----
+    sphex.xr.conventions.MissingConventionWarning
+        The file states no normalisation or no phase convention; the
+        defaults (orthonormal, Condon-Shortley phase) were used.
     """
     if is_table_file(path):
         h, _ = read_table(path)
@@ -146,7 +159,10 @@ def open_coefficients(path: str | os.PathLike) -> xr.Dataset:
     if not is_coefficients(ds):
         raise ValueError(f"{str(path)!r} holds no sphex coefficients (variables cos_coef and "
                          "sin_coef over degree and order); make them with sphex analyze")
-    return as_coefficients(ds)
+    ds = as_coefficients(ds, str(path), from_file=True)
+    # unknown or contradictory conventions refused now; missing ones named in a warning
+    # and stated in the attributes with the defaults used
+    return conventions_stated(ds, str(path))
 
 
 def open_harmonics(path: str | os.PathLike) -> Harmonics:
