@@ -59,7 +59,8 @@ class FieldNames:
             f"{nbad} missing value{'s' if nbad != 1 else ''} (NaN or inf)"
         return (f"{self.name} has {count}, in {listed}{tail}; spherical-harmonic analysis "
                 "needs complete global fields (fill the gaps first, or select the complete "
-                "steps with .sel / .isel)")
+                "steps with .sel / .isel; for a least-squares fit over the observed cells "
+                "only, use sphex.points.fit_masked)")
 
 
 def field_positions(da: xr.DataArray, core: tuple[Hashable, Hashable]

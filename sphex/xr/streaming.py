@@ -23,7 +23,8 @@ from sphex.xr.coords import check_lmax, find_grid
 from sphex.xr.fields import analyze
 from sphex.xr.files import netcdf_encoding, open_netcdf, write_netcdf
 from sphex.xr.output import atomic_output, check_output_path
-from sphex.xr.scaleout import default_block, thread_pool
+from sphex.limits import check_memory, whole_number
+from sphex.xr.scaleout import cpu_count, default_block, thread_pool
 
 __all__ = ["parse_chunks", "StreamResult", "stream_analyze", "CONNECT_TIMEOUT"]
 
@@ -113,6 +114,19 @@ def _pick_variable(ds: Any, var: str | None, path: str) -> str:
     return var
 
 
+def _check_chunk_memory(info: Any, lmax: int, fields_per_chunk: int, chunks: int) -> None:
+    """Refuse a run whose chunks, as many at a time as there are threads, cannot fit in
+    memory: each holds its fields as read and in float64, and their coefficients."""
+    per_field = 16.0 * info.grid.nlat * info.grid.nlon + 32.0 * (lmax + 1) ** 2
+    at_once = min(cpu_count(), chunks)
+    check_memory(per_field * fields_per_chunk * at_once,
+                 f"analysing {at_once} chunk{'s' if at_once != 1 else ''} of {fields_per_chunk} "
+                 f"field{'s' if fields_per_chunk != 1 else ''} at a time on a {info.grid.nlat} x "
+                 f"{info.grid.nlon} grid to degree {lmax}",
+                 "give fewer fields per chunk (--chunks time=1), a lower lmax, or run on a "
+                 "machine with more memory")
+
+
 def _plan_chunks(da: Any, info: Any, chunks: Mapping[str, int] | None
                  ) -> tuple[dict[Hashable, int], str | None, int]:
     """Chunk spec for the lazy variable, the streamed dimension and its block length."""
@@ -133,7 +147,7 @@ def _plan_chunks(da: Any, info: Any, chunks: Mapping[str, int] | None
     if chunks:
         dim = next(iter(chunks))
         for d, n in chunks.items():
-            spec[d] = min(int(n), int(da.sizes[d]))
+            spec[d] = min(whole_number(n, f"chunks {d}", 1), int(da.sizes[d]))
     else:
         dim = "time" if "time" in others else max(others, key=lambda d: da.sizes[d])
         per = 8 * math.prod(int(da.sizes[d]) for d in da.dims if d != dim)
@@ -339,6 +353,9 @@ def stream_analyze(input: str | os.PathLike, var: str | None, output: str | os.P
         n_fields = math.prod(int(lazy.sizes[d]) for d in lazy.dims
                              if d not in (info.lat_dim, info.lon_dim))
         n_chunks = math.prod(len(c) for c in lazy.chunks)
+        per_chunk = math.prod(max(c) for c, d in zip(lazy.chunks, lazy.dims)
+                              if d not in (info.lat_dim, info.lon_dim))
+        _check_chunk_memory(info, lmax, per_chunk, n_chunks)
         ds = analyze(lazy, lmax, norm=norm, condon_shortley=condon_shortley, radius=radius)
         ds.attrs["history"] = history or (f"sphex analyze {path} -v {name} --lmax {lmax} "
                                           f"--norm {norm}")
