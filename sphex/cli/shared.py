@@ -151,11 +151,28 @@ def load_variable(path: str, var: str | None):
         if var not in ds.data_vars:
             listed = ", ".join(map(str, ds.data_vars)) or "none"
             raise UserError(f"{path} has no variable {var!r} (variables: {listed})")
-        da = ds[var].load()
+        check_fits_in_memory(ds[var], path)
+        try:
+            da = ds[var].load()
+        except RuntimeError as exc:  # the netCDF/HDF5 library on a file damaged past its header
+            from sphex.xr.files import read_failure
+
+            raise read_failure(path, exc) from None
         attrs = dict(ds.attrs)
     finally:
         ds.close()
     return da, attrs
+
+
+def check_fits_in_memory(var, path: str) -> None:
+    """Refuse to load a variable that cannot fit in memory (read as float64, twice over:
+    the input and the result), before reading it."""
+    from sphex.limits import check_memory
+
+    nbytes = 16.0 * float(var.size)
+    check_memory(nbytes, f"{path}: variable {var.name!r} ({' x '.join(map(str, var.shape))})",
+                 "analyse it in parts (select steps with a smaller file), or use sphex analyze, "
+                 "which streams a series in chunks")
 
 
 def grid_of(da, path: str):

@@ -97,8 +97,10 @@ def refuse_non_real(da: xr.DataArray) -> None:
     if kind in "fiu":
         return
     name = repr(da.name) if da.name is not None else "the field"
-    if kind == "c":
-        raise ValueError(f"{name} is complex ({da.dtype}); sphex analyses real fields: analyse "
+    parts = set(da.dtype.names or ())
+    if kind == "c" or (kind == "V" and parts in ({"r", "i"}, {"real", "imag"})):
+        # netCDF stores complex numbers as a compound of real and imaginary parts
+        raise ValueError(f"{name} is complex; sphex analyses real fields: analyse "
                          "the real and imaginary parts as two fields (da.real and da.imag, or "
                          "two real variables in the file)")
     raise ValueError(f"{name} holds {da.dtype} values, not numbers; a spherical-harmonic "

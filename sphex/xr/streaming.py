@@ -21,8 +21,8 @@ from typing import Any, TextIO
 
 from sphex.xr.coords import check_lmax, find_grid
 from sphex.xr.fields import analyze
-from sphex.xr.files import netcdf_encoding, open_netcdf, write_netcdf
-from sphex.xr.output import atomic_output, check_output_path
+from sphex.xr.files import netcdf_encoding, open_netcdf, write_failure, write_netcdf
+from sphex.xr.output import atomic_output, check_distinct, check_output_path
 from sphex.limits import check_memory, whole_number
 from sphex.xr.scaleout import cpu_count, default_block, thread_pool
 
@@ -240,10 +240,54 @@ def _count_group_tasks(dask_scheduler: Any = None, names: Sequence[str] = ()) ->
 
 
 def _run_distributed(client: Any, delayed: Any, reporter: _ProgressReporter) -> None:
-    from distributed import wait
-
     names = sorted(_task_group_names(delayed.__dask_graph__().keys()))
     fut = client.compute(delayed)
+    try:
+        _follow(client, fut, names, reporter)
+    except BaseException:
+        # the workers' tasks would go on writing into the temporary file after the caller
+        # removed it: cancel them and wait until none of ours runs any more
+        _stop_tasks(client, fut, names)
+        raise
+    reporter.fraction(1.0)
+
+
+def _executing_tasks(dask_worker: Any = None, names: Sequence[str] = ()) -> int:
+    """Run on a worker: how many of its running tasks belong to the named task groups."""
+    state = getattr(dask_worker, "state", dask_worker)
+    count = 0
+    for ts in list(getattr(state, "executing", ())):
+        key = getattr(ts, "key", ts)
+        if (str(key[0]) if isinstance(key, tuple) else str(key)) in names:
+            count += 1
+    return count
+
+
+#: How long to wait for the workers' tasks to stop after a failure or an interruption.
+STOP_TIMEOUT = 60.0
+
+
+def _stop_tasks(client: Any, fut: Any, names: Sequence[str]) -> None:
+    """Cancel ``fut`` and wait (up to STOP_TIMEOUT) until no worker runs a task of ours."""
+    try:
+        client.cancel(fut, force=True)
+    except Exception:  # noqa: BLE001 - the scheduler may be gone already
+        return
+    deadline = time.monotonic() + STOP_TIMEOUT
+    while time.monotonic() < deadline:
+        try:
+            running = sum(client.run(_executing_tasks, names=list(names)).values())
+        except Exception:  # noqa: BLE001 - workers gone: nothing runs any more
+            return
+        if not running:
+            return
+        time.sleep(0.2)
+
+
+def _follow(client: Any, fut: Any, names: Sequence[str], reporter: _ProgressReporter) -> None:
+    """Wait for ``fut``, reporting progress from the scheduler's task groups."""
+    from distributed import wait
+
     while not fut.done():
         try:
             wait(fut, timeout=1.0)
@@ -258,7 +302,6 @@ def _run_distributed(client: Any, delayed: Any, reporter: _ProgressReporter) -> 
         except Exception:  # noqa: BLE001 - progress is best effort
             pass
     fut.result()
-    reporter.fraction(1.0)
 
 
 def _connect_client(address: str) -> Any:
@@ -335,6 +378,7 @@ def stream_analyze(input: str | os.PathLike, var: str | None, output: str | os.P
         Missing input; existing output without ``overwrite``.
     """
     t0 = time.monotonic()
+    check_distinct([input], [output])
     check_output_path(output, overwrite)
     if isinstance(chunks, str):
         chunks = parse_chunks(chunks)
@@ -362,14 +406,14 @@ def stream_analyze(input: str | os.PathLike, var: str | None, output: str | os.P
         reporter = _ProgressReporter(n_fields, "sphex analyze", enabled=progress)
         try:
             if scheduler:
-                _write_distributed(ds, output, overwrite, scheduler, reporter)
+                _write_distributed(ds, output, overwrite, scheduler, reporter, path)
             else:
                 # the pool is left (waiting for every task it runs) before the temporary
                 # file is removed: a task still writing after a failure in another one
                 # would otherwise make the file anew
                 with atomic_output(output, overwrite) as tmp, thread_pool(), \
                         _local_progress_callback(reporter):
-                    write_netcdf(ds, tmp)
+                    write_netcdf(ds, tmp, source=path, target=output)
                 reporter.fraction(1.0)
         finally:
             reporter.close()
@@ -381,7 +425,7 @@ def stream_analyze(input: str | os.PathLike, var: str | None, output: str | os.P
 
 
 def _write_distributed(ds: Any, output: str | os.PathLike, overwrite: bool, address: str,
-                       reporter: _ProgressReporter) -> None:
+                       reporter: _ProgressReporter, source: str | None = None) -> None:
     """Write the lazy coefficient Dataset through a distributed scheduler, atomically."""
     enc = netcdf_encoding(ds)
     client = _connect_client(address)
@@ -389,8 +433,11 @@ def _write_distributed(ds: Any, output: str | os.PathLike, overwrite: bool, addr
         with atomic_output(output, overwrite) as tmp:
             # with the client as default, xarray defines the file here, closes it after
             # each write and guards the writes of the workers with a distributed lock
-            delayed = ds.to_netcdf(tmp, format="NETCDF4", engine="netcdf4", encoding=enc,
-                                   compute=False)
-            _run_distributed(client, delayed, reporter)
+            try:
+                delayed = ds.to_netcdf(tmp, format="NETCDF4", engine="netcdf4", encoding=enc,
+                                       compute=False)
+                _run_distributed(client, delayed, reporter)
+            except (RuntimeError, OSError) as exc:
+                raise write_failure(output, exc, source) from None
     finally:
         client.close()
