@@ -191,7 +191,8 @@ def check_lmax_attribute(ds: xr.Dataset) -> None:
                          "the attribute or the data")
 
 
-def read_conventions(ds: xr.Dataset, where: str = "the coefficients") -> dict[str, Any]:
+def read_conventions(ds: xr.Dataset, where: str = "the coefficients",
+                     term: str = "attribute") -> dict[str, Any]:
     """The conventions a coefficient Dataset states in its attributes, checked.
 
     Parameters
@@ -199,6 +200,8 @@ def read_conventions(ds: xr.Dataset, where: str = "the coefficients") -> dict[st
     ds : xarray.Dataset
     where : str
         What the Dataset is, for the messages (a file name).
+    term : str
+        What holds the conventions, for the warning (a text table's ``"header line"``).
 
     Returns
     -------
@@ -230,14 +233,15 @@ def read_conventions(ds: xr.Dataset, where: str = "the coefficients") -> dict[st
     missing = []
     if norm is None:
         norm = DEFAULT_NORM
-        missing.append(f"no normalization attribute, read as {DEFAULT_NORM!r}")
+        missing.append(f"no normalization {term}, read as {DEFAULT_NORM!r}")
     if cs is None:
         cs = True
-        missing.append("no phase_convention or condon_shortley_phase attribute, read with the "
+        missing.append(f"no phase_convention or condon_shortley_phase {term}, read with the "
                        "Condon-Shortley phase")
     if missing:
         warnings.warn(f"{where}: {'; '.join(missing)} (the documented defaults); if that is "
-                      "wrong, set the attributes", MissingConventionWarning, stacklevel=3)
+                      f"wrong, state the conventions ({term}s normalization and phase_convention)",
+                      MissingConventionWarning, stacklevel=3)
     return {"norm": norm, "condon_shortley": bool(cs), "radius": radius, "units": units}
 
 
