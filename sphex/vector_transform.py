@@ -31,8 +31,8 @@ __all__ = ["analyze_vector", "synthesize_vector"]
 # tangent vector fields (eastward, northward components)
 # ---------------------------------------------------------------------------
 def _check_components(east, north, grid: Grid) -> tuple[np.ndarray, np.ndarray]:
-    east = np.asarray(east)
-    north = np.asarray(north)
+    east = np.asanyarray(east)  # keeps a numpy.ma mask for check_values
+    north = np.asanyarray(north)
     if east.shape != north.shape:
         raise ValueError(f"east has shape {east.shape} but north has shape {north.shape}: give both "
                          "components on the same grid with the same leading axes")

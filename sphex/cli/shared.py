@@ -442,9 +442,9 @@ def one_line_warnings(command: str | None) -> Iterator[None]:
         sys.stderr.write(f"{_where(command)}: warning: {' '.join(str(message).split())}\n")
 
     with warnings.catch_warnings():
-        warnings.simplefilter("default")
-        warnings.filterwarnings("ignore", category=DeprecationWarning)
-        warnings.filterwarnings("ignore", category=PendingDeprecationWarning)
+        # what sphex warns about (defaults it assumed, data it changed) always shows,
+        # once per place, whatever PYTHONWARNINGS says about other warnings
+        warnings.simplefilter("default", UserWarning)
         warnings.showwarning = show
         yield
 

@@ -86,6 +86,12 @@ def _allowed(values: Any) -> str:
     return ", ".join(repr(v) for v in values)
 
 
+def _shown(value: Any) -> str:
+    """An attribute value as a file would show it (``3``, not ``np.int8(3)``)."""
+    a = np.asarray(value)
+    return repr(a.item()) if a.size == 1 else repr(a.tolist())
+
+
 def _text(value: Any) -> str:
     if isinstance(value, bytes):
         value = value.decode("utf-8", "replace")
@@ -130,7 +136,7 @@ def _read_phase(a: Mapping[str, Any]) -> bool | None:
         raw = a["condon_shortley_phase"]
         value = np.asarray(raw).reshape(-1)
         if value.size != 1 or value.dtype.kind not in "iub" or int(value[0]) not in (0, 1):
-            raise ValueError(f"attribute condon_shortley_phase = {raw!r} is not one of the values "
+            raise ValueError(f"attribute condon_shortley_phase = {_shown(raw)} is not one of the values "
                              "allowed: 1 (with the phase (-1)^m), 0 (without); correct the attribute")
         flag = bool(int(value[0]))
     if text is not None and flag is not None and text != flag:
@@ -152,7 +158,7 @@ def _read_radius(a: Mapping[str, Any]) -> float | None:
     except (TypeError, ValueError):
         value = math.nan
     if not (math.isfinite(value) and value > 0):
-        raise ValueError(f"attribute reference_radius = {raw!r} is not a positive number; "
+        raise ValueError(f"attribute reference_radius = {_shown(raw)} is not a positive number; "
                          "give the radius in metres")
     units = _text(a.get("reference_radius_units", "m")).lower()
     if units not in RADIUS_UNITS:
@@ -183,7 +189,7 @@ def check_lmax_attribute(ds: xr.Dataset) -> None:
     value = np.asarray(raw).reshape(-1)
     data_lmax = ds.sizes["degree"] - 1
     if value.size != 1 or value.dtype.kind not in "iu":
-        raise ValueError(f"attribute lmax = {raw!r} is not a whole number; it should be "
+        raise ValueError(f"attribute lmax = {_shown(raw)} is not a whole number; it should be "
                          f"{data_lmax}, the highest degree of the data")
     if int(value[0]) != data_lmax:
         raise ValueError(f"attribute lmax = {int(value[0])} but the data hold degrees "

@@ -139,9 +139,9 @@ def read_table(path: str | os.PathLike) -> tuple[Harmonics, tuple[np.ndarray, np
     key = l_idx * (lmax + 1) + m_idx
     if np.unique(key).size != key.size:
         raise ValueError(f"{str(p)!r}: some degree/order pair appears twice")
-    conv = read_conventions(_header_attributes(p, meta), str(p), term="header line")
     check_memory(16.0 * (lmax + 1) ** 2 * (2 if a.shape[1] == 6 else 1),
                  f"the coefficient table {str(p)!r} to degree {lmax}", "use a smaller table")
+    conv = read_conventions(_header_attributes(p, meta), str(p), term="header line")
     c = np.zeros((lmax + 1, lmax + 1))
     s = np.zeros((lmax + 1, lmax + 1))
     c[l_idx, m_idx] = a[:, 2]
