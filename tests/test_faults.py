@@ -365,3 +365,47 @@ def test_memory_and_permission_failures_are_user_errors(folder, capsys, monkeypa
     status = cli.main(["inspect", str(folder / "single.nc")])
     one_line(status, capsys.readouterr().err, "cannot read", "permission denied")
     assert sorted(p.name for p in folder.iterdir()) == ["series.nc", "single.nc"]
+
+
+def test_a_failed_distributed_run_stops_its_writers_before_removing_the_file(folder, monkeypatch):
+    # workers in this process (so the monkeypatches reach them): the blocks without gaps
+    # are written slowly, the block with a gap fails meanwhile; the tasks still writing
+    # are cancelled and waited for before the temporary file goes (netCDF's append mode
+    # would make it anew for a late write), so when the call returns none runs any more
+    distributed = pytest.importorskip("distributed")
+    from sphex.xr import fields
+
+    analyse, store = fields._analyze_block, netcdf_backend.NetCDF4ArrayWrapper.__setitem__
+    writes = []  # (start, end) of each coefficient block's write
+
+    def late_failure(values, pos=None, **kw):
+        if not np.isfinite(values).all():
+            time.sleep(0.5)
+        return analyse(values, pos, **kw)
+
+    def slow_store(self, key, value):
+        if np.ndim(value) != 3:  # not a coefficient block
+            return store(self, key, value)
+        began = time.monotonic()
+        try:
+            time.sleep(1.0)
+            return store(self, key, value)
+        finally:
+            writes.append((began, time.monotonic()))
+
+    with xr.open_dataset(folder / "series.nc") as ds:
+        holes = ds.load()
+    holes["t"][5, 3, 3] = np.nan
+    holes.to_netcdf(folder / "holes.nc")
+    monkeypatch.setattr(fields, "_analyze_block", late_failure)
+    monkeypatch.setattr(netcdf_backend.NetCDF4ArrayWrapper, "__setitem__", slow_store)
+    with distributed.LocalCluster(n_workers=1, processes=False, threads_per_worker=2,
+                                  dashboard_address=None) as cluster:
+        with pytest.raises(ValueError, match="missing value"):
+            streaming.stream_analyze(folder / "holes.nc", "t", folder / "c.nc",
+                                     chunks="time=2", scheduler=cluster.scheduler_address,
+                                     progress=False)
+        returned = time.monotonic()
+        time.sleep(2.0)  # a write that was not waited for would have happened by now
+    assert writes and all(end <= returned for _, end in writes), (writes, returned)
+    assert sorted(p.name for p in folder.iterdir()) == ["holes.nc", "series.nc", "single.nc"]
