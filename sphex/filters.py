@@ -541,8 +541,12 @@ def gradient(h: Harmonics, grid: Grid) -> tuple[np.ndarray, np.ndarray]:
         )
     east, north = synthesize_gradient(h, grid)
     if h.radius is not None:
-        east = east / h.radius
-        north = north / h.radius
+        with np.errstate(over="ignore"):
+            east = east / h.radius
+            north = north / h.radius
+        for part in (east, north):
+            refuse_overflow(part, f"the gradient on a sphere of radius {h.radius:g} m",
+                            "give the radius in metres, or larger units for the field")
     return east, north
 
 

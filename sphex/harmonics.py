@@ -50,6 +50,19 @@ def _real_form_factor(lmax: int, norm: str) -> np.ndarray:
     return r
 
 
+def _unmasked(values, name: str) -> np.ndarray:
+    """``values`` as an array; a ``numpy.ma`` array (a netCDF4 variable with fill values)
+    with masked elements is refused: the data under the mask are fill values."""
+    arr = np.asanyarray(values)
+    if isinstance(arr, np.ma.MaskedArray):
+        if np.ma.is_masked(arr):
+            raise ValueError(f"{name} is a masked array with {int(np.ma.count_masked(arr))} masked "
+                             "elements: the data under a mask are fill values, not coefficients; "
+                             "fill the missing coefficients (with zeros, if that is what they are)")
+        arr = np.ma.getdata(arr)
+    return np.asarray(arr)
+
+
 IMAG_TOL = 1e-10  # |Im a_l0| allowed, relative to the largest coefficient
 
 
@@ -104,7 +117,7 @@ class Harmonics:
 
     def __init__(self, coef, norm: str = "orthonormal", condon_shortley: bool = True,
                  radius: float | None = None, units: str | None = None):
-        coef = np.asarray(coef)
+        coef = _unmasked(coef, "coef")
         if coef.ndim < 2 or coef.shape[-1] != coef.shape[-2]:
             raise ValueError(f"coef must have shape (..., lmax+1, lmax+1), got {coef.shape}")
         self.coef = coef.astype(np.complex128, copy=False)
@@ -138,6 +151,14 @@ class Harmonics:
         if unknown:
             raise ValueError(f"unknown field(s) {sorted(unknown)}; valid: {sorted(fields)}")
         fields.update(changes)
+        if "coef" in changes and changes["coef"] is not self.coef:
+            # a result computed from these coefficients (by an operator anywhere in sphex)
+            # that left the double range is refused here, whoever computed it
+            new = np.asarray(changes["coef"])
+            if not np.isfinite(peak_magnitude(new)) and np.isfinite(peak_magnitude(self.coef)):
+                refuse_overflow(new, f"the coefficients computed from coefficients up to "
+                                f"{peak_magnitude(self.coef):.3g}",
+                                "divide the coefficients by a power of ten (larger units) first")
         return Harmonics(**fields)
 
     def _derived(self, coef: np.ndarray, what: str, **changes) -> "Harmonics":
@@ -206,8 +227,8 @@ class Harmonics:
     def from_cos_sin(cls, C, S, norm: str = "orthonormal", condon_shortley: bool = True,
                      radius: float | None = None, units: str | None = None) -> "Harmonics":
         """Build from real-form coefficients (see the module docstring for the definition)."""
-        C = np.asarray(C, dtype=np.float64)
-        S = np.asarray(S, dtype=np.float64)
+        C = np.asarray(_unmasked(C, "C"), dtype=np.float64)
+        S = np.asarray(_unmasked(S, "S"), dtype=np.float64)
         if C.shape != S.shape or C.ndim < 2 or C.shape[-1] != C.shape[-2]:
             raise ValueError(f"C and S must share a shape (..., lmax+1, lmax+1), got {C.shape} and {S.shape}")
         check_norm(norm)

@@ -25,7 +25,7 @@ import xarray as xr
 import sphex
 import sphex.xr as sxr
 from sphex import cli, filters
-from sphex.flow import analyze_flow
+from sphex.flow import Flow, analyze_flow
 from sphex.limits import RequestTooLarge
 from sphex.spectra import degree_power
 from sphex.xr import streaming
@@ -117,6 +117,11 @@ def test_masked_netcdf4_values_are_refused_with_count_and_place(tmp_path, grid, 
             analyze_flow(np.zeros(grid.shape), masked, grid)
         with pytest.raises(ValueError, match="masked"):
             sphex.regrid(masked, grid, grid)
+        coef = np.ma.masked_array(np.ones((3, 3)), mask=np.eye(3, dtype=bool))
+        with pytest.raises(ValueError, match="C is a masked array with 3 masked elements"):
+            sphex.Harmonics.from_cos_sin(coef, np.zeros((3, 3)))
+        with pytest.raises(ValueError, match="coef is a masked array"):
+            sphex.Harmonics(coef)
     # a masked array without masked cells is just its data
     clean = np.ma.masked_array(field, mask=np.zeros(grid.shape, bool))
     assert np.array_equal(sphex.analyze(clean, grid).coef, sphex.analyze(field, grid).coef)
@@ -172,6 +177,9 @@ def test_results_beyond_the_double_range_are_refused(grid):
         big * 1e10
     with pytest.raises(ValueError, match="overflow"):
         filters.laplacian(big)                      # degree factors up to l(l+1) = 240
+    with pytest.raises(ValueError, match="coefficients computed from coefficients up to 5e\\+307 "
+                                         "overflow"):
+        Flow(big, big).vorticity()                  # any operator: checked in Harmonics.replace
     with pytest.raises(ValueError, match="degree power of coefficients up to 1e\\+200 overflow"):
         degree_power(sphex.Harmonics(np.diag(np.full(LMAX + 1, 1e200)).astype(complex)))
 
