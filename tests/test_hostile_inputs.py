@@ -242,7 +242,9 @@ def test_coefficients_are_read_by_their_degree_and_order_labels(tmp_path, files,
     (lambda ds: ds.assign(cos_coef=ds.cos_coef.transpose(..., "order", "degree")
                           .rename(order="degree", degree="order")),
      ("order > degree", "swapped")),
-], ids=["gap", "repeat", "start", "fraction", "lmax", "transposed"])
+    (lambda ds: ds.assign(cos_coef=ds.cos_coef.where(ds.degree != 3)),
+     ("cos_coef holds", "NaN or inf", "first at degree 3, order 0")),
+], ids=["gap", "repeat", "start", "fraction", "lmax", "transposed", "nan"])
 def test_inconsistent_coefficient_files_are_refused(tmp_path, capsys, files, change, words):
     ds = change(sxr.open_coefficients(files["coef"]))
     path = tmp_path / "bad.nc"

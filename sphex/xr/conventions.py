@@ -320,8 +320,8 @@ def ordered_by_labels(ds: xr.Dataset, where: str = "the coefficients") -> xr.Dat
 
 
 def check_layout(ds: xr.Dataset, where: str = "the coefficients") -> None:
-    """Refuse values where no coefficient exists: ``order > degree`` in either variable,
-    and ``sin_coef`` at order 0.  Such values mean the data are not in sphex's layout
+    """Refuse NaN or inf, and values where no coefficient exists: ``order > degree`` in
+    either variable, and ``sin_coef`` at order 0.  Such values mean the data are not in sphex's layout
     (degree and order swapped, for instance) and would be dropped silently.
     Only in-memory data are checked."""
     for name in (COS, SIN):
@@ -329,6 +329,13 @@ def check_layout(ds: xr.Dataset, where: str = "the coefficients") -> None:
         if not isinstance(var.data, np.ndarray):
             continue
         v = np.asarray(var.transpose(..., "degree", "order").values)
+        if v.dtype.kind == "f" and not np.all(np.isfinite(v)):
+            bad = ~np.isfinite(v)
+            at = np.unravel_index(int(np.flatnonzero(bad)[0]), v.shape)
+            raise ValueError(f"{where}: {name} holds {int(bad.sum())} NaN or inf value"
+                             f"{'s' if bad.sum() != 1 else ''} (first at degree {int(at[-2])}, "
+                             f"order {int(at[-1])}; a fill value decodes to NaN); every "
+                             "coefficient must be a number: store missing ones as 0")
         n = v.shape[-1]
         upper = np.triu(np.ones((v.shape[-2], n), dtype=bool), k=1)
         bad = np.abs(v[..., upper]) > 0
