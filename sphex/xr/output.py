@@ -43,7 +43,7 @@ def _host() -> str:
 
 def partial_prefix(final: Path) -> str:
     """The start of the name of a temporary file for ``final`` written by this process."""
-    return f".{final.name}.pid{os.getpid()}@{_host()}."
+    return f".{final.name[:120]}.pid{os.getpid()}@{_host()}."  # within 255 bytes
 
 
 def folder_problem(parent: Path, exc: OSError) -> OSError:
