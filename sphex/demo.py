@@ -407,6 +407,9 @@ def run(out_dir: str | os.PathLike = "sphex-demo-output", overwrite: bool = Fals
                               "pass --overwrite or choose another --out")
     made_dir = not out.exists()
     out.mkdir(parents=True, exist_ok=True)
+    from sphex.xr.output import check_output_path
+
+    check_output_path(out / names["coef"], overwrite)  # a writable folder, before any work
     before = set(out.iterdir())
     try:
         return _make_products(out, names, overwrite, progress or _quiet_progress)

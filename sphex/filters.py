@@ -25,6 +25,7 @@ from scipy import special
 
 from sphex.grids import Grid, gauss_nodes
 from sphex.harmonics import Harmonics
+from sphex.limits import check_memory, peak_magnitude, refuse_overflow, whole_number
 
 __all__ = [
     "gaussian",
@@ -48,10 +49,13 @@ _FORWARD_GROWTH_LIMIT = 7.0
 
 
 # ---------------------------------------------------------------- validation
-def _check_lmax(lmax: object) -> int:
-    if isinstance(lmax, bool) or not isinstance(lmax, (int, np.integer)) or lmax < 0:
-        raise ValueError(f"lmax must be a non-negative integer (got {lmax!r})")
-    return int(lmax)
+def _check_lmax(lmax: object, name: str = "lmax") -> int:
+    """A degree: a whole number >= 0 whose per-degree arrays fit in memory."""
+    if not isinstance(lmax, (int, np.integer)) or isinstance(lmax, (bool, np.bool_)):
+        raise ValueError(f"{name} must be a non-negative integer (got {lmax!r})")
+    lmax = whole_number(lmax, name)
+    check_memory(32.0 * (lmax + 1), f"per-degree weights to degree {lmax}", "use a lower lmax")
+    return lmax
 
 
 def _check_positive(value: object, name: str) -> float:
@@ -74,8 +78,17 @@ def _check_harmonics(h: object) -> Harmonics:
 
 
 def _scale_degrees(h: Harmonics, factor: np.ndarray, **changes) -> Harmonics:
-    """New Harmonics with every degree-l coefficient multiplied by factor[l]."""
-    return h.replace(coef=h.coef * factor[: h.lmax + 1, None], **changes)
+    """New Harmonics with every degree-l coefficient multiplied by factor[l]; refused
+    when the product leaves the double range."""
+    with np.errstate(over="ignore", invalid="ignore"):
+        coef = h.coef * factor[: h.lmax + 1, None]
+    if np.isfinite(peak_magnitude(h.coef)):
+        refuse_overflow(coef, f"the scaled coefficients (from coefficients up to "
+                        f"{peak_magnitude(h.coef):.3g}, degree factors up to "
+                        f"{peak_magnitude(factor):.3g})",
+                        "divide the coefficients by a power of ten (larger units) or truncate "
+                        "to a lower degree first")
+    return h.replace(coef=coef, **changes)
 
 
 def _units_times_metres(units: str | None, power: int) -> str | None:
@@ -528,8 +541,12 @@ def gradient(h: Harmonics, grid: Grid) -> tuple[np.ndarray, np.ndarray]:
         )
     east, north = synthesize_gradient(h, grid)
     if h.radius is not None:
-        east = east / h.radius
-        north = north / h.radius
+        with np.errstate(over="ignore"):
+            east = east / h.radius
+            north = north / h.radius
+        for part in (east, north):
+            refuse_overflow(part, f"the gradient on a sphere of radius {h.radius:g} m",
+                            "give the radius in metres, or larger units for the field")
     return east, north
 
 

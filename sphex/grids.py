@@ -32,6 +32,8 @@ from __future__ import annotations
 import numpy as np
 import scipy.fft
 
+from sphex.limits import check_memory, whole_number
+
 __all__ = ["Grid", "LAYOUTS"]
 
 LAYOUTS = ("poles", "cells", "north")
@@ -109,6 +111,7 @@ class Grid:
         if nlon < 2 * lmax + 1:
             raise ValueError(f"nlon={nlon} is too few longitudes for lmax={lmax}: "
                              f"use nlon >= {2 * lmax + 1}")
+        _check_grid_memory(lmax + 1, nlon, f"Grid.gauss({lmax})", "use a lower lmax")
         colat, weights = gauss_nodes(lmax + 1)
         return cls("gauss", colat, weights, nlon)
 
@@ -134,6 +137,8 @@ class Grid:
         nlon = _check_int("nlon", nlon, minimum=1)
         if layout not in LAYOUTS:
             raise ValueError(f"unknown layout {layout!r}; valid layouts: {', '.join(LAYOUTS)}")
+        _check_grid_memory(nlat, nlon, f"Grid.equiangular({nlat}, {nlon}, {layout!r})",
+                           "use fewer latitudes or longitudes")
         colat, weights = equiangular_nodes(nlat, layout)
         return cls("equiangular-" + layout, colat, weights, nlon)
 
@@ -247,16 +252,26 @@ class Grid:
 
     def integrate(self, values) -> np.ndarray:
         """Area integral over the unit sphere of ``values`` shaped ``(..., nlat, nlon)``."""
+        values = np.asanyarray(values)
+        if isinstance(values, np.ma.MaskedArray):
+            if np.ma.is_masked(values):
+                raise ValueError(f"values are a masked array with {np.ma.count_masked(values)} "
+                                 "masked elements: the data under a mask are fill values, not "
+                                 "the field; fill the gaps first")
+            values = np.ma.getdata(values)
         values = np.asarray(values, dtype=np.float64)
         return (2 * np.pi / self.nlon) * np.einsum("...jk,j->...", values, self.weights)
 
 
 def _check_int(name, value, minimum):
-    if isinstance(value, (bool, np.bool_)) or not isinstance(value, (int, np.integer)):
-        raise ValueError(f"{name} must be an integer, got {value!r}")
-    if value < minimum:
-        raise ValueError(f"{name} must be >= {minimum}, got {value}")
-    return int(value)
+    return whole_number(value, name, minimum)
+
+
+def _check_grid_memory(nlat: int, nlon: int, what: str, fix: str) -> None:
+    """Refuse, before its nodes are computed, a grid that cannot hold one float64 field
+    in the memory available (the nodes, the weights and one field)."""
+    check_memory(8.0 * (nlat * nlon + 6 * nlat + 2 * nlon),
+                 f"{what}: a {nlat} x {nlon} grid with one float64 field on it", fix)
 
 
 def _detect_lon(lon, tol):

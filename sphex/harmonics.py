@@ -26,6 +26,7 @@ import numbers
 import numpy as np
 
 from sphex.legendre import check_norm, norm_scale
+from sphex.limits import check_memory, peak_magnitude, refuse_overflow, whole_number
 
 __all__ = ["Harmonics", "convert_factor"]
 
@@ -47,6 +48,19 @@ def _real_form_factor(lmax: int, norm: str) -> np.ndarray:
     r = np.full(lmax + 1, 1.0 if norm == "unnormalized" else np.sqrt(2.0))
     r[0] = 1.0
     return r
+
+
+def _unmasked(values, name: str) -> np.ndarray:
+    """``values`` as an array; a ``numpy.ma`` array (a netCDF4 variable with fill values)
+    with masked elements is refused: the data under the mask are fill values."""
+    arr = np.asanyarray(values)
+    if isinstance(arr, np.ma.MaskedArray):
+        if np.ma.is_masked(arr):
+            raise ValueError(f"{name} is a masked array with {int(np.ma.count_masked(arr))} masked "
+                             "elements: the data under a mask are fill values, not coefficients; "
+                             "fill the missing coefficients (with zeros, if that is what they are)")
+        arr = np.ma.getdata(arr)
+    return np.asarray(arr)
 
 
 IMAG_TOL = 1e-10  # |Im a_l0| allowed, relative to the largest coefficient
@@ -103,7 +117,7 @@ class Harmonics:
 
     def __init__(self, coef, norm: str = "orthonormal", condon_shortley: bool = True,
                  radius: float | None = None, units: str | None = None):
-        coef = np.asarray(coef)
+        coef = _unmasked(coef, "coef")
         if coef.ndim < 2 or coef.shape[-1] != coef.shape[-2]:
             raise ValueError(f"coef must have shape (..., lmax+1, lmax+1), got {coef.shape}")
         self.coef = coef.astype(np.complex128, copy=False)
@@ -137,7 +151,23 @@ class Harmonics:
         if unknown:
             raise ValueError(f"unknown field(s) {sorted(unknown)}; valid: {sorted(fields)}")
         fields.update(changes)
+        if "coef" in changes and changes["coef"] is not self.coef:
+            # a result computed from these coefficients (by an operator anywhere in sphex)
+            # that left the double range is refused here, whoever computed it
+            new = np.asarray(changes["coef"])
+            if not np.isfinite(peak_magnitude(new)) and np.isfinite(peak_magnitude(self.coef)):
+                refuse_overflow(new, f"the coefficients computed from coefficients up to "
+                                f"{peak_magnitude(self.coef):.3g}",
+                                "divide the coefficients by a power of ten (larger units) first")
         return Harmonics(**fields)
+
+    def _derived(self, coef: np.ndarray, what: str, **changes) -> "Harmonics":
+        """``replace(coef=coef)`` for a result computed from these coefficients, refused
+        when it overflowed (finite coefficients in, inf or NaN out)."""
+        if not np.isfinite(peak_magnitude(coef)) and np.isfinite(peak_magnitude(self.coef)):
+            refuse_overflow(coef, f"{what} of coefficients up to {peak_magnitude(self.coef):.3g}",
+                            "divide the coefficients by a power of ten (larger units) first")
+        return self.replace(coef=coef, **changes)
 
     def __repr__(self):
         extra = "".join(f", {k}={v!r}" for k, v in (("radius", self.radius), ("units", self.units))
@@ -173,23 +203,32 @@ class Harmonics:
             raise ValueError(f"converting lmax={self.lmax} coefficients to {norm!r} leaves double range "
                              "(unnormalised functions overflow above degree ~150): truncate first "
                              "(h.truncate(...)) or keep a normalised convention")
-        return self.replace(coef=np.where(tri, self.coef * g, 0), norm=norm, condon_shortley=cs)
+        with np.errstate(over="ignore", invalid="ignore"):
+            coef = np.where(tri, self.coef * g, 0)
+        return self._derived(coef, f"the conversion to {norm!r}",
+                             norm=norm, condon_shortley=cs)
 
     def cos_sin(self) -> tuple[np.ndarray, np.ndarray]:
         """Real-form coefficients ``(C, S)``, each ``(..., lmax+1, lmax+1)`` indexed [l, m]."""
         r = _real_form_factor(self.lmax, self.norm)
         scale = np.where(np.arange(self.lmax + 1) == 0, 1.0, 2.0 / r)
-        C = self.coef.real * scale
-        S = -self.coef.imag * scale
+        with np.errstate(over="ignore"):
+            C = self.coef.real * scale
+            S = -self.coef.imag * scale
         S[..., :, 0] = 0.0
+        if not (np.isfinite(peak_magnitude(C)) and np.isfinite(peak_magnitude(S))) \
+                and np.isfinite(peak_magnitude(self.coef)):
+            refuse_overflow(np.stack([C, S]), f"the real-form (cosine/sine) coefficients, "
+                            f"sqrt(2) times the complex ones up to {peak_magnitude(self.coef):.3g},",
+                            "divide the coefficients by a power of ten (larger units) first")
         return C, S
 
     @classmethod
     def from_cos_sin(cls, C, S, norm: str = "orthonormal", condon_shortley: bool = True,
                      radius: float | None = None, units: str | None = None) -> "Harmonics":
         """Build from real-form coefficients (see the module docstring for the definition)."""
-        C = np.asarray(C, dtype=np.float64)
-        S = np.asarray(S, dtype=np.float64)
+        C = np.asarray(_unmasked(C, "C"), dtype=np.float64)
+        S = np.asarray(_unmasked(S, "S"), dtype=np.float64)
         if C.shape != S.shape or C.ndim < 2 or C.shape[-1] != C.shape[-2]:
             raise ValueError(f"C and S must share a shape (..., lmax+1, lmax+1), got {C.shape} and {S.shape}")
         check_norm(norm)
@@ -211,10 +250,14 @@ class Harmonics:
         return other.to(self.norm, self.condon_shortley).coef
 
     def __add__(self, other):
-        return self.replace(coef=self.coef + self._aligned(other))
+        other = self._aligned(other)
+        with np.errstate(over="ignore", invalid="ignore"):
+            return self._derived(self.coef + other, "the sum")
 
     def __sub__(self, other):
-        return self.replace(coef=self.coef - self._aligned(other))
+        other = self._aligned(other)
+        with np.errstate(over="ignore", invalid="ignore"):
+            return self._derived(self.coef - other, "the difference")
 
     def __neg__(self):
         return self.replace(coef=-self.coef)
@@ -222,20 +265,25 @@ class Harmonics:
     def __mul__(self, scalar):
         if not isinstance(scalar, numbers.Real) or isinstance(scalar, bool):
             return NotImplemented
-        return self.replace(coef=self.coef * float(scalar))
+        with np.errstate(over="ignore", invalid="ignore"):
+            coef = self.coef * float(scalar)
+        return self._derived(coef, f"the product with {float(scalar):g}")
 
     __rmul__ = __mul__
 
     def __truediv__(self, scalar):
         if not isinstance(scalar, numbers.Real) or isinstance(scalar, bool):
             return NotImplemented
-        return self.replace(coef=self.coef / float(scalar))
+        with np.errstate(over="ignore", invalid="ignore", divide="ignore"):
+            coef = self.coef / float(scalar)
+        return self._derived(coef, f"the quotient by {float(scalar):g}")
 
     def truncate(self, lmax: int) -> "Harmonics":
         """Coefficients up to degree ``lmax`` (zero-padded when larger than self.lmax)."""
-        if int(lmax) != lmax or lmax < 0:
-            raise ValueError(f"lmax must be a non-negative integer, got {lmax!r}")
-        lmax = int(lmax)
+        lmax = whole_number(lmax, "lmax")
+        fields = int(np.prod(self.batch_shape))
+        check_memory(16.0 * fields * (lmax + 1) ** 2, f"Harmonics.truncate({lmax}) of {fields} "
+                     f"field{'s' if fields != 1 else ''}", "truncate to a lower degree")
         n = min(lmax, self.lmax) + 1
         coef = np.zeros(self.batch_shape + (lmax + 1, lmax + 1), dtype=np.complex128)
         coef[..., :n, :n] = self.coef[..., :n, :n]
@@ -254,4 +302,6 @@ class Harmonics:
         if not np.all(np.isfinite(w)):
             raise ValueError("filter weights contain NaN or inf")
         w = w[..., : self.lmax + 1]
-        return self.replace(coef=self.coef * w[..., :, None])
+        with np.errstate(over="ignore", invalid="ignore"):
+            coef = self.coef * w[..., :, None]
+        return self._derived(coef, "the filtered coefficients")

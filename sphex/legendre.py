@@ -30,6 +30,7 @@ import functools
 import numpy as np
 
 from sphex.kernels.recursion import legendre_order
+from sphex.limits import check_memory, whole_number
 
 __all__ = ["for_order", "all_orders", "derivative_for_order", "NORMS", "norm_scale",
            "check_norm"]
@@ -127,11 +128,15 @@ def _prepare_colat(colat):
 
 
 def _check_m_lmax(m, lmax):
-    if int(lmax) != lmax or lmax < 0:
-        raise ValueError(f"lmax must be a non-negative integer, got {lmax!r}")
-    if int(m) != m or m < 0 or m > lmax:
-        raise ValueError(f"order m must be an integer with 0 <= m <= lmax={lmax}, got {m!r}")
-    return int(m), int(lmax)
+    lmax = whole_number(lmax, "lmax")
+    text = f"order m must be an integer with 0 <= m <= lmax={lmax}, got {m!r}"
+    try:
+        order = whole_number(m, "order m")
+    except ValueError:
+        raise ValueError(text) from None
+    if order > lmax:
+        raise ValueError(text)
+    return order, lmax
 
 
 def _order_values(m, lmax, colat, norm, condon_shortley, want_deriv):
@@ -194,6 +199,9 @@ def all_orders(lmax: int, colat, norm: str = "orthonormal", condon_shortley: boo
         the number of points: use :func:`for_order` order by order at high degree.
     """
     x, _ = _prepare_colat(colat)
+    lmax = whole_number(lmax, "lmax")
+    check_memory(8.0 * (lmax + 1) ** 2 * x.size, f"the Legendre functions of every order to "
+                 f"degree {lmax} at {x.size} colatitudes", "use for_order order by order")
     out = np.zeros((lmax + 1, lmax + 1, x.size))
     for m in range(lmax + 1):
         out[m:, m, :] = for_order(m, lmax, colat, norm, condon_shortley)

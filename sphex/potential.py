@@ -79,6 +79,7 @@ import numpy as np
 from sphex.grids import Grid
 from sphex.harmonics import Harmonics
 from sphex.legendre import norm_column
+from sphex.limits import check_memory, whole_number
 from sphex.models import PotentialModel
 from sphex.normal_field import GRS80, WGS84, ZONAL_COUNT, NormalField, normal_field
 from sphex.points import check_points, evaluate, evaluate_gradient
@@ -744,9 +745,9 @@ def kaula_rule(lmax: int, constant: float = 1e-5) -> np.ndarray:
     >>> round(float(kaula_rule(2)[2]), 20)     # 5 (1e-5 / 4)^2
     3.125e-11
     """
-    if isinstance(lmax, bool) or int(lmax) != lmax or lmax < 0:
-        raise ValueError(f"lmax must be a non-negative integer, got {lmax!r}")
-    l = np.arange(int(lmax) + 1, dtype=np.float64)
+    lmax = whole_number(lmax, "lmax")
+    check_memory(16.0 * (lmax + 1), f"the Kaula rule to degree {lmax}", "use a lower lmax")
+    l = np.arange(lmax + 1, dtype=np.float64)
     out = np.full(l.size, np.nan)
     out[2:] = (2 * l[2:] + 1) * (float(constant) / l[2:] ** 2) ** 2
     return out

@@ -22,11 +22,20 @@ from sphex.harmonics import Harmonics, convert_factor
 from sphex.kernels import numba
 from sphex.kernels.recursion import live_counts
 from sphex.legendre import norm_column, sectoral_table
+from sphex.limits import (
+    binary_exponent, check_memory, peak_magnitude, refuse_overflow, whole_number,
+)
 
 __all__ = ["fft_workers", "check_grid", "check_values", "check_lmax", "LatitudePairs",
            "latitude_pairs", "longitude_phase", "live_pairs", "order_sequence", "BAND_BYTES",
            "pair_bands", "PairBand", "ConventionFactor", "convention_factor",
-           "batched_coefficients", "fourier_synthesis"]
+           "batched_coefficients", "fourier_synthesis", "MASKED_ROUTE", "masked_positions",
+           "scaled_input", "rescaled_result", "check_analysis_memory", "check_synthesis_memory",
+           "ANALYSIS_OVERFLOW_FIX", "SYNTHESIS_OVERFLOW_FIX"]
+
+#: Where masked (missing) values can go instead of a transform.
+MASKED_ROUTE = ("for a least-squares fit over the observed cells only, use "
+                "sphex.points.fit_masked(values, grid, lmax, mask=...)")
 
 
 def fft_workers() -> int:
@@ -45,28 +54,99 @@ def check_grid(grid) -> Grid:
     return grid
 
 
+def masked_positions(mask: np.ndarray, grid: Grid, listed: int = 3) -> str:
+    """Where the first ``listed`` True entries of a ``(..., nlat, nlon)`` mask are, as text:
+    ``"latitude 45 deg, longitude 120 deg (row 3, column 5 of field 0)"``."""
+    flat = np.flatnonzero(mask)
+    out = []
+    for k in flat[:listed]:
+        at = np.unravel_index(int(k), mask.shape)
+        j, i = int(at[-2]), int(at[-1])
+        field = f" of field {int(np.ravel_multi_index(at[:-2], mask.shape[:-2]))}" \
+            if mask.ndim > 2 else ""
+        out.append(f"latitude {float(grid.lat[j]):.6g} deg, longitude {float(grid.lon[i]):.6g} "
+                   f"deg (row {j}, column {i}{field})")
+    more = f" and {flat.size - listed} more" if flat.size > listed else ""
+    return "; ".join(out) + more
+
+
 def check_values(values, grid: Grid) -> np.ndarray:
-    arr = np.asarray(values)
+    """The values of a transform as a plain real array on ``grid``, after the checks.
+
+    Raises
+    ------
+    ValueError
+        Complex or non-numeric values, a shape that is not ``(..., nlat, nlon)``
+        of the grid, masked elements of a ``numpy.ma`` array (such as a netCDF4
+        variable with fill values), NaN or inf; each message says where and
+        what to do.
+    """
+    arr = np.asanyarray(values)
+    if arr.dtype.kind == "c":
+        raise ValueError(f"values are complex (dtype {arr.dtype}); sphex analyses real fields: "
+                         "analyse the real and imaginary parts as two fields "
+                         "(values.real and values.imag)")
     if arr.dtype.kind not in "fiu":
         raise ValueError(f"values must be real numbers (float or integer), got dtype {arr.dtype}; "
-                         "for complex data analyse the real and imaginary parts separately")
+                         "convert them with np.asarray(values, dtype=float) first")
     if arr.ndim < 2 or arr.shape[-2:] != grid.shape:
         raise ValueError(f"values have shape {arr.shape} but the grid is (nlat, nlon) = {grid.shape}: "
                          "the last two axes must be latitude then longitude "
                          "(transpose with np.moveaxis if they are swapped)")
-    if arr.dtype.kind == "f" and not np.all(np.isfinite(arr)):
-        bad = int(np.size(arr) - np.count_nonzero(np.isfinite(arr)))
-        raise ValueError(f"values contain {bad} NaN or inf entries: fill or mask them first "
-                         "(a spherical-harmonic analysis needs every grid point)")
+    if isinstance(arr, np.ma.MaskedArray):
+        mask = np.ma.getmaskarray(arr)
+        bad = int(np.count_nonzero(mask))
+        if bad:
+            raise ValueError(f"values are a masked array with {bad} masked element"
+                             f"{'s' if bad != 1 else ''} (at {masked_positions(mask, grid)}); "
+                             "the data under a mask are fill values, not the field, and a "
+                             "spherical-harmonic analysis needs every grid point: fill the gaps "
+                             f"first, or {MASKED_ROUTE}")
+        arr = np.ma.getdata(arr)
+    arr = np.asarray(arr)
+    if arr.dtype.kind == "f" and not np.isfinite(peak_magnitude(arr)):
+        finite = np.isfinite(arr)
+        bad = int(np.size(arr) - np.count_nonzero(finite))
+        raise ValueError(f"values contain {bad} NaN or inf entries (at "
+                         f"{masked_positions(~finite, grid)}): fill or mask them first (a "
+                         "spherical-harmonic analysis needs every grid point), or "
+                         f"{MASKED_ROUTE}")
     return arr
+
+
+def scaled_input(arr: np.ndarray) -> tuple[np.ndarray, int, float]:
+    """``(arr * 2**-e, e, peak)``: input whose largest magnitude ``peak`` is beyond
+    2**+-600 brought near 1 by a power of two (exact), so that no intermediate sum of a
+    transform overflows or loses bits to underflow; ``(arr, 0, peak)`` otherwise (no copy)."""
+    if arr.dtype.kind not in "fc":
+        return arr, 0, 0.0
+    peak = peak_magnitude(arr)
+    e = binary_exponent(peak)
+    if e == 0:
+        return arr, 0, peak
+    if np.iscomplexobj(arr):
+        return np.ldexp(arr.real, -e) + 1j * np.ldexp(arr.imag, -e), e, peak
+    return np.ldexp(np.asarray(arr, dtype=np.float64), -e), e, peak
+
+
+def rescaled_result(out: np.ndarray, e: int, what: str, fix: str) -> np.ndarray:
+    """``out * 2**e`` (in place), refused with a ValueError naming ``what`` overflowed when
+    the result holds inf or NaN (finite input only gets here)."""
+    if e:
+        with np.errstate(over="ignore"):
+            if np.iscomplexobj(out):
+                np.ldexp(out.real, e, out=out.real)
+                np.ldexp(out.imag, e, out=out.imag)
+            else:
+                np.ldexp(out, e, out=out)
+    refuse_overflow(out, what, fix)
+    return out
 
 
 def check_lmax(lmax, grid: Grid, allow_aliasing: bool) -> int:
     if lmax is None:
         return grid.lmax_exact
-    if isinstance(lmax, bool) or int(lmax) != lmax or lmax < 0:
-        raise ValueError(f"lmax must be a non-negative integer, got {lmax!r}")
-    lmax = int(lmax)
+    lmax = whole_number(lmax, "lmax")
     if lmax > grid.lmax_exact and not allow_aliasing:
         raise ValueError(f"lmax={lmax} is above this grid's exact degree limit {grid.lmax_exact} "
                          f"({grid!r}): use lmax <= {grid.lmax_exact}, a finer grid, or "
@@ -278,3 +358,32 @@ def batched_coefficients(h: Harmonics) -> tuple[np.ndarray, np.ndarray]:
     return c, convention_factor(h.lmax, h.norm, h.condon_shortley, "orthonormal", False)
 
 
+# ---------------------------------------------------------------------------
+# memory of a transform
+# ---------------------------------------------------------------------------
+def _band_rows(grid: Grid, orders: int) -> int:
+    """Latitude rows in the first band of a transform (the FFT buffers are this tall)."""
+    npairs = (grid.nlat + 1) // 2
+    b0, b1 = pair_bands(npairs, orders)[0]
+    return min(grid.nlat, 2 * (b1 - b0))
+
+
+def check_analysis_memory(fields: int, grid: Grid, lmax: int) -> None:
+    """Refuse an analysis whose coefficients and FFT buffer cannot fit in memory."""
+    orders = min(lmax, grid.nlon // 2) + 1
+    need = 16.0 * fields * ((lmax + 1) ** 2 + _band_rows(grid, orders) * (grid.nlon // 2 + 1))
+    check_memory(need, f"the analysis of {fields} field{'s' if fields != 1 else ''} to degree "
+                 f"{lmax}", "use a lower lmax or fewer fields at a time")
+
+
+def check_synthesis_memory(fields: int, grid: Grid, lmax: int) -> None:
+    """Refuse a synthesis whose output and FFT buffer cannot fit in memory."""
+    need = fields * (8.0 * grid.nlat * grid.nlon
+                     + 16.0 * _band_rows(grid, lmax + 1) * (grid.nlon // 2 + 1))
+    check_memory(need, f"the synthesis of {fields} field{'s' if fields != 1 else ''} on a "
+                 f"{grid.nlat} x {grid.nlon} grid", "use a coarser grid or fewer fields at a time")
+
+
+ANALYSIS_OVERFLOW_FIX = ("express the field in larger units (divide it by a power of ten), or use "
+                         "norm='full', whose coefficients are sqrt(4 pi) times smaller")
+SYNTHESIS_OVERFLOW_FIX = "divide the coefficients by a power of ten (larger units)"

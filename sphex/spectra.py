@@ -16,9 +16,12 @@ degree ``l = 0..lmax``; leading batch axes are kept.
 """
 from __future__ import annotations
 
+import math
+
 import numpy as np
 
 from sphex.harmonics import Harmonics
+from sphex.limits import peak_magnitude, refuse_overflow
 
 __all__ = [
     "degree_power",
@@ -49,6 +52,39 @@ def _ortho_coef(h: Harmonics) -> np.ndarray:
     if h.norm == "orthonormal" and h.condon_shortley:
         return h.coef
     return h.to(norm="orthonormal", condon_shortley=True).coef
+
+
+#: Coefficients beyond 2**+-SQUARE_SAFE_EXPONENT are scaled by a power of two before
+#: they are squared, so that a power within the double range never overflows.
+SQUARE_SAFE_EXPONENT = 400
+_OVERFLOW_FIX = "divide the coefficients by a power of ten (larger units) first"
+
+
+def _binary_scale(a: np.ndarray) -> tuple[np.ndarray, int]:
+    """``(a * 2**-e, e)`` with ``e`` bringing the largest magnitude of ``a`` near 1 when it
+    lies beyond 2**+-SQUARE_SAFE_EXPONENT; ``(a, 0)`` otherwise."""
+    peak = peak_magnitude(a)
+    if not math.isfinite(peak) or peak == 0.0 or \
+            2.0 ** -SQUARE_SAFE_EXPONENT <= peak <= 2.0 ** SQUARE_SAFE_EXPONENT:
+        return a, 0
+    e = math.frexp(peak)[1]
+    return np.ldexp(a.real, -e) + 1j * np.ldexp(a.imag, -e), e
+
+
+def _pair_power(a1: np.ndarray, a2: np.ndarray | None, what: str) -> np.ndarray:
+    """``_degree_sum(Re(a1 conj(a2)))`` (``a2`` None: ``|a1|^2``) computed on scaled copies
+    of extreme coefficients, scaled back, and refused if it leaves the double range."""
+    b1, e1 = _binary_scale(a1)
+    b2, e2 = (b1, e1) if a2 is None else _binary_scale(a2)
+    x = _degree_sum((b1 * np.conj(b2)).real)
+    with np.errstate(over="ignore"):
+        x = np.ldexp(x, e1 + e2)
+    finite_in = math.isfinite(peak_magnitude(a1)) and (a2 is None or
+                                                       math.isfinite(peak_magnitude(a2)))
+    if finite_in:
+        peak = max(peak_magnitude(a1), 0.0 if a2 is None else peak_magnitude(a2))
+        refuse_overflow(x, f"the {what} of coefficients up to {peak:.3g}", _OVERFLOW_FIX)
+    return x
 
 
 def _degree_sum(prod: np.ndarray) -> np.ndarray:
@@ -91,8 +127,7 @@ def degree_power(h: Harmonics) -> np.ndarray:
     array([0. , 0. , 0.2, 0. ])
     """
     _check_harmonics(h)
-    a = _ortho_coef(h)
-    return _degree_sum(np.abs(a) ** 2)
+    return _pair_power(_ortho_coef(h), None, "degree power")
 
 
 def power_per_coefficient(h: Harmonics) -> np.ndarray:
@@ -175,7 +210,7 @@ def cross_power(h1: Harmonics, h2: Harmonics) -> np.ndarray:
     :math:`f_1 f_2`, and ``cross_power(h, h) == degree_power(h)``.
     """
     a1, a2 = _common_pair(h1, h2)
-    return _degree_sum((a1 * np.conj(a2)).real)
+    return _pair_power(a1, a2, "cross power")
 
 
 def correlation(h1: Harmonics, h2: Harmonics) -> np.ndarray:
@@ -187,6 +222,7 @@ def correlation(h1: Harmonics, h2: Harmonics) -> np.ndarray:
     ``(..., min(lmax1, lmax2)+1)``.
     """
     a1, a2 = _common_pair(h1, h2)
+    a1, a2 = _binary_scale(a1)[0], _binary_scale(a2)[0]  # the ratio does not depend on scale
     x = _degree_sum((a1 * np.conj(a2)).real)
     p1 = _degree_sum(np.abs(a1) ** 2)
     p2 = _degree_sum(np.abs(a2) ** 2)
@@ -296,4 +332,8 @@ def kinetic_energy(flow) -> tuple[np.ndarray, np.ndarray]:
     radius = 1.0 if psi.radius is None else psi.radius
     l = np.arange(psi.lmax + 1, dtype=float)
     weight = l * (l + 1.0) / (2.0 * radius * radius)
-    return weight * degree_power(psi), weight * degree_power(chi)
+    with np.errstate(over="ignore"):
+        parts = weight * degree_power(psi), weight * degree_power(chi)
+    for part in parts:
+        refuse_overflow(part, "the kinetic energy per degree", _OVERFLOW_FIX)
+    return parts

@@ -28,10 +28,12 @@ from sphex.grids import Grid
 from sphex.harmonics import Harmonics
 from sphex.kernels.scalar import analysis_kernel, synthesis_kernel
 from sphex.legendre import check_norm, sectoral_table
+from sphex.limits import check_memory, whole_number
 from sphex.rings import (
-    ConventionFactor, PairBand, batched_coefficients, check_grid, check_lmax, check_values,
-    convention_factor, fft_workers, fourier_synthesis, latitude_pairs, live_pairs,
-    longitude_phase, order_sequence, pair_bands,
+    ANALYSIS_OVERFLOW_FIX, SYNTHESIS_OVERFLOW_FIX, ConventionFactor, PairBand,
+    batched_coefficients, check_analysis_memory, check_grid, check_lmax, check_synthesis_memory,
+    check_values, convention_factor, fft_workers, fourier_synthesis, latitude_pairs, live_pairs,
+    longitude_phase, order_sequence, pair_bands, rescaled_result, scaled_input,
 )
 
 __all__ = ["analyze", "synthesize", "synthesize_gradient", "synthesize_rings", "regrid"]
@@ -153,13 +155,22 @@ def analyze(values, grid: Grid, lmax: int | None = None, norm: str = "orthonorma
     Raises
     ------
     ValueError
-        NaN or inf in ``values``, a shape that does not match the grid, ``lmax``
-        above the grid's exact limit, an unknown normalisation.
+        NaN or inf in ``values``, masked elements (a ``numpy.ma`` array, as a
+        netCDF4 variable with fill values gives), complex values, a shape that
+        does not match the grid, ``lmax`` above the grid's exact limit or not
+        a whole number, an unknown normalisation, coefficients beyond the
+        double range.
+    RequestTooLarge
+        (a ValueError) when the coefficients cannot fit in the memory available.
 
     Notes
     -----
     ``a_lm = 2 pi sum_j w_j Lambda_lm(theta_j) (1/nlon) sum_k f_jk exp(-i m phi_k)``,
-    exact for fields band-limited to ``grid.lmax_exact``.
+    exact for fields band-limited to ``grid.lmax_exact``.  Input whose
+    largest magnitude lies beyond ``2**+-600`` is scaled by a power of two
+    before the transform and the coefficients scaled back (exact), so any
+    finite input works; coefficients that themselves exceed the double range
+    are refused.
 
     Examples
     --------
@@ -175,8 +186,12 @@ def analyze(values, grid: Grid, lmax: int | None = None, norm: str = "orthonorma
     arr = check_values(values, grid)
     lmax = check_lmax(lmax, grid, allow_aliasing)
     batch = arr.shape[:-2]
+    check_analysis_memory(int(np.prod(batch)), grid, lmax)
     fac = convention_factor(lmax, "orthonormal", False, norm, condon_shortley)
+    arr, e, peak = scaled_input(arr)
     coef = _analysis(arr.reshape((-1,) + grid.shape), grid, lmax, fac)
+    coef = rescaled_result(coef, e, f"the {norm} coefficients of a field reaching {peak:.3g}",
+                           ANALYSIS_OVERFLOW_FIX)
     coef = coef.reshape(batch + (lmax + 1, lmax + 1))
     return Harmonics(coef, norm=norm, condon_shortley=condon_shortley, radius=radius, units=units)
 
@@ -207,8 +222,12 @@ def synthesize(h: Harmonics, grid: Grid) -> np.ndarray:
     grid = check_grid(grid)
     c, fac = batched_coefficients(h)
     K, L1, _ = c.shape
+    check_synthesis_memory(K, grid, L1 - 1)
+    c, e, peak = scaled_input(c)
     out = _synthesis_passes(grid, K, L1, [(0, c, fac, 0, L1 - 1, 0, np.ones(L1), 0)], 1)
-    return out[0].reshape(h.batch_shape + grid.shape)
+    out = rescaled_result(out[0], e, f"the values synthesised from coefficients up to {peak:.3g}",
+                          SYNTHESIS_OVERFLOW_FIX)
+    return out.reshape(h.batch_shape + grid.shape)
 
 
 def synthesize_gradient(h: Harmonics, grid: Grid) -> tuple[np.ndarray, np.ndarray]:
@@ -237,7 +256,11 @@ def synthesize_gradient(h: Harmonics, grid: Grid) -> tuple[np.ndarray, np.ndarra
     shape = h.batch_shape + grid.shape
     if L1 == 1:
         return np.zeros(shape), np.zeros(shape)
+    check_synthesis_memory(2 * K, grid, L1 - 1)
+    c, e, peak = scaled_input(c)
     out = _synthesis_passes(grid, K, L1, _gradient_passes(c, fac), 2)
+    out = [rescaled_result(v, e, f"the gradient of coefficients up to {peak:.3g}",
+                           SYNTHESIS_OVERFLOW_FIX) for v in out]
     north = np.negative(out[0], out=out[0])
     east = out[1]
     return east.reshape(shape), north.reshape(shape)
@@ -352,8 +375,7 @@ def synthesize_rings(h: Harmonics, colat, nlon: int, lon0: float = 0.0, *,
     if not np.all(np.isfinite(colat)) or np.any(colat < 0) or np.any(colat > np.pi):
         raise ValueError("colatitudes must lie in [0, pi] radians "
                          "(convert latitudes with colat = pi/2 - radians(lat))")
-    if isinstance(nlon, bool) or int(nlon) != nlon or nlon < 1:
-        raise ValueError(f"nlon must be a positive integer, got {nlon!r}")
+    nlon = whole_number(nlon, "nlon", 1)
     w = np.ones(L1) if degree_weights is None else np.asarray(degree_weights, dtype=np.float64)
     if w.shape not in ((L1,), (colat.size, L1)):
         raise ValueError(f"degree_weights must have shape ({L1},) or ({colat.size}, {L1}) for "
@@ -370,6 +392,10 @@ def synthesize_rings(h: Harmonics, colat, nlon: int, lon0: float = 0.0, *,
     shape = h.batch_shape + (colat.size, int(nlon))
     if gradient and L1 == 1:
         return np.zeros(shape), np.zeros(shape)
+    check_memory(8.0 * ntarget * K * colat.size * nlon * 3,
+                 f"the synthesis of {K} field(s) on {colat.size} rings of {nlon} longitudes",
+                 "use fewer rings or longitudes, or fewer fields at a time")
+    c, e, peak = scaled_input(c)
     if gradient:
         base = _gradient_passes(c, fac)
     else:
@@ -385,7 +411,8 @@ def synthesize_rings(h: Harmonics, colat, nlon: int, lon0: float = 0.0, *,
                 out[t] = parts[t]
             else:
                 out[t][:, rows, :] = parts[t]
-    out = [v.reshape(shape) for v in out]
+    out = [rescaled_result(v, e, f"the values synthesised from coefficients up to {peak:.3g}",
+                           SYNTHESIS_OVERFLOW_FIX).reshape(shape) for v in out]
     if not gradient:
         return out[0]
     north = np.negative(out[0], out=out[0])

@@ -16,10 +16,12 @@ from sphex.kernels.vector import (
     flow_to_sequences, sequences_to_flow, vector_analysis_kernel, vector_synthesis_kernel,
 )
 from sphex.legendre import check_norm, sectoral_table
+from sphex.limits import binary_exponent, peak_magnitude
 from sphex.rings import (
     ConventionFactor, PairBand, batched_coefficients, check_grid, check_lmax, check_values,
     convention_factor, fft_workers, fourier_synthesis, latitude_pairs, live_pairs,
-    longitude_phase, order_sequence, pair_bands,
+    longitude_phase, order_sequence, pair_bands, rescaled_result, ANALYSIS_OVERFLOW_FIX,
+    SYNTHESIS_OVERFLOW_FIX, check_analysis_memory, check_synthesis_memory,
 )
 
 __all__ = ["analyze_vector", "synthesize_vector"]
@@ -29,8 +31,8 @@ __all__ = ["analyze_vector", "synthesize_vector"]
 # tangent vector fields (eastward, northward components)
 # ---------------------------------------------------------------------------
 def _check_components(east, north, grid: Grid) -> tuple[np.ndarray, np.ndarray]:
-    east = np.asarray(east)
-    north = np.asarray(north)
+    east = np.asanyarray(east)  # keeps a numpy.ma mask for check_values
+    north = np.asanyarray(north)
     if east.shape != north.shape:
         raise ValueError(f"east has shape {east.shape} but north has shape {north.shape}: give both "
                          "components on the same grid with the same leading axes")
@@ -41,6 +43,21 @@ def _check_components(east, north, grid: Grid) -> tuple[np.ndarray, np.ndarray]:
         except ValueError as err:
             raise ValueError(f"{name}: {err}") from None
     return checked[0], checked[1]
+
+
+def _common_scale(a: np.ndarray, b: np.ndarray) -> tuple[np.ndarray, np.ndarray, int, float]:
+    """Both arrays scaled by one power of two when their largest magnitude is extreme
+    (see :func:`sphex.rings.scaled_input`), the exponent and that magnitude."""
+    peak = max(peak_magnitude(a), peak_magnitude(b))
+    e = binary_exponent(peak)
+    if e == 0:
+        return a, b, 0, peak
+    def scale(x: np.ndarray) -> np.ndarray:
+        if np.iscomplexobj(x):
+            return np.ldexp(x.real, -e) + 1j * np.ldexp(x.imag, -e)
+        return np.ldexp(np.asarray(x, dtype=np.float64), -e)
+
+    return scale(a), scale(b), e, peak
 
 
 def _vector_live(grid: Grid, lmax: int) -> np.ndarray:
@@ -170,9 +187,13 @@ def analyze_vector(east, north, grid: Grid, lmax: int | None = None, norm: str =
     east, north = _check_components(east, north, grid)
     lmax = check_lmax(lmax, grid, allow_aliasing)
     batch = east.shape[:-2]
+    check_analysis_memory(2 * int(np.prod(batch)), grid, lmax)
     fac = convention_factor(lmax, "orthonormal", False, norm, condon_shortley)
+    east, north, e, peak = _common_scale(east, north)
     psi, chi = _vector_analysis(east.reshape((-1,) + grid.shape), north.reshape((-1,) + grid.shape),
                                 grid, lmax, fac)
+    psi, chi = (rescaled_result(c, e, f"the {norm} coefficients of a vector field reaching "
+                                f"{peak:.3g}", ANALYSIS_OVERFLOW_FIX) for c in (psi, chi))
     shape = batch + (lmax + 1, lmax + 1)
     return tuple(Harmonics(c.reshape(shape), norm=norm, condon_shortley=condon_shortley)
                  for c in (psi, chi))
@@ -207,5 +228,9 @@ def synthesize_vector(psi: Harmonics, chi: Harmonics, grid: Grid) -> tuple[np.nd
     shape = psi.batch_shape + grid.shape
     if psi.lmax == 0:
         return np.zeros(shape), np.zeros(shape)
-    east, north = _vector_synthesis(a, b, fac, grid)
+    check_synthesis_memory(2 * a.shape[0], grid, psi.lmax)
+    a, b, e, peak = _common_scale(a, b)
+    east, north = (rescaled_result(v, e, f"the vector components synthesised from coefficients "
+                                   f"up to {peak:.3g}", SYNTHESIS_OVERFLOW_FIX)
+                   for v in _vector_synthesis(a, b, fac, grid))
     return east.reshape(shape), north.reshape(shape)

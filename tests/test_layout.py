@@ -1,11 +1,12 @@
 """The package's layout rules, read from the source with the standard library's ``ast``.
 
-- The numeric core (grids, legendre, harmonics, transform, spectra, filters,
-  the science modules flow, models, potential, points, rotation, localize, and
-  the kernels) imports nothing above it: not xarray, matplotlib, dask,
-  distributed or netCDF4, and not the adapter, plotting, command-line, report,
-  demo or benchmark layers; not at module level, not inside a function, not
-  through ``importlib.import_module("...")``.
+- The numeric core (limits, grids, legendre, harmonics, rings, transform,
+  vector_transform, spectra, filters, the science modules flow, models,
+  potential, points, rotation, localize, and the kernels) imports nothing
+  above it: not xarray, matplotlib, dask, distributed or netCDF4, and not the
+  adapter, plotting, command-line, report, demo or benchmark layers; not at
+  module level, not inside a function, not through
+  ``importlib.import_module("...")``.
 - The kernels import only numpy, numba, the standard library and each other.
 - No import cycle between sphex modules, counting imports at any depth.  An
   import of ``a.b.c`` is an edge to ``a.b.c`` only: Python initialises the
@@ -30,9 +31,9 @@ import pytest
 
 ROOT = Path(__file__).resolve().parent.parent / "sphex"
 
-CORE = {"grids", "legendre", "harmonics", "rings", "transform", "vector_transform", "spectra",
-        "filters", "flow", "models", "normal_field", "potential", "points", "least_squares",
-        "rotation", "concentration", "localize"}
+CORE = {"grids", "legendre", "harmonics", "limits", "rings", "transform", "vector_transform",
+        "spectra", "filters", "flow", "models", "normal_field", "potential", "points",
+        "least_squares", "rotation", "concentration", "localize"}
 FORBIDDEN_IN_CORE_EXTERNAL = {"xarray", "matplotlib", "dask", "distributed", "netCDF4"}
 FORBIDDEN_IN_CORE_LAYERS = {"xr", "plot", "cli", "report", "demo", "bench"}
 KERNEL_EXTERNAL = {"numpy", "numba", "llvmlite"}

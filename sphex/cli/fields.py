@@ -5,9 +5,9 @@ import argparse
 from typing import Any
 
 from sphex.cli.shared import (
-    add_command, add_output_arguments, cap_radius, count_fields, degree_range, distance_km,
-    grid_of, keep_precision, load_variable, progress_bar, say, target_grid, whole_number,
-    write_field,
+    add_command, add_output_arguments, cap_radius, check_paths, count_fields, degree_range,
+    distance_km, grid_file, grid_of, keep_precision, load_variable, progress_bar, say, target_grid,
+    whole_number, write_field,
 )
 
 SMOOTH_EXAMPLE = """\
@@ -63,9 +63,7 @@ def register(sub: Any) -> None:
 
 
 def run_smooth(a: argparse.Namespace) -> int:
-    from sphex.xr.output import check_output_path
-
-    check_output_path(a.output, a.overwrite)
+    check_paths([a.input], [a.output], a.overwrite)
     from sphex.xr.coords import check_lmax
     from sphex.xr.fields import smooth
 
@@ -103,9 +101,7 @@ def _file_radius_km(attrs: dict) -> float | None:
 
 
 def run_regrid(a: argparse.Namespace) -> int:
-    from sphex.xr.output import check_output_path
-
-    check_output_path(a.output, a.overwrite)
+    check_paths([a.input, grid_file(a.grid)], [a.output], a.overwrite)
     from sphex.xr.coords import check_lmax, synthesis_target
     from sphex.xr.fields import regrid
 

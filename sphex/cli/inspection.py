@@ -32,7 +32,7 @@ def run(a: argparse.Namespace) -> int:
     try:
         lines = [f"{a.input}:"]
         if is_coefficients(ds):
-            lines += _describe_coefficients(ds)
+            lines += _checked_coefficients(a.input, ds)
         else:
             if not ds.data_vars:
                 lines.append("  no data variables")
@@ -59,6 +59,25 @@ def _describe_variable(name: Any, v: Any) -> str:
     extra = [d for d in v.dims if d not in (info.lat_dim, info.lon_dim)]
     batch = f"; {count_fields(v, info)} fields over {', '.join(map(str, extra))}" if extra else ""
     return f"{head}\n    {info.describe()}{batch}"
+
+
+def _checked_coefficients(path: str, ds) -> list[str]:
+    """The description of a coefficient file, or why it is not usable."""
+    import warnings
+
+    from sphex.xr.coefficients import as_coefficients
+    from sphex.xr.conventions import MissingConventionWarning, conventions_stated
+
+    try:
+        with warnings.catch_warnings(record=True) as caught:
+            warnings.simplefilter("always", MissingConventionWarning)
+            ds = conventions_stated(as_coefficients(ds.load(), path, from_file=True), path)
+    except ValueError as exc:
+        reason = " ".join(str(exc).split()).removeprefix(f"{path}: ")
+        return [f"  coefficients, not usable: {reason}"]
+    notes = [f"  note: {' '.join(str(w.message).split()).removeprefix(f'{path}: ')}"
+             for w in caught]
+    return _describe_coefficients(ds) + notes
 
 
 def _describe_coefficients(ds) -> list[str]:

@@ -2,7 +2,9 @@
 
 Each subcommand module registers its subcommands (their options, help text
 and example) on the parser built here; :func:`main` runs the chosen one and
-turns user errors into one line on stderr and exit status 2.
+turns every failure into one line on stderr: status 2 for a problem the user
+can fix, 70 for a bug (with a hint to rerun with ``--debug``), 130 when
+interrupted (Ctrl-C or SIGTERM).  Warnings become one line each too.
 """
 from __future__ import annotations
 
@@ -16,7 +18,10 @@ from typing import Any, NoReturn
 from sphex.cli import (
     bench, demo, fields, flow, inspection, localized, points, potential, spectrum, transforms,
 )
-from sphex.cli.shared import FORMATTER, PROG, UserError, report_error
+from sphex.cli.shared import (
+    DEBUG_VARIABLE, EXIT_INTERRUPTED, FORMATTER, PROG, add_debug_argument, one_line_warnings,
+    report_failure,
+)
 
 __all__ = ["main", "build_parser"]
 
@@ -50,6 +55,10 @@ start here:
   sphex demo
   sphex inspect my_field.nc
   sphex analyze my_field.nc -v topo -o topo_coef.nc
+
+exit status: 0 done; 2 a problem with the input, the request or the system (one
+line on stderr says what and what to do; nothing is written); 70 a bug in sphex
+(rerun with --debug, or SPHEX_DEBUG=1, for the traceback); 130 interrupted.
 """
 
 #: The subcommand modules, in the order their subcommands are listed.
@@ -70,6 +79,7 @@ def build_parser() -> OneLineParser:
     """The parser of ``sphex`` with every subcommand registered."""
     p = OneLineParser(prog=PROG, description=MAIN_HELP, formatter_class=FORMATTER)
     p.add_argument("--version", action="version", version=f"%(prog)s {_version()}")
+    add_debug_argument(p)
     sub = p.add_subparsers(dest="command", metavar="COMMAND", parser_class=OneLineParser)
     for module in COMMAND_MODULES:
         module.register(sub)
@@ -100,35 +110,47 @@ def main(argv: Sequence[str] | None = None) -> int:
     Returns
     -------
     int
-        0 on success, 2 on a user error, 130 when interrupted.
+        0 on success, 2 on a problem the user can fix, 70 on a bug, 130 when
+        interrupted.
     """
     argv = list(sys.argv[1:] if argv is None else argv)
-    if argv and argv[0] == "bench":
-        return bench.run(argv[1:])
+    debug = os.environ.get(DEBUG_VARIABLE, "") not in ("", "0")
+    if argv and argv[0] == "--debug":
+        debug = True
+    command_at = 1 if argv and argv[0] == "--debug" else 0
+    if len(argv) > command_at and argv[command_at] == "bench":
+        return _guarded("bench", lambda: bench.run(argv[command_at + 1:]), debug)
     parser = build_parser()
     args = parser.parse_args(argv)
     if not getattr(args, "func", None):
         parser.print_help()
         return 0
-    debug = os.environ.get("SPHEX_DEBUG", "") not in ("", "0")
+    return _guarded(args.command, lambda: args.func(args), debug or bool(args.debug))
+
+
+def _guarded(command: str, run: Any, debug: bool) -> int:
+    """Run a command with SIGTERM as an interruption and every failure reported in one line."""
     previous = None
     try:
         previous = signal.signal(signal.SIGTERM, _interrupt_on_sigterm)
     except (ValueError, OSError):  # not in the main thread
         pass
     try:
-        return int(args.func(args) or 0)
+        with one_line_warnings(command):
+            return int(run() or 0)
     except BrokenPipeError:  # output piped into head & co.: not an error
         devnull = os.open(os.devnull, os.O_WRONLY)
         os.dup2(devnull, sys.stdout.fileno())
         return 0
     except KeyboardInterrupt:
-        sys.stderr.write(f"{PROG} {args.command}: interrupted; no output written\n")
-        return 130
-    except (UserError, ValueError, OSError) as exc:
         if debug:
             raise
-        return report_error(args.command, exc)
+        sys.stderr.write(f"{PROG} {command}: interrupted; no output written\n")
+        return EXIT_INTERRUPTED
+    except Exception as exc:  # noqa: BLE001 - every failure ends in one line (or a traceback)
+        if debug:
+            raise
+        return report_failure(command, exc)
     finally:
         if previous is not None:
             signal.signal(signal.SIGTERM, previous)

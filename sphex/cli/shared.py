@@ -8,8 +8,13 @@ layer are imported inside the functions that need them.
 from __future__ import annotations
 
 import argparse
+import errno
+import os
 import sys
 import time
+import warnings
+from collections.abc import Iterator
+from contextlib import contextmanager
 from pathlib import Path
 from typing import Any, TextIO
 
@@ -17,11 +22,22 @@ __all__ = [
     "PROG", "UserError", "FORMATTER", "add_command", "add_output_arguments",
     "whole_number", "positive_number", "distance_km", "cap_radius", "chunk_spec", "degree_range",
     "open_input", "load_variable", "grid_of", "target_grid", "count_fields", "write_field",
-    "keep_precision", "Progress", "progress_bar", "say", "report_error",
+    "keep_precision", "Progress", "progress_bar", "say", "report_error", "report_failure",
+    "check_paths", "grid_file", "one_line_warnings", "EXIT_USER_ERROR", "EXIT_INTERNAL_ERROR",
+    "EXIT_INTERRUPTED", "DEBUG_VARIABLE",
 ]
 
 PROG = "sphex"
 FORMATTER = argparse.RawDescriptionHelpFormatter
+
+#: Exit status of a problem the user can fix (bad input, missing file, full disk, no memory).
+EXIT_USER_ERROR = 2
+#: Exit status of a failure sphex did not foresee: a bug (EX_SOFTWARE of sysexits.h).
+EXIT_INTERNAL_ERROR = 70
+#: Exit status after Ctrl-C or SIGTERM (128 + SIGINT, the shells' convention).
+EXIT_INTERRUPTED = 130
+#: Environment variable that, set to 1, shows tracebacks (as the --debug option does).
+DEBUG_VARIABLE = "SPHEX_DEBUG"
 
 
 class UserError(Exception):
@@ -32,9 +48,18 @@ class UserError(Exception):
 # building subcommands
 # ---------------------------------------------------------------------------
 def add_command(sub: Any, name: str, help_: str, example: str | None) -> argparse.ArgumentParser:
-    """Add subcommand ``name`` with its one-line help and its example text (the epilog)."""
-    return sub.add_parser(name, help=help_, description=help_ + ".", epilog=example,
-                          formatter_class=FORMATTER)
+    """Add subcommand ``name`` with its one-line help, its example text (the epilog) and
+    the ``--debug`` option every command has."""
+    q = sub.add_parser(name, help=help_, description=help_ + ".", epilog=example,
+                       formatter_class=FORMATTER)
+    add_debug_argument(q, default=argparse.SUPPRESS)
+    return q
+
+
+def add_debug_argument(q: argparse.ArgumentParser, default: Any = False) -> None:
+    """``--debug``: show the traceback of a failure instead of the one-line message."""
+    q.add_argument("--debug", action="store_true", default=default,
+                   help=f"show the full traceback of a failure (also: {DEBUG_VARIABLE}=1)")
 
 
 def add_output_arguments(q: argparse.ArgumentParser, what: str = "output netCDF file") -> None:
@@ -151,11 +176,28 @@ def load_variable(path: str, var: str | None):
         if var not in ds.data_vars:
             listed = ", ".join(map(str, ds.data_vars)) or "none"
             raise UserError(f"{path} has no variable {var!r} (variables: {listed})")
-        da = ds[var].load()
+        check_fits_in_memory(ds[var], path)
+        try:
+            da = ds[var].load()
+        except RuntimeError as exc:  # the netCDF/HDF5 library on a file damaged past its header
+            from sphex.xr.files import read_failure
+
+            raise read_failure(path, exc) from None
         attrs = dict(ds.attrs)
     finally:
         ds.close()
     return da, attrs
+
+
+def check_fits_in_memory(var, path: str) -> None:
+    """Refuse to load a variable that cannot fit in memory (read as float64, twice over:
+    the input and the result), before reading it."""
+    from sphex.limits import check_memory
+
+    nbytes = 16.0 * float(var.size)
+    check_memory(nbytes, f"{path}: variable {var.name!r} ({' x '.join(map(str, var.shape))})",
+                 "analyse it in parts (select steps with a smaller file), or use sphex analyze, "
+                 "which streams a series in chunks")
 
 
 def grid_of(da, path: str):
@@ -166,6 +208,11 @@ def grid_of(da, path: str):
         return find_grid(da)
     except ValueError as exc:
         raise UserError(f"{path}: {exc}") from None
+
+
+def grid_file(spec: str) -> str | None:
+    """The file a ``--grid`` text names, or None for a grid text such as gauss:LMAX."""
+    return spec if Path(spec).exists() else None
 
 
 def target_grid(spec: str):
@@ -217,10 +264,19 @@ def write_field(da, path: str, overwrite: bool, global_attrs: dict, line: str) -
 
 
 def keep_precision(out, da):
-    """``out`` in float32 when the input ``da`` was float32."""
+    """``out`` in float32 when the input ``da`` was float32, unless its values leave the
+    float32 range (then float64 is kept, and a warning says so)."""
     import numpy as np
 
-    return out.astype(np.float32) if da.dtype == np.float32 else out
+    if da.dtype != np.float32:
+        return out
+    top = float(np.finfo(np.float32).max)
+    peak = float(abs(out).max()) if out.size else 0.0
+    if peak > top:
+        warnings.warn(f"the result reaches {peak:.4g}, beyond the float32 range of the input "
+                      f"({top:.4g}): written as float64", UserWarning, stacklevel=2)
+        return out
+    return out.astype(np.float32)
 
 
 def say(*lines: str) -> None:
@@ -314,9 +370,91 @@ def progress_bar(total: int, label: str) -> Progress:
 # ---------------------------------------------------------------------------
 # errors
 # ---------------------------------------------------------------------------
+def _where(command: str | None) -> str:
+    return f"{PROG} {command}" if command else PROG
+
+
 def report_error(command: str | None, exc: BaseException) -> int:
     """Write ``sphex COMMAND: error: MESSAGE`` on one line to stderr; returns 2."""
     msg = " ".join(str(exc).split()) or type(exc).__name__
-    where = f"{PROG} {command}" if command else PROG
-    sys.stderr.write(f"{where}: error: {msg}\n")
-    return 2
+    sys.stderr.write(f"{_where(command)}: error: {msg}\n")
+    return EXIT_USER_ERROR
+
+
+_OS_FIXES = {
+    errno.ENOSPC: "free some space or write elsewhere",
+    errno.EDQUOT: "free some space or write elsewhere",
+    errno.EACCES: "check the permissions, or choose another path",
+    errno.EPERM: "check the permissions, or choose another path",
+    errno.EROFS: "the file system is read-only: choose another path",
+    errno.ENOENT: "check the path",
+    errno.EISDIR: "give a file, not a directory",
+    errno.EMFILE: "too many open files: raise the limit (ulimit -n) or use fewer at once",
+}
+
+
+def _os_message(exc: OSError) -> str:
+    """An OSError in one line with what to do (sphex's own OSErrors already say it)."""
+    if exc.errno is None or exc.strerror is None:
+        return " ".join(str(exc).split())
+    text = " ".join(str(exc.strerror).split())
+    if text != os.strerror(exc.errno):
+        return text  # a message of sphex's own: OSError(errno, message)
+    where = f" ({exc.filename})" if exc.filename else ""
+    return f"{text}{where}; {_OS_FIXES.get(exc.errno, 'check the path and try again')}"
+
+
+def report_failure(command: str | None, exc: BaseException) -> int:
+    """Report any failure of a command in one line on stderr and return its exit status.
+
+    Problems the user can fix (bad input, a missing, unreadable or damaged
+    file, a full disk, a folder without permission, not enough memory) give
+    ``sphex COMMAND: error: ...`` and status 2.  Anything else is a bug in
+    sphex: ``sphex COMMAND: internal error: ...`` with a hint to rerun with
+    ``--debug`` for the traceback, and status 70.
+    """
+    if isinstance(exc, (UserError, ValueError)):
+        return report_error(command, exc)
+    if isinstance(exc, OSError):
+        sys.stderr.write(f"{_where(command)}: error: {_os_message(exc)}\n")
+        return EXIT_USER_ERROR
+    if isinstance(exc, MemoryError):
+        sys.stderr.write(f"{_where(command)}: error: ran out of memory"
+                         f"{' (' + ' '.join(str(exc).split()) + ')' if str(exc) else ''}; use a "
+                         "lower --lmax, a coarser grid, or fewer fields at a time (--chunks)\n")
+        return EXIT_USER_ERROR
+    text = " ".join(str(exc).split())
+    if isinstance(exc, RuntimeError) and text.startswith(("NetCDF:", "HDF")):
+        sys.stderr.write(f"{_where(command)}: error: the netCDF library failed ({text}); an "
+                         "input file may be damaged, or the output folder full or not writable\n")
+        return EXIT_USER_ERROR
+    sys.stderr.write(f"{_where(command)}: internal error: {type(exc).__name__}"
+                     f"{': ' + text if text else ''}; this is a bug in sphex: rerun with --debug "
+                     f"(or {DEBUG_VARIABLE}=1) to see the traceback, and report it\n")
+    return EXIT_INTERNAL_ERROR
+
+
+@contextmanager
+def one_line_warnings(command: str | None) -> Iterator[None]:
+    """Show warnings raised while the body runs as ``sphex COMMAND: warning: ...`` lines."""
+    def show(message: Any, category: Any, filename: str, lineno: int, file: Any = None,
+             line: Any = None) -> None:
+        sys.stderr.write(f"{_where(command)}: warning: {' '.join(str(message).split())}\n")
+
+    with warnings.catch_warnings():
+        # what sphex warns about (defaults it assumed, data it changed) always shows,
+        # once per place, whatever PYTHONWARNINGS says about other warnings
+        warnings.simplefilter("default", UserWarning)
+        warnings.showwarning = show
+        yield
+
+
+def check_paths(inputs: list, outputs: list, overwrite: bool) -> None:
+    """Before any work: no output is an input or another output, and each output can be
+    written (its folder exists and is writable; it does not exist unless ``overwrite``)."""
+    from sphex.xr.output import check_distinct, check_output_path
+
+    check_distinct(inputs, outputs)
+    for path in outputs:
+        if path is not None:
+            check_output_path(path, overwrite)

@@ -6,7 +6,7 @@ from pathlib import Path
 from typing import Any
 
 from sphex.cli.shared import (
-    UserError, add_command, count_fields, degree_range, grid_of, load_variable, open_input,
+    UserError, add_command, check_paths, count_fields, degree_range, grid_of, load_variable, open_input,
     progress_bar, say, whole_number,
 )
 
@@ -44,11 +44,7 @@ def register(sub: Any) -> None:
 
 
 def run(a: argparse.Namespace) -> int:
-    from sphex.xr.output import check_output_path
-
-    for p in (a.plot, a.csv):
-        if p:
-            check_output_path(p, a.overwrite)
+    check_paths([a.input], [a.plot, a.csv], a.overwrite)
     import numpy as np
     import xarray as xr
 

@@ -7,8 +7,9 @@ from pathlib import Path
 from typing import Any
 
 from sphex.cli.shared import (
-    UserError, add_command, add_output_arguments, chunk_spec, count_fields, grid_of,
-    load_variable, positive_number, progress_bar, say, target_grid, whole_number, write_field,
+    UserError, add_command, add_output_arguments, check_paths, chunk_spec, count_fields, grid_file,
+    grid_of, load_variable, positive_number, progress_bar, say, target_grid, whole_number,
+    write_field,
 )
 
 ANALYZE_EXAMPLE = """\
@@ -76,9 +77,7 @@ def register(sub: Any) -> None:
 
 def run_analyze(a: argparse.Namespace) -> int:
     """netCDF output streams the input chunk by chunk; a text table is analysed in memory."""
-    from sphex.xr.output import check_output_path
-
-    check_output_path(a.output, a.overwrite)
+    check_paths([a.input], [a.output], a.overwrite)
     phase = "no phase" if a.no_phase else "Condon-Shortley phase"
     if a.damping is not None and a.missing != "fit":
         raise UserError("--damping only applies to --missing fit; add it or drop --damping")
@@ -163,9 +162,7 @@ def run_analyze_fit(a: argparse.Namespace, phase: str) -> int:
 
 
 def run_synthesize(a: argparse.Namespace) -> int:
-    from sphex.xr.output import check_output_path
-
-    check_output_path(a.output, a.overwrite)
+    check_paths([a.input, grid_file(a.grid)], [a.output], a.overwrite)
     from sphex.xr.coords import synthesis_target
     from sphex.xr.fields import synthesize
     from sphex.xr.files import open_coefficients
@@ -179,6 +176,8 @@ def run_synthesize(a: argparse.Namespace) -> int:
     out = synthesize(ds, target, lmax=a.lmax)
     if a.name:
         out.name = a.name
+    elif out.name is None:
+        out.name = "field"
     used = l_file if a.lmax is None else a.lmax
     note = ""
     if used > info.grid.lmax_exact:

@@ -10,7 +10,11 @@ Layout (also the netCDF file layout)
   ``order > degree`` do not exist and hold 0;
 - attributes ``normalization``, ``phase_convention``, ``lmax``,
   ``reference_radius`` (metres, when known), ``units`` and ``field_name``,
-  plus the attributes of the source variable prefixed with ``field_``.
+  plus the attributes of the source variable prefixed with ``field_``
+  (written and read back, checked, by :mod:`sphex.xr.conventions`).
+
+Coefficients are read by the values of their ``degree`` and ``order``
+coordinates, not by position (:func:`as_coefficients`).
 
 A Dataset made from a :class:`~sphex.harmonics.Harmonics` for writing
 (:func:`exact_dataset_from_harmonics`) may carry two small ``int8`` variables
@@ -27,7 +31,9 @@ import numpy as np
 import xarray as xr
 
 from sphex.harmonics import Harmonics
-from sphex.legendre import check_norm
+from sphex.xr.conventions import (
+    check_layout, check_lmax_attribute, convention_attributes, ordered_by_labels, read_conventions,
+)
 
 __all__ = ["COS", "SIN", "is_coefficients", "as_coefficients", "from_harmonics", "to_harmonics",
            "harmonics_from_cos_sin", "read_conventions", "finish_coefficient_dataset",
@@ -37,84 +43,63 @@ COS = "cos_coef"
 SIN = "sin_coef"
 _RE_STEPS = "exact_re_steps"
 _IM_STEPS = "exact_im_steps"
-_NORM_MEANING = {
-    "orthonormal": "integral of |Y_lm|^2 over the unit sphere is 1",
-    "full": "integral of |Y_lm|^2 over the unit sphere is 4 pi",
-    "schmidt": "integral of |Y_lm|^2 over the unit sphere is 4 pi/(2l+1)",
-    "unnormalized": "plain associated Legendre functions, no normalisation",
-}
-
-
-def _convention_attributes(lmax: int, norm: str, cs: bool, radius: float | None,
-                           units: str | None) -> dict:
-    attrs: dict[str, Any] = {
-        "title": "spherical-harmonic coefficients (sphex)",
-        "normalization": norm,
-        "normalization_meaning": _NORM_MEANING[norm],
-        "phase_convention": "condon-shortley" if cs else "none",
-        "condon_shortley_phase": np.int8(1 if cs else 0),
-        "lmax": np.int32(lmax),
-        "real_form": ("f = sum over l, m<=l of (cos_coef cos(m lon) + sin_coef sin(m lon)) r_m "
-                      "Lambda_lm(colat), r_0 = 1, r_m = "
-                      + ("1" if norm == "unnormalized" else "sqrt(2)") + " for m > 0; "
-                      "longitude east from the 0 meridian"),
-    }
-    if radius is not None:
-        attrs["reference_radius"] = float(radius)
-        attrs["reference_radius_units"] = "m"
-    if units is not None:
-        attrs["units"] = str(units)
-    return attrs
-
-
-def read_conventions(ds: xr.Dataset) -> dict[str, Any]:
-    """The conventions a coefficient Dataset states in its attributes.
-
-    Returns
-    -------
-    dict
-        ``norm``, ``condon_shortley``, ``radius`` (metres or None) and
-        ``units`` (or None), as :func:`harmonics_from_cos_sin` takes them.
-
-    Raises
-    ------
-    ValueError
-        An unknown ``normalization`` attribute.
-    """
-    a = ds.attrs
-    norm = str(a.get("normalization", "orthonormal"))
-    check_norm(norm)
-    phase = str(a.get("phase_convention", "condon-shortley")).lower()
-    cs = phase not in ("none", "no", "false", "0")
-    radius = a.get("reference_radius")
-    units = a.get("units")
-    return {"norm": norm, "condon_shortley": cs,
-            "radius": None if radius is None else float(radius),
-            "units": None if units is None else str(units)}
-
-
 def is_coefficients(ds: xr.Dataset) -> bool:
     """Whether ``ds`` holds coefficients in sphex's layout (``cos_coef``/``sin_coef``)."""
     return (isinstance(ds, xr.Dataset) and COS in ds.data_vars and SIN in ds.data_vars
             and "degree" in ds[COS].dims and "order" in ds[COS].dims)
 
 
-def as_coefficients(ds: Any) -> xr.Dataset:
+def as_coefficients(ds: Any, where: str = "the coefficients", *,
+                    from_file: bool = False) -> xr.Dataset:
     """A checked coefficient Dataset from a Dataset in sphex's layout or a Harmonics.
+
+    The data are put in the order of their ``degree`` and ``order`` labels
+    (:func:`~sphex.xr.conventions.ordered_by_labels`), the ``lmax`` attribute
+    of a file is held against them, and values where no coefficient exists
+    are refused (:func:`~sphex.xr.conventions.check_layout`).
+
+    Parameters
+    ----------
+    ds : xarray.Dataset or Harmonics
+    where : str
+        What the Dataset is, for the messages (a file name).
+    from_file : bool
+        ``ds`` was just read from a file: an ``lmax`` attribute that
+        disagrees with the data is an error.  Otherwise (a Dataset cut with
+        ``.isel`` in memory, say) the attribute is set to the data's.
 
     Raises
     ------
     ValueError
-        Not in the layout, or as many degrees as orders missing.
+        Not in the layout; as many degrees as orders missing; labels that
+        repeat, skip, do not start at 0 or are not whole numbers; an ``lmax``
+        attribute that disagrees with the data; values above the diagonal;
+        complex values.
     """
     if isinstance(ds, Harmonics):
         return from_harmonics(ds)
     if not is_coefficients(ds):
-        raise ValueError("not a coefficient Dataset: expected variables cos_coef and sin_coef "
-                         "over dimensions degree and order (as written by sphex analyze)")
+        raise ValueError(f"{where}: not a coefficient Dataset: expected variables cos_coef and "
+                         "sin_coef over dimensions degree and order (as written by sphex analyze)")
+    for name in (COS, SIN):
+        kind = ds[name].dtype.kind
+        if kind not in "fiu":
+            what = "complex" if kind == "c" else f"of type {ds[name].dtype}"
+            raise ValueError(f"{where}: {name} is {what}; coefficient files hold the real form "
+                             "(cos_coef and sin_coef as real numbers): convert the data")
     n_l, n_m = ds.sizes["degree"], ds.sizes["order"]
     if n_l != n_m:
-        raise ValueError(f"coefficients have {n_l} degrees but {n_m} orders; they must match")
+        raise ValueError(f"{where}: coefficients have {n_l} degrees but {n_m} orders; they must "
+                         "match")
+    ds = ordered_by_labels(ds, where)
+    if from_file:
+        try:
+            check_lmax_attribute(ds)
+        except ValueError as exc:
+            raise ValueError(f"{where}: {exc}") from None
+    elif "lmax" in ds.attrs and ds.attrs["lmax"] != n_l - 1:
+        ds = ds.assign_attrs(lmax=np.int32(n_l - 1))
+    check_layout(ds, where)
     return ds
 
 
@@ -222,7 +207,7 @@ def finish_coefficient_dataset(ds: xr.Dataset, lmax: int, norm: str, cs: bool,
         order=("order", np.arange(lmax + 1, dtype=np.int32),
                {"long_name": "spherical-harmonic order m (entries with m > l are 0)"}),
     )
-    attrs = _convention_attributes(lmax, norm, cs, radius, units)
+    attrs = convention_attributes(lmax, norm, cs, radius, units)
     if name is not None:
         attrs["field_name"] = str(name)
     for k, v in (field_attrs or {}).items():

@@ -17,6 +17,7 @@ import numpy as np
 import xarray as xr
 
 from sphex.grids import Grid
+from sphex.limits import whole_number
 
 __all__ = ["GridInfo", "find_grid", "parse_grid", "synthesis_target", "check_lmax", "one_line"]
 
@@ -307,13 +308,12 @@ def check_lmax(lmax: int | None, grid: Grid, allow_aliasing: bool, where: str) -
     Raises
     ------
     ValueError
-        ``lmax`` negative, or above the exact limit without ``allow_aliasing``.
+        ``lmax`` not a whole number >= 0 (2.5, NaN, inf are refused, not rounded), or
+        above the exact limit without ``allow_aliasing``.
     """
     if lmax is None:
         return int(grid.lmax_exact)
-    lmax = int(lmax)
-    if lmax < 0:
-        raise ValueError(f"lmax must be 0 or more, not {lmax}")
+    lmax = whole_number(lmax, "lmax")
     if lmax > grid.lmax_exact and not allow_aliasing:
         raise ValueError(
             f"lmax {lmax} is above the exact limit {grid.lmax_exact} of the {grid.nlat} x "

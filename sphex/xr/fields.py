@@ -19,6 +19,7 @@ import xarray as xr
 
 from sphex.harmonics import Harmonics
 from sphex.legendre import check_norm
+from sphex.limits import check_memory, whole_number
 from sphex.xr import scaleout
 from sphex.xr.coefficients import (
     COS, SIN, as_coefficients, finish_coefficient_dataset, harmonics_from_cos_sin, read_conventions,
@@ -50,6 +51,8 @@ def _analyze_block(values: np.ndarray, pos: np.ndarray | None = None, *, info: G
     batch = values.shape[:-2]
     flat = values.reshape((-1,) + values.shape[-2:])
     n = flat.shape[0]
+    check_memory(16.0 * n * (lmax + 1) ** 2, f"the coefficients of {n} field{'s' if n != 1 else ''} "
+                 f"to degree {lmax}", "use a lower lmax, or stream the fields in chunks")
     c_out = np.empty((n, lmax + 1, lmax + 1))
     s_out = np.empty((n, lmax + 1, lmax + 1))
     step = _progress_step(n) if progress else max(n, 1)
@@ -88,12 +91,30 @@ def _has_grid(da: xr.DataArray) -> bool:
     return True
 
 
+def refuse_non_real(da: xr.DataArray) -> None:
+    """Raise a ValueError for a complex or non-numeric field (xarray would drop the
+    imaginary part of a complex one with only a warning)."""
+    kind = da.dtype.kind
+    if kind in "fiu":
+        return
+    name = repr(da.name) if da.name is not None else "the field"
+    parts = set(da.dtype.names or ())
+    if kind == "c" or (kind == "V" and parts in ({"r", "i"}, {"real", "imag"})):
+        # netCDF stores complex numbers as a compound of real and imaginary parts
+        raise ValueError(f"{name} is complex; sphex analyses real fields: analyse "
+                         "the real and imaginary parts as two fields (da.real and da.imag, or "
+                         "two real variables in the file)")
+    raise ValueError(f"{name} holds {da.dtype} values, not numbers; a spherical-harmonic "
+                     "analysis needs a real numeric field (convert it with da.astype(float))")
+
+
 def _prepare_fields(da: xr.DataArray, info: GridInfo
                     ) -> tuple[xr.DataArray, xr.DataArray, FieldNames | None]:
     """What every gridded adapter does before its apply_ufunc: refuse missing
     values (in memory), give each dask chunk whole fields, and hand out the
     field positions and namer its tasks report missing values with."""
     core = (info.lat_dim, info.lon_dim)
+    refuse_non_real(da)
     refuse_missing_in_memory(da, core)
     da = scaleout.whole_fields(da, core)
     pos, names = field_positions(da, core)
@@ -237,7 +258,7 @@ def synthesize(ds: xr.Dataset | Harmonics, like: Any, *, lmax: int | None = None
     conv = read_conventions(ds)
     info, lat, lon = synthesis_target(like)
     l_file = ds.sizes["degree"] - 1
-    if lmax is not None and not 0 <= int(lmax) <= l_file:
+    if lmax is not None and not whole_number(lmax, "lmax") <= l_file:
         raise ValueError(f"lmax {lmax} is outside the coefficients' range 0..{l_file}")
     ds = scaleout.whole_fields(ds, ("degree", "order"))
     out = xr.apply_ufunc(
@@ -277,7 +298,9 @@ def _smoothing_weights(lmax: int, gaussian_km: float | None, cap_deg: float | No
         w = filters.cap(float(cap_deg), lmax)
         how = f"spherical-cap averaging, radius {cap_deg:g} deg"
     elif band is not None:
-        l1, l2 = (int(b) for b in band)
+        if len(band) != 2:
+            raise ValueError(f"band must be two degrees (L1, L2), not {band!r}")
+        l1, l2 = whole_number(band[0], "band L1"), whole_number(band[1], "band L2")
         if not 0 <= l1 < l2:
             raise ValueError(f"band needs 0 <= L1 < L2, not {l1}:{l2}")
         w = filters.taper(l1, l2)

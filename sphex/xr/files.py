@@ -3,6 +3,8 @@ opening coefficients from a netCDF file or a text table.
 """
 from __future__ import annotations
 
+import contextlib
+import errno
 import os
 from pathlib import Path
 
@@ -12,12 +14,15 @@ from sphex.harmonics import Harmonics
 from sphex.xr.coefficients import (
     as_coefficients, exact_dataset_from_harmonics, from_harmonics, is_coefficients, to_harmonics,
 )
+from sphex.xr.conventions import conventions_stated
 from sphex.xr.coords import one_line
-from sphex.xr.output import atomic_output, check_output_path
+from sphex.xr.damage import check_complete
+from sphex.xr.output import atomic_output, check_distinct, check_output_path, folder_problem
+from sphex.xr.scaleout import thread_pool
 from sphex.xr.tables import is_table_file, read_table
 
 __all__ = ["netcdf_encoding", "write_dataset", "write_netcdf", "write_harmonics", "open_netcdf",
-           "open_coefficients", "open_harmonics"]
+           "open_coefficients", "open_harmonics", "read_failure", "write_failure"]
 
 
 def netcdf_encoding(ds: xr.Dataset) -> dict:
@@ -43,22 +48,100 @@ def write_dataset(ds: xr.Dataset, path: str | os.PathLike, overwrite: bool = Fal
     Returns
     -------
     pathlib.Path
+
+    Raises
+    ------
+    OutputExistsError, OSError, ValueError
+        An existing file without ``overwrite``; a folder that cannot be
+        written, a full disk; ``path`` is the file lazy data are read from.
     """
+    if _is_lazy(ds):  # still read from its file: never replace that file while reading it
+        sources = {ds.encoding.get("source")} | {v.encoding.get("source")
+                                                 for v in ds.variables.values()}
+        check_distinct(sources - {None}, [path])
     with atomic_output(path, overwrite) as tmp:
-        write_netcdf(ds, tmp)
+        write_netcdf(ds, tmp, target=path)
     return Path(path)
 
 
-def write_netcdf(ds: xr.Dataset, path: str | os.PathLike) -> None:
+def write_netcdf(ds: xr.Dataset, path: str | os.PathLike,
+                 source: str | os.PathLike | None = None,
+                 target: str | os.PathLike | None = None) -> None:
     """Write ``ds`` to ``path`` as :func:`write_dataset` does, but in place: the caller
     makes it atomic (writes into the temporary file of :func:`~sphex.xr.output.atomic_output`).
+
+    Dask-backed data are computed on a thread pool of sphex's that is left (every task
+    finished) before this returns or raises, so no task writes into ``path`` after a
+    failure or an interruption, unless a scheduler of the caller's is configured.
+    A failure of the netCDF library is raised as the problem it is (:func:`write_failure`);
+    ``source`` names the file lazy data are read from and ``target`` the final output
+    (``path`` being its temporary file), for that message.
     """
     enc = netcdf_encoding(ds)
     for k in list(enc):
         old = ds.variables[k].encoding
         if "_FillValue" in old and old["_FillValue"] is not None:
             enc.pop(k)
-    ds.to_netcdf(path, format="NETCDF4", engine="netcdf4", encoding=enc)
+    own_pool = _is_lazy(ds) and _default_scheduler()
+    try:
+        with thread_pool() if own_pool else contextlib.nullcontext():
+            ds.to_netcdf(path, format="NETCDF4", engine="netcdf4", encoding=enc)
+    except (RuntimeError, OSError) as exc:
+        raise write_failure(target if target is not None else path, exc, source) from None
+
+
+def _is_lazy(ds: xr.Dataset) -> bool:
+    return any(v.chunks is not None for v in ds.variables.values())
+
+
+def _default_scheduler() -> bool:
+    """Whether dask would run on its default threads (no scheduler or pool of the caller's)."""
+    import dask
+
+    return dask.config.get("scheduler", None) in (None, "threads") and \
+        dask.config.get("pool", None) is None
+
+
+#: Below this many bytes free, a failed write is taken for a full disk.
+LOW_SPACE = 1 << 20
+
+
+def _free_bytes(folder: Path) -> int | None:
+    try:
+        st = os.statvfs(folder)
+    except (OSError, AttributeError):
+        return None
+    blocks = st.f_bfree if hasattr(os, "geteuid") and os.geteuid() == 0 else st.f_bavail
+    return int(blocks) * int(st.f_frsize)
+
+
+def write_failure(path: str | os.PathLike, exc: BaseException,
+                  source: str | os.PathLike | None = None) -> Exception:
+    """The error to raise when writing ``path`` failed with ``exc``.
+
+    A full disk (ENOSPC, or a netCDF/HDF5 library error while the folder has
+    less than ``LOW_SPACE`` bytes free), a folder without permission or on a
+    read-only file system become an OSError that says so and what to do; any
+    other library error names the file (and the input ``source`` the data
+    were read from, which may be the damaged one).
+    """
+    p = Path(path)
+    parent = p.parent if str(p.parent) else Path(".")
+    code = getattr(exc, "errno", None)
+    if isinstance(exc, OSError) and code in (errno.EACCES, errno.EPERM, errno.EROFS,
+                                             errno.ENOSPC, errno.EDQUOT):
+        return folder_problem(parent, exc)
+    free = _free_bytes(parent)
+    if free is not None and free < LOW_SPACE:
+        return OSError(errno.ENOSPC, f"no space left while writing {str(p)!r}: the disk holding "
+                       f"{str(parent)!r} is full ({free} bytes free); free some space or choose "
+                       "another folder")
+    text = one_line(exc)
+    if source is not None:
+        return ValueError(f"reading {str(source)!r} or writing {str(p)!r} failed ({text}); if "
+                          f"{str(source)!r} is damaged, copy or download it again")
+    return OSError(code or errno.EIO, f"writing {str(p)!r} failed ({text}); check the output "
+                   "folder (space, permissions) and try again")
 
 
 def write_harmonics(h: Harmonics | xr.Dataset, path: str | os.PathLike, overwrite: bool = False,
@@ -107,18 +190,31 @@ def open_netcdf(path: str | os.PathLike, cache: bool = True) -> xr.Dataset:
 
     Raises
     ------
-    FileNotFoundError, IsADirectoryError, ValueError
-        Missing file; a directory; not a readable netCDF file.
+    FileNotFoundError, IsADirectoryError, PermissionError, ValueError
+        Missing file; a directory; not readable; not a netCDF file, or one
+        shorter than its header promises (:mod:`sphex.xr.damage`).
     """
     p = Path(path)
     if not p.exists():
         raise FileNotFoundError(f"no such file: {str(p)!r}")
     if p.is_dir():
         raise IsADirectoryError(f"{str(p)!r} is a directory, not a netCDF file")
+    check_complete(p)
     try:
         return xr.open_dataset(p, engine="netcdf4", cache=cache)
+    except PermissionError:
+        raise PermissionError(f"cannot read {str(p)!r}: permission denied; check the file's "
+                              "permissions") from None
     except Exception as exc:  # netCDF4 reports a damaged or foreign file in several ways
-        raise ValueError(f"{str(p)!r} is not a readable netCDF file ({one_line(exc)})") from None
+        raise ValueError(f"{str(p)!r} is not a readable netCDF file ({one_line(exc)}); if it "
+                         "is netCDF it is damaged: copy or download it again") from None
+
+
+def read_failure(path: str | os.PathLike, exc: BaseException) -> ValueError:
+    """The error to raise when reading data from an opened file fails in the netCDF or
+    HDF5 library (a file damaged past its header)."""
+    return ValueError(f"reading {str(path)!r} failed ({one_line(exc)}); the file is damaged: copy "
+                      "or download it again")
 
 
 def open_coefficients(path: str | os.PathLike) -> xr.Dataset:
@@ -132,21 +228,39 @@ def open_coefficients(path: str | os.PathLike) -> xr.Dataset:
     Returns
     -------
     xarray.Dataset
+        In the order of the file's ``degree`` and ``order`` labels, with its
+        conventions stated in the attributes.
 
     Raises
     ------
     FileNotFoundError, ValueError
-        Missing file; not netCDF; not in the coefficient layout.
+        Missing file; not netCDF; damaged; not in the coefficient layout;
+        degree or order labels that repeat, skip or do not start at 0; an
+        ``lmax`` attribute that disagrees with the data; unknown or
+        contradictory convention attributes (the message names them and the
+        values allowed).
+
+    Warns
+    -----
+    sphex.xr.conventions.MissingConventionWarning
+        The file states no normalisation or no phase convention; the
+        defaults (orthonormal, Condon-Shortley phase) were used.
     """
     if is_table_file(path):
         h, _ = read_table(path)
         return from_harmonics(h)
     with open_netcdf(path) as ds:
-        ds.load()
+        try:
+            ds.load()
+        except RuntimeError as exc:
+            raise read_failure(path, exc) from None
     if not is_coefficients(ds):
         raise ValueError(f"{str(path)!r} holds no sphex coefficients (variables cos_coef and "
                          "sin_coef over degree and order); make them with sphex analyze")
-    return as_coefficients(ds)
+    ds = as_coefficients(ds, str(path), from_file=True)
+    # unknown or contradictory conventions refused now; missing ones named in a warning
+    # and stated in the attributes with the defaults used
+    return conventions_stated(ds, str(path))
 
 
 def open_harmonics(path: str | os.PathLike) -> Harmonics:

@@ -95,8 +95,11 @@ def refuse_missing_in_block(block: np.ndarray, start: int, pos: np.ndarray | Non
     """In a dask task: name the fields of ``block`` (fields start.. of the
     task's batch) that hold NaN or inf.  ``pos`` holds the flat positions of
     the task's fields in the whole batch."""
-    if where is None or np.isfinite(block.sum()):  # the sum: one cheap pass when all is well
+    if where is None:
         return
+    with np.errstate(over="ignore", invalid="ignore"):  # huge finite values may sum to inf
+        if np.isfinite(block.sum()):  # the sum: one cheap pass when all is well
+            return
     finite = np.isfinite(block)
     bad = ~finite.reshape(block.shape[0], -1).all(axis=1)
     if bad.any():

@@ -21,9 +21,10 @@ from typing import Any, TextIO
 
 from sphex.xr.coords import check_lmax, find_grid
 from sphex.xr.fields import analyze
-from sphex.xr.files import netcdf_encoding, open_netcdf, write_netcdf
-from sphex.xr.output import atomic_output, check_output_path
-from sphex.xr.scaleout import default_block, thread_pool
+from sphex.xr.files import netcdf_encoding, open_netcdf, write_failure, write_netcdf
+from sphex.xr.output import atomic_output, check_distinct, check_output_path
+from sphex.limits import check_memory, whole_number
+from sphex.xr.scaleout import cpu_count, default_block, thread_pool
 
 __all__ = ["parse_chunks", "StreamResult", "stream_analyze", "write_lazily", "CONNECT_TIMEOUT"]
 
@@ -113,6 +114,19 @@ def _pick_variable(ds: Any, var: str | None, path: str) -> str:
     return var
 
 
+def _check_chunk_memory(info: Any, lmax: int, fields_per_chunk: int, chunks: int) -> None:
+    """Refuse a run whose chunks, as many at a time as there are threads, cannot fit in
+    memory: each holds its fields as read and in float64, and their coefficients."""
+    per_field = 16.0 * info.grid.nlat * info.grid.nlon + 32.0 * (lmax + 1) ** 2
+    at_once = min(cpu_count(), chunks)
+    check_memory(per_field * fields_per_chunk * at_once,
+                 f"analysing {at_once} chunk{'s' if at_once != 1 else ''} of {fields_per_chunk} "
+                 f"field{'s' if fields_per_chunk != 1 else ''} at a time on a {info.grid.nlat} x "
+                 f"{info.grid.nlon} grid to degree {lmax}",
+                 "give fewer fields per chunk (--chunks time=1), a lower lmax, or run on a "
+                 "machine with more memory")
+
+
 def _plan_chunks(da: Any, info: Any, chunks: Mapping[str, int] | None
                  ) -> tuple[dict[Hashable, int], str | None, int]:
     """Chunk spec for the lazy variable, the streamed dimension and its block length."""
@@ -133,7 +147,7 @@ def _plan_chunks(da: Any, info: Any, chunks: Mapping[str, int] | None
     if chunks:
         dim = next(iter(chunks))
         for d, n in chunks.items():
-            spec[d] = min(int(n), int(da.sizes[d]))
+            spec[d] = min(whole_number(n, f"chunks {d}", 1), int(da.sizes[d]))
     else:
         dim = "time" if "time" in others else max(others, key=lambda d: da.sizes[d])
         per = 8 * math.prod(int(da.sizes[d]) for d in da.dims if d != dim)
@@ -226,10 +240,54 @@ def _count_group_tasks(dask_scheduler: Any = None, names: Sequence[str] = ()) ->
 
 
 def _run_distributed(client: Any, delayed: Any, reporter: _ProgressReporter) -> None:
-    from distributed import wait
-
     names = sorted(_task_group_names(delayed.__dask_graph__().keys()))
     fut = client.compute(delayed)
+    try:
+        _follow(client, fut, names, reporter)
+    except BaseException:
+        # the workers' tasks would go on writing into the temporary file after the caller
+        # removed it: cancel them and wait until none of ours runs any more
+        _stop_tasks(client, fut, names)
+        raise
+    reporter.fraction(1.0)
+
+
+def _executing_tasks(dask_worker: Any = None, names: Sequence[str] = ()) -> int:
+    """Run on a worker: how many of its running tasks belong to the named task groups."""
+    state = getattr(dask_worker, "state", dask_worker)
+    count = 0
+    for ts in list(getattr(state, "executing", ())):
+        key = getattr(ts, "key", ts)
+        if (str(key[0]) if isinstance(key, tuple) else str(key)) in names:
+            count += 1
+    return count
+
+
+#: How long to wait for the workers' tasks to stop after a failure or an interruption.
+STOP_TIMEOUT = 60.0
+
+
+def _stop_tasks(client: Any, fut: Any, names: Sequence[str]) -> None:
+    """Cancel ``fut`` and wait (up to STOP_TIMEOUT) until no worker runs a task of ours."""
+    try:
+        client.cancel(fut, force=True)
+    except Exception:  # noqa: BLE001 - the scheduler may be gone already
+        return
+    deadline = time.monotonic() + STOP_TIMEOUT
+    while time.monotonic() < deadline:
+        try:
+            running = sum(client.run(_executing_tasks, names=list(names)).values())
+        except Exception:  # noqa: BLE001 - workers gone: nothing runs any more
+            return
+        if not running:
+            return
+        time.sleep(0.2)
+
+
+def _follow(client: Any, fut: Any, names: Sequence[str], reporter: _ProgressReporter) -> None:
+    """Wait for ``fut``, reporting progress from the scheduler's task groups."""
+    from distributed import wait
+
     while not fut.done():
         try:
             wait(fut, timeout=1.0)
@@ -244,7 +302,6 @@ def _run_distributed(client: Any, delayed: Any, reporter: _ProgressReporter) -> 
         except Exception:  # noqa: BLE001 - progress is best effort
             pass
     fut.result()
-    reporter.fraction(1.0)
 
 
 def _connect_client(address: str) -> Any:
@@ -321,6 +378,7 @@ def stream_analyze(input: str | os.PathLike, var: str | None, output: str | os.P
         Missing input; existing output without ``overwrite``.
     """
     t0 = time.monotonic()
+    check_distinct([input], [output])
     check_output_path(output, overwrite)
     if isinstance(chunks, str):
         chunks = parse_chunks(chunks)
@@ -339,11 +397,14 @@ def stream_analyze(input: str | os.PathLike, var: str | None, output: str | os.P
         n_fields = math.prod(int(lazy.sizes[d]) for d in lazy.dims
                              if d not in (info.lat_dim, info.lon_dim))
         n_chunks = math.prod(len(c) for c in lazy.chunks)
+        per_chunk = math.prod(max(c) for c, d in zip(lazy.chunks, lazy.dims)
+                              if d not in (info.lat_dim, info.lon_dim))
+        _check_chunk_memory(info, lmax, per_chunk, n_chunks)
         ds = analyze(lazy, lmax, norm=norm, condon_shortley=condon_shortley, radius=radius)
         ds.attrs["history"] = history or (f"sphex analyze {path} -v {name} --lmax {lmax} "
                                           f"--norm {norm}")
         write_lazily(ds, output, overwrite, scheduler=scheduler, fields=n_fields,
-                     label="sphex analyze", progress=progress)
+                     label="sphex analyze", progress=progress, source=path)
     finally:
         src.close()
     return StreamResult(Path(output), name, info.describe(), int(lmax), norm,
@@ -353,7 +414,7 @@ def stream_analyze(input: str | os.PathLike, var: str | None, output: str | os.P
 
 def write_lazily(ds: Any, output: str | os.PathLike, overwrite: bool = False, *,
                  scheduler: str | None = None, fields: int = 1, label: str = "sphex",
-                 progress: bool = True) -> None:
+                 progress: bool = True, source: str | os.PathLike | None = None) -> None:
     """Compute a lazy (dask-backed) Dataset chunk by chunk into a netCDF file, atomically.
 
     The streaming writer of :func:`stream_analyze`, for any lazy Dataset made
@@ -376,25 +437,28 @@ def write_lazily(ds: Any, output: str | os.PathLike, overwrite: bool = False, *,
     label : str
         Text in front of the progress display.
     progress : bool
+    source : path-like, optional
+        The input file, named when reading it fails during the write.
     """
     reporter = _ProgressReporter(fields, label, enabled=progress)
     try:
         if scheduler:
-            _write_distributed(ds, output, overwrite, scheduler, reporter)
+            _write_distributed(ds, output, overwrite, scheduler, reporter,
+                               None if source is None else str(source))
         else:
             # the pool is left (waiting for every task it runs) before the temporary
             # file is removed: a task still writing after a failure in another one
             # would otherwise make the file anew
             with atomic_output(output, overwrite) as tmp, thread_pool(), \
                     _local_progress_callback(reporter):
-                write_netcdf(ds, tmp)
+                write_netcdf(ds, tmp, source=source, target=output)
             reporter.fraction(1.0)
     finally:
         reporter.close()
 
 
 def _write_distributed(ds: Any, output: str | os.PathLike, overwrite: bool, address: str,
-                       reporter: _ProgressReporter) -> None:
+                       reporter: _ProgressReporter, source: str | None = None) -> None:
     """Write the lazy coefficient Dataset through a distributed scheduler, atomically."""
     enc = netcdf_encoding(ds)
     client = _connect_client(address)
@@ -402,8 +466,11 @@ def _write_distributed(ds: Any, output: str | os.PathLike, overwrite: bool, addr
         with atomic_output(output, overwrite) as tmp:
             # with the client as default, xarray defines the file here, closes it after
             # each write and guards the writes of the workers with a distributed lock
-            delayed = ds.to_netcdf(tmp, format="NETCDF4", engine="netcdf4", encoding=enc,
-                                   compute=False)
-            _run_distributed(client, delayed, reporter)
+            try:
+                delayed = ds.to_netcdf(tmp, format="NETCDF4", engine="netcdf4", encoding=enc,
+                                       compute=False)
+                _run_distributed(client, delayed, reporter)
+            except (RuntimeError, OSError) as exc:
+                raise write_failure(output, exc, source) from None
     finally:
         client.close()

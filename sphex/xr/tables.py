@@ -6,6 +6,7 @@
 """
 from __future__ import annotations
 
+import math
 import os
 from pathlib import Path
 
@@ -13,8 +14,9 @@ import numpy as np
 import xarray as xr
 
 from sphex.harmonics import Harmonics
-from sphex.legendre import check_norm
+from sphex.limits import check_memory
 from sphex.xr.coefficients import harmonics_from_cos_sin, to_harmonics
+from sphex.xr.conventions import read_conventions
 from sphex.xr.output import atomic_output
 
 __all__ = ["is_table_file", "write_table", "read_table"]
@@ -101,10 +103,13 @@ def write_table(h: Harmonics, path: str | os.PathLike, *,
 def read_table(path: str | os.PathLike) -> tuple[Harmonics, tuple[np.ndarray, np.ndarray] | None]:
     """Read a text table written by :func:`write_table` (or made by hand the same way).
 
-    Rows may come in any order and degrees/orders left out are 0.  Header
-    lines ``# key: value`` give ``normalization`` (default ``orthonormal``),
-    ``phase_convention`` (default ``condon-shortley``), ``lmax`` (default the
-    highest degree present), ``reference_radius_m`` and ``units``.
+    Rows may come in any order and orders left out are 0; the table runs to
+    the highest degree of its rows.  Header lines ``# key: value`` give
+    ``normalization`` (default ``orthonormal``), ``phase_convention``
+    (``condon-shortley`` or ``none``; default ``condon-shortley``), ``lmax``
+    (when given, it must be the highest degree of the rows),
+    ``reference_radius_m`` and ``units``.  A missing normalisation or phase
+    convention is warned about (``MissingConventionWarning``).
 
     Parameters
     ----------
@@ -117,7 +122,8 @@ def read_table(path: str | os.PathLike) -> tuple[Harmonics, tuple[np.ndarray, np
     Raises
     ------
     ValueError
-        Malformed rows, order above degree, repeated rows, unknown conventions.
+        Malformed rows, order above degree, repeated rows, unknown
+        conventions, a header ``lmax`` other than the rows' highest degree.
     """
     p = Path(path)
     if not p.exists():
@@ -128,21 +134,18 @@ def read_table(path: str | os.PathLike) -> tuple[Harmonics, tuple[np.ndarray, np
         raise ValueError(f"{str(p)!r}: degree and order must be whole numbers >= 0")
     if np.any(m_idx > l_idx):
         raise ValueError(f"{str(p)!r}: a row has order above its degree")
-    lmax = int(meta.get("lmax", l_idx.max()))
-    if l_idx.max() > lmax:
-        raise ValueError(f"{str(p)!r}: rows go to degree {l_idx.max()} but the header says lmax {lmax}")
+    lmax = int(l_idx.max())  # sized from the rows read, never from the header alone
+    _check_header_lmax(p, meta, lmax)
     key = l_idx * (lmax + 1) + m_idx
     if np.unique(key).size != key.size:
         raise ValueError(f"{str(p)!r}: some degree/order pair appears twice")
-    norm = check_norm(meta.get("normalization", "orthonormal"))
-    phase = meta.get("phase_convention", "condon-shortley").lower()
+    check_memory(16.0 * (lmax + 1) ** 2 * (2 if a.shape[1] == 6 else 1),
+                 f"the coefficient table {str(p)!r} to degree {lmax}", "use a smaller table")
+    conv = read_conventions(_header_attributes(p, meta), str(p), term="header line")
     c = np.zeros((lmax + 1, lmax + 1))
     s = np.zeros((lmax + 1, lmax + 1))
     c[l_idx, m_idx] = a[:, 2]
     s[l_idx, m_idx] = a[:, 3]
-    radius = meta.get("reference_radius_m")
-    conv = {"norm": norm, "condon_shortley": phase not in ("none", "no", "false", "0"),
-            "radius": None if radius is None else float(radius), "units": meta.get("units")}
     sigma = None
     if a.shape[1] == 6:
         sc = np.zeros_like(c)
@@ -151,6 +154,37 @@ def read_table(path: str | os.PathLike) -> tuple[Harmonics, tuple[np.ndarray, np
         ss[l_idx, m_idx] = a[:, 5]
         sigma = (sc, ss)
     return harmonics_from_cos_sin(c, s, conv), sigma
+
+
+def _check_header_lmax(p: Path, meta: dict[str, str], lmax: int) -> None:
+    """Refuse a header ``lmax`` that is not the highest degree of the rows."""
+    if "lmax" not in meta:
+        return
+    text = meta["lmax"]
+    if not text.strip().isdigit():
+        raise ValueError(f"{str(p)!r}: header lmax {text!r} is not a whole number; it should be "
+                         f"{lmax}, the highest degree of the rows")
+    if int(text) != lmax:
+        raise ValueError(f"{str(p)!r}: the header says lmax {int(text)} but the rows run to "
+                         f"degree {lmax}; the table is truncated or its header is wrong: correct "
+                         f"the header (lmax: {lmax}) or add the missing rows (zeros included)")
+
+
+def _header_attributes(p: Path, meta: dict[str, str]) -> xr.Dataset:
+    """The header's conventions as the attributes of a coefficient file, for checking."""
+    attrs: dict[str, object] = {}
+    for key in ("normalization", "phase_convention", "units"):
+        if key in meta:
+            attrs[key] = meta[key]
+    if "reference_radius_m" in meta:
+        try:
+            attrs["reference_radius"] = float(meta["reference_radius_m"])
+        except ValueError:
+            raise ValueError(f"{str(p)!r}: header reference_radius_m "
+                             f"{meta['reference_radius_m']!r} is not a number; give the radius "
+                             "in metres") from None
+        attrs["reference_radius_units"] = "m"
+    return xr.Dataset(attrs=attrs)
 
 
 def _read_rows(p: Path) -> tuple[dict[str, str], np.ndarray]:
@@ -172,9 +206,13 @@ def _read_rows(p: Path) -> tuple[dict[str, str], np.ndarray]:
                 raise ValueError(f"{str(p)!r} line {i}: expected 4 or 6 columns (degree order "
                                  f"cosine sine [sigmas]), found {len(parts)}")
             try:
-                rows.append([float(x) for x in parts])
+                row = [float(x) for x in parts]
             except ValueError:
                 raise ValueError(f"{str(p)!r} line {i}: not a number in {t[:60]!r}") from None
+            if not all(math.isfinite(x) for x in row):
+                raise ValueError(f"{str(p)!r} line {i}: NaN or inf in {t[:60]!r}; every entry "
+                                 "must be a finite number")
+            rows.append(row)
     if not rows:
         raise ValueError(f"{str(p)!r} holds no coefficient rows")
     if len({len(r) for r in rows}) != 1:
