@@ -168,7 +168,7 @@ BAD = [
     (("{dir}/plain.nc", "--east", "u"), ("give both --east and --north",)),
     (("{winds}", "--east", "u", "--north", "w"), ("no variable 'w'", "u, v, t")),
     (("{winds}", "--radius", "6371008.8"), ("larger than the Sun", "6371008.8m")),
-    (("{winds}", "--plot", "{out}"), ("three different files",)),
+    (("{winds}", "--plot", "{out}"), ("two outputs are the same file", "different names")),
     (("{winds}", "-o", "{winds}"), ("is the input file",)),
     (("{dir}/missing.nc",), ("no such file",)),
 ]

@@ -7,7 +7,7 @@ import math
 from typing import Any
 
 from sphex.cli.shared import (
-    UserError, add_command, add_output_arguments, chunk_spec, say, whole_number,
+    add_command, add_output_arguments, check_paths, chunk_spec, say, whole_number,
 )
 
 EXAMPLE = """\
@@ -108,16 +108,8 @@ def run(a: argparse.Namespace) -> int:
     from pathlib import Path
 
     from sphex.xr.flow_components import RadiusAssumedWarning
-    from sphex.xr.output import check_output_path
 
-    outputs = [p for p in (a.output, a.spectrum, a.plot) if p]
-    resolved = [Path(p).resolve() for p in outputs]
-    if len(set(resolved)) != len(resolved):
-        raise UserError("-o, --spectrum and --plot must be three different files")
-    if Path(a.input).resolve() in resolved:
-        raise UserError(f"the output {a.output!r} is the input file; write to another file")
-    for p in outputs:
-        check_output_path(p, a.overwrite)
+    check_paths([a.input], [a.output, a.spectrum, a.plot], a.overwrite)
     from sphex.xr.flow_streaming import stream_flow
 
     with warnings.catch_warnings():

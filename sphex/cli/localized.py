@@ -8,7 +8,8 @@ from pathlib import Path
 from typing import Any
 
 from sphex.cli.shared import (
-    UserError, add_command, cap_radius, count_fields, grid_of, load_variable, progress_bar, say,
+    UserError, add_command, cap_radius, check_paths, count_fields, grid_of, load_variable,
+    progress_bar, say,
     whole_number,
 )
 
@@ -103,11 +104,7 @@ def register(sub: Any) -> None:
 
 
 def run(a: argparse.Namespace) -> int:
-    from sphex.xr.output import check_output_path
-
-    for p in (a.plot, a.csv):
-        if p:
-            check_output_path(p, a.overwrite)
+    check_paths([a.input], [a.plot, a.csv], a.overwrite)
     ds, source = _one_field(a)
     lmax = ds.sizes["degree"] - 1
     _check_windows(a, lmax)

@@ -9,7 +9,8 @@ from pathlib import Path
 from typing import Any
 
 from sphex.cli.shared import (
-    UserError, add_command, add_output_arguments, positive_number, progress_bar, say, whole_number,
+    UserError, add_command, add_output_arguments, check_paths, positive_number, progress_bar, say,
+    whole_number,
 )
 
 EXAMPLE = """\
@@ -238,11 +239,7 @@ def _truncated_model(model, lmax: int):
 # the command
 # ---------------------------------------------------------------------------
 def run(a: argparse.Namespace) -> int:
-    from sphex.xr.output import check_output_path
-
-    check_output_path(a.output, a.overwrite)
-    if Path(a.output).resolve() in (Path(a.points).resolve(), Path(a.input).resolve()):
-        raise UserError(f"-o {a.output} is an input file; give another output name")
+    check_paths([a.input, a.points], [a.output], a.overwrite)
     table = PointTable(a.points)
     source, what = _open_source(a.input, a.epoch, a.lmax)
     radius = _point_radius(source, table, a.input, a.continue_)

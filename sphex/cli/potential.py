@@ -5,7 +5,9 @@ from __future__ import annotations
 import argparse
 from typing import Any
 
-from sphex.cli.shared import UserError, add_command, add_output_arguments, say, whole_number
+from sphex.cli.shared import (
+    UserError, add_command, add_output_arguments, check_paths, grid_file, say, whole_number,
+)
 
 #: Quantity names of sphex.potential (kept here so that building the parser imports nothing).
 GRAVITY_CHOICES = ("geoid", "height_anomaly", "anomaly", "disturbance", "radial_gradient",
@@ -127,9 +129,7 @@ def _grid(spec: str):
 
 
 def run_gravity(a: argparse.Namespace) -> int:
-    from sphex.xr.output import check_output_path
-
-    check_output_path(a.output, a.overwrite)
+    check_paths([a.model, grid_file(a.grid)], [a.output], a.overwrite)
     from sphex.xr.potential import gravity_fields
 
     model = _open(a, "gravity")
@@ -155,9 +155,7 @@ def run_gravity(a: argparse.Namespace) -> int:
 
 
 def run_geomagnetic(a: argparse.Namespace) -> int:
-    from sphex.xr.output import check_output_path
-
-    check_output_path(a.output, a.overwrite)
+    check_paths([a.model, grid_file(a.grid)], [a.output], a.overwrite)
     from sphex.xr.potential import magnetic_fields
 
     model = _open(a, "magnetic", a.epoch)
