@@ -14,12 +14,12 @@ import math
 import os
 import sys
 import time
-from collections.abc import Hashable, Mapping, Sequence
+from collections.abc import Callable, Hashable, Mapping, Sequence
 from dataclasses import dataclass
 from pathlib import Path
 from typing import Any, TextIO
 
-from sphex.xr.coords import check_lmax, find_grid
+from sphex.xr.coords import check_lmax, choose_variable, find_grid
 from sphex.xr.fields import analyze
 from sphex.xr.files import netcdf_encoding, open_netcdf, write_netcdf
 from sphex.xr.output import atomic_output, check_output_path
@@ -93,24 +93,6 @@ class StreamResult:
 def _open_lazily(path: str | os.PathLike) -> Any:
     # cache=False: reading a slice never loads (and keeps) the whole variable
     return open_netcdf(path, cache=False)
-
-
-def _pick_variable(ds: Any, var: str | None, path: str) -> str:
-    listed = ", ".join(map(str, ds.data_vars)) or "none"
-    if var is None:
-        names = []
-        for k, v in ds.data_vars.items():
-            try:
-                find_grid(v)
-            except ValueError:
-                continue
-            names.append(str(k))
-        if len(names) != 1:
-            raise ValueError(f"{path}: choose a variable with -v (variables: {listed})")
-        return names[0]
-    if var not in ds.data_vars:
-        raise ValueError(f"{path} has no variable {var!r} (variables: {listed})")
-    return var
 
 
 def _plan_chunks(da: Any, info: Any, chunks: Mapping[str, int] | None
@@ -193,6 +175,24 @@ class _ProgressReporter:
             self.stream.flush()
 
 
+class _CallbackReporter:
+    """Progress handed to a ``(done, total)`` callback in fields."""
+
+    def __init__(self, total: int, callback: Callable[[int, int], None]) -> None:
+        self.total = max(int(total), 1)
+        self.callback = callback
+        self.done = -1
+
+    def fraction(self, frac: float) -> None:
+        done = int(min(max(frac, 0.0), 1.0) * self.total)
+        if done != self.done:
+            self.done = done
+            self.callback(done, self.total)
+
+    def close(self) -> None:
+        pass
+
+
 def _local_progress_callback(reporter: _ProgressReporter) -> Any:
     from dask.callbacks import Callback
 
@@ -265,7 +265,8 @@ def stream_analyze(input: str | os.PathLike, var: str | None, output: str | os.P
                    lmax: int | None = None, norm: str = "orthonormal",
                    chunks: Mapping[str, int] | str | None = None, scheduler: str | None = None,
                    overwrite: bool = False, *, condon_shortley: bool = True,
-                   radius: float | None = None, progress: bool = True,
+                   radius: float | None = None,
+                   progress: bool | Callable[[int, int], None] = True,
                    history: str | None = None) -> StreamResult:
     """Analyse a large netCDF variable block by block into a coefficient file.
 
@@ -302,8 +303,11 @@ def stream_analyze(input: str | os.PathLike, var: str | None, output: str | os.P
     condon_shortley : bool
     radius : float, optional
         Reference radius (metres) to record.
-    progress : bool
-        Report progress on stderr for runs longer than two seconds.
+    progress : bool or callable
+        True: report progress on stderr for runs longer than two seconds (a
+        bar on a terminal, a line every tenth in logs); False: nothing; a
+        callable: ``progress(done, total)`` is called with the fields done
+        so far instead (the command line draws its own bar with it).
     history : str, optional
         The ``history`` attribute of the output (default: the equivalent
         ``sphex analyze`` command).
@@ -327,7 +331,7 @@ def stream_analyze(input: str | os.PathLike, var: str | None, output: str | os.P
     path = str(input)
     src = _open_lazily(path)
     try:
-        name = _pick_variable(src, var, path)
+        name = choose_variable(src, var, path)
         da = src[name]
         try:
             info = find_grid(da)
@@ -342,7 +346,10 @@ def stream_analyze(input: str | os.PathLike, var: str | None, output: str | os.P
         ds = analyze(lazy, lmax, norm=norm, condon_shortley=condon_shortley, radius=radius)
         ds.attrs["history"] = history or (f"sphex analyze {path} -v {name} --lmax {lmax} "
                                           f"--norm {norm}")
-        reporter = _ProgressReporter(n_fields, "sphex analyze", enabled=progress)
+        if callable(progress):
+            reporter: Any = _CallbackReporter(n_fields, progress)
+        else:
+            reporter = _ProgressReporter(n_fields, "sphex analyze", enabled=bool(progress))
         try:
             if scheduler:
                 _write_distributed(ds, output, overwrite, scheduler, reporter)
