@@ -13,7 +13,7 @@ import sys
 from collections.abc import Sequence
 from typing import Any, NoReturn
 
-from sphex.cli import bench, demo, fields, inspection, spectrum, transforms
+from sphex.cli import bench, demo, drawing, fields, inspection, spectrum, transforms
 from sphex.cli.shared import FORMATTER, PROG, UserError, report_error
 
 __all__ = ["main", "build_parser"]
@@ -24,27 +24,30 @@ Spherical-harmonic expansion of global latitude-longitude fields.
 Reads CF-style netCDF files, finds latitude and longitude by name or by CF
 attributes, and works on any extra dimensions (time, level, member) as a batch.
 
-commands:
-  analyze     grid file -> spherical-harmonic coefficient file
-  synthesize  coefficient file -> grid file (any supported grid)
-  spectrum    degree power spectrum (table, CSV, plot)
-  smooth      isotropic smoothing (Gaussian, spherical cap, degree taper)
-  regrid      spectral regridding onto another grid
-  inspect     what grid each variable is on, or why it is not usable
-  demo        the whole job on bundled synthetic data
-  bench       speed measurements
-
 Grids (--grid): a netCDF file whose latitude/longitude define the grid,
-gauss:LMAX, or equiangular:NLATxNLON:LAYOUT with LAYOUT poles, cells or north.
+gauss:LMAX (also gaussian:LMAX), equiangular:NLATxNLON:LAYOUT (latitudes first;
+LAYOUT poles, cells or north), or equiangular:SPACINGdeg (poles layout unless
+:LAYOUT follows).  Radii (--radius) are in km unless marked: 1350km, 1350000m.
 
 start here:
   sphex demo
-  sphex inspect my_field.nc
-  sphex analyze my_field.nc -v topo -o topo_coef.nc
+  sphex inspect data_demo/velanthe_topography.nc
+  sphex analyze data_demo/velanthe_topography.nc -o topo_coef.nc
 """
 
 #: The subcommand modules, in the order their subcommands are listed.
-COMMAND_MODULES = (transforms, spectrum, fields, inspection, demo, bench)
+COMMAND_MODULES = (transforms, spectrum, fields, drawing, inspection, demo, bench)
+
+
+class CommandListFormatter(FORMATTER):
+    """The main help: each command once, its help beside it (argparse leaves out the
+    commands' own indent when it places the help column, and wraps the longest names)."""
+
+    def add_argument(self, action: argparse.Action) -> None:
+        super().add_argument(action)
+        for choice in getattr(action, "_choices_actions", ()):
+            self._action_max_length = max(self._action_max_length,
+                                          len(choice.metavar or choice.dest) + self._current_indent + 2)
 
 
 class OneLineParser(argparse.ArgumentParser):
@@ -58,7 +61,7 @@ class OneLineParser(argparse.ArgumentParser):
 
 def build_parser() -> OneLineParser:
     """The parser of ``sphex`` with every subcommand registered."""
-    p = OneLineParser(prog=PROG, description=MAIN_HELP, formatter_class=FORMATTER)
+    p = OneLineParser(prog=PROG, description=MAIN_HELP, formatter_class=CommandListFormatter)
     p.add_argument("--version", action="version", version=f"%(prog)s {_version()}")
     sub = p.add_subparsers(dest="command", metavar="COMMAND", parser_class=OneLineParser)
     for module in COMMAND_MODULES:
