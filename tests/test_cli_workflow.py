@@ -111,6 +111,10 @@ def test_radius_in_km_with_units_read_from_the_file_and_said(tmp_path):
     assert "larger than any planet" in r.stderr and "1350000m" in r.stderr
     one_line_error(run("analyze", TOPO, "--radius", "1350mi", "-o", tmp_path / "x.nc"),
                    "give the radius in km")
+    # synthesis hands the radius on to the grid file, where analysis finds it again
+    ok(run("synthesize", tmp_path / "a.nc", "--grid", "gauss:12", "-o", tmp_path / "g.nc"))
+    with xr.open_dataset(tmp_path / "g.nc") as g:
+        assert g.attrs["planet_radius_km"] == 1350.0
     # the spectrum plot takes its half-wavelength axis from the coefficient file's radius
     r = ok(run("spectrum", tmp_path / "a.nc", "--plot", tmp_path / "a.png"))
     assert "half-wavelength axis for radius 1350 km (from the coefficient file's reference_radius" \
