@@ -377,6 +377,33 @@ def _degree_rows(lmax: int, step: float) -> list[tuple[int, int]]:
     return rows
 
 
+def _row_of_cells(squares: np.ndarray, power: np.ndarray, first: int, last: int,
+                  nbins: int) -> tuple[np.ndarray, np.ndarray]:
+    """Ratios and coefficient counts of the ``nbins`` cells of degrees ``first..last``.
+
+    ``squares[f, l, m]`` are the squared orthonormal coefficients of field f and
+    ``power[f, l]`` its degree power; order m of degree l falls in cell
+    ``floor(m nbins / l)`` (m = l in the last one).
+    """
+    share = np.zeros(nbins)
+    expect = np.zeros(nbins)
+    count = np.zeros(nbins, dtype=np.int64)
+    for l in range(first, last + 1):
+        live = power[:, l] > 0
+        if not live.any():
+            continue
+        m = np.arange(l + 1)
+        weight = np.where(m == 0, 1.0, 2.0)                  # cosine and sine for m > 0
+        cell = np.minimum((m * nbins) // l, nbins - 1)
+        s_lm = (weight * squares[live, l, : l + 1] / (4 * np.pi * power[live, l, None])).sum(0)
+        np.add.at(share, cell, s_lm)
+        np.add.at(expect, cell, live.sum() * weight / (2 * l + 1))
+        np.add.at(count, cell, (live.sum() * weight).astype(np.int64))
+    with np.errstate(invalid="ignore", divide="ignore"):
+        ratio = np.where(expect > 0, share / np.where(expect > 0, expect, 1.0), np.nan)
+    return ratio, count
+
+
 def isotropy_table(h: Harmonics, *, degree_step: float = 1.25,
                    fraction_bins: int = 8) -> IsotropyTable:
     r"""How each degree's power is shared among its orders, against an isotropic field.
@@ -441,27 +468,11 @@ def isotropy_table(h: Harmonics, *, degree_step: float = 1.25,
         raise ValueError("the isotropy table needs degrees above 0; these coefficients stop at 0")
     a = _ortho_coef(h)
     squares = np.abs(a.reshape((-1,) + a.shape[-2:])) ** 2          # (fields, l, m)
-    weight = np.full(h.lmax + 1, 2.0)
-    weight[0] = 1.0
     power = _degree_sum(squares)                                        # (fields, l)
     cells: dict[str, list] = {k: [] for k in ("first", "last", "low", "high", "ratio", "count")}
     for first, last in _degree_rows(h.lmax, degree_step):
         nbins = min(int(fraction_bins), first + 1)
-        share = np.zeros(nbins)
-        expect = np.zeros(nbins)
-        count = np.zeros(nbins, dtype=np.int64)
-        for l in range(first, last + 1):
-            m = np.arange(l + 1)
-            cell = np.minimum((m * nbins) // l, nbins - 1)
-            live = power[:, l] > 0
-            if not live.any():
-                continue
-            s_lm = (weight[m] * squares[live, l, : l + 1] / (4 * np.pi * power[live, l, None])).sum(0)
-            np.add.at(share, cell, s_lm)
-            np.add.at(expect, cell, live.sum() * weight[m] / (2 * l + 1))
-            np.add.at(count, cell, (live.sum() * weight[m]).astype(np.int64))
-        with np.errstate(invalid="ignore", divide="ignore"):
-            ratio = np.where(expect > 0, share / np.where(expect > 0, expect, 1.0), np.nan)
+        ratio, count = _row_of_cells(squares, power, first, last, nbins)
         edges = np.arange(nbins + 1) / nbins
         cells["first"] += [first] * nbins
         cells["last"] += [last] * nbins
