@@ -7,8 +7,9 @@ does the whole job a user would do with their own files:
 1. analyses the topography into coefficients and writes them to netCDF;
 2. draws its degree power spectrum with a fitted power law, before and after
    Gaussian smoothing;
-3. writes and draws the smoothed topography map, and the degree-order
-   amplitude picture;
+3. writes and draws the smoothed topography map, and the isotropy picture
+   (how each degree's power is shared among its orders, against an
+   isotropic field);
 4. analyses a twelve-step surface-temperature series in one batch;
 5. turns four steps of its winds into vorticity, divergence, streamfunction,
    velocity potential and the kinetic-energy spectrum, and draws them.
@@ -390,7 +391,7 @@ def run(out_dir: str | os.PathLike = "sphex-demo-output", overwrite: bool = Fals
         "smooth_nc": f"topography_smoothed_{SMOOTH_KM:g}km.nc",
         "smooth_png": f"topography_smoothed_{SMOOTH_KM:g}km.png",
         "spectrum": "topography_spectrum.png",
-        "triangle": "topography_degree_order.png",
+        "isotropy": "topography_isotropy.png",
         "temp_coef": "velanthe_temperature_coef.nc",
         "temp_spectrum": "temperature_spectra.png",
         "temp_map": "temperature_map_first_step.png",
@@ -453,7 +454,7 @@ def _make_products(out: Path, names: dict[str, str], overwrite: bool,
 
 def _topography_products(data: Path, out: Path, names: dict[str, str],
                          overwrite: bool) -> tuple[list[tuple[str, str]], str]:
-    """Coefficients, smoothed field, maps, spectrum and degree-order picture of the
+    """Coefficients, smoothed field, maps, spectrum and isotropy picture of the
     topography; the summary rows and the line of checks."""
     import xarray as xr
 
@@ -476,11 +477,11 @@ def _topography_products(data: Path, out: Path, names: dict[str, str],
     fit = (8, 80)
     slope = float(spectral_slope(np.asarray(p_raw), *fit)[0])
 
-    plot.save(plot.map_figure(topo, center=0.0, cmap="relief",
+    plot.save(plot.map_figure(topo, center=0.0, cmap="strata",
                               title=f"{MOON}: topography (synthetic)"),
               out / names["map"], overwrite=overwrite)
     vmin, vmax = float(topo.min()), float(topo.max())
-    plot.save(plot.map_figure(smoothed, center=0.0, cmap="relief", vmin=vmin, vmax=vmax,
+    plot.save(plot.map_figure(smoothed, center=0.0, cmap="strata", vmin=vmin, vmax=vmax,
                               title=f"{MOON}: topography after Gaussian smoothing, "
                                     f"half weight at {SMOOTH_KM:g} km"),
               out / names["smooth_png"], overwrite=overwrite)
@@ -490,8 +491,8 @@ def _topography_products(data: Path, out: Path, names: dict[str, str],
                                 planet_radius_km=RADIUS_KM,
                                 title=f"{MOON}: degree power of the topography"),
               out / names["spectrum"], overwrite=overwrite)
-    plot.save(plot.triangle_figure(coef, title=f"{MOON}: topography coefficients"),
-              out / names["triangle"], overwrite=overwrite)
+    plot.save(plot.isotropy_figure(coef, title=f"{MOON}: is the topography isotropic?"),
+              out / names["isotropy"], overwrite=overwrite)
 
     err = float(abs(back - topo.astype(np.float64)).max())
     rms = float(np.sqrt(p_raw.sum()))
@@ -501,7 +502,7 @@ def _topography_products(data: Path, out: Path, names: dict[str, str],
         ("map", str(out / names["map"])),
         ("smoothed map", f"{out / names['smooth_png']}  (data: {out / names['smooth_nc']})"),
         ("spectrum plot", f"{out / names['spectrum']}  (power-law slope {slope:.2f} over degrees {fit[0]}-{fit[1]})"),
-        ("degree-order", str(out / names["triangle"])),
+        ("isotropy", str(out / names["isotropy"])),
     ]
     checks = (f"  checks: rms height {rms:.1f} m; synthesis of the coefficients back onto the input "
               f"grid differs from the input by at most {err:.2g} m: the part of the input above "
@@ -520,7 +521,7 @@ def _temperature_products(data: Path, out: Path, names: dict[str, str], overwrit
     with xr.open_dataset(data / TEMP_FILE) as f:
         temp = f["surface_temperature"].load()
     tinfo = sxr.find_grid(temp)
-    with progress(temp.sizes["time"], "  temperature") as bar:
+    with progress(temp.sizes["time"], "sphex demo") as bar:
         tcoef = sxr.analyze(temp, progress=bar)
     sxr.write_harmonics(tcoef, out / names["temp_coef"], overwrite)
     tp = sxr.degree_power(tcoef)
@@ -534,7 +535,7 @@ def _temperature_products(data: Path, out: Path, names: dict[str, str], overwrit
         band=(tp.min("time"), tp.max("time")),
         title=f"{MOON}: degree power of surface temperature"),
         out / names["temp_spectrum"], overwrite=overwrite)
-    plot.save(plot.map_figure(temp.isel(time=0), cmap="heat",
+    plot.save(plot.map_figure(temp.isel(time=0), cmap="ember",
                               title=f"{MOON}: surface temperature, first step (synthetic)"),
               out / names["temp_map"], overwrite=overwrite)
     return [

@@ -134,7 +134,7 @@ def test_cap_radius_may_carry_the_unit(text):
 def test_smooth_regrid_and_text_table(files):
     d = files["dir"]
     sm = d / "smooth.nc"
-    r = run("smooth", files["single"], "--gaussian", 800, "--planet-radius", 6371, "-o", sm)
+    r = run("smooth", files["single"], "--gaussian", 800, "--radius", 6371, "-o", sm)
     assert r.returncode == 0, r.stderr
     with xr.open_dataset(sm) as out, xr.open_dataset(files["single"]) as src:
         expect = sxr.smooth(src["tsurf"].load(), gaussian_km=800.0, planet_radius_km=6371.0)
@@ -178,7 +178,8 @@ ERRORS = [
     (("analyze", "{series}", "-v", "pressure", "-o", "{out}"), ("no variable 'pressure'", "tsurf")),
     (("analyze", "{series}", "-v", "region", "-o", "{out}"), ("not global",)),
     (("analyze", "{series}", "-v", "tsurf", "--lmax", "45", "-o", "{out}"), ("exact limit 44",)),
-    (("analyze", "{series}", "-v", "tsurf", "--norm", "geodesy", "-o", "{out}"), ("invalid choice",)),
+    (("analyze", "{series}", "-v", "tsurf", "--norm", "geodesy", "-o", "{out}"),
+     ("unknown normalisation 'geodesy'", "orthonormal")),
     (("regrid", "{series}", "-v", "tsurf", "--grid", "gauss", "-o", "{out}"), ("gauss:LMAX",)),
     (("smooth", "{series}", "-v", "tsurf", "--gaussian", "300m", "-o", "{out}"), ("in km",)),
     (("smooth", "{series}", "-v", "tsurf", "--cap", "200deg", "-o", "{out}"), ("at most 180",)),
@@ -213,7 +214,7 @@ def test_demo_writes_its_products(tmp_path):
     assert r.returncode == 0, r.stderr
     names = sorted(p.name for p in out.iterdir())
     for n in ("velanthe_topography_coef.nc", "topography_spectrum.png", "topography_smoothed_200km.png",
-              "topography_smoothed_200km.nc", "topography_degree_order.png", "velanthe_wind_flow.nc",
+              "topography_smoothed_200km.nc", "topography_isotropy.png", "velanthe_wind_flow.nc",
               "winds_vorticity.png", "winds_velocity_potential.png", "winds_energy_spectrum.png"):
         assert n in names
         assert str(out / n) in r.stdout
@@ -237,22 +238,44 @@ def test_interrupted_write_leaves_nothing(tmp_path):
     assert list(tmp_path.iterdir()) == []
 
 
-def test_progress_bar_draws_only_on_a_terminal():
+def test_progress_bar_on_a_terminal_and_a_few_plain_lines_elsewhere():
     import io
 
-    from sphex.cli.shared import Progress
+    from sphex.cli.progress import Progress
 
     class Tty(io.StringIO):
         def isatty(self):
             return True
 
-    tty, pipe = Tty(), io.StringIO()
-    for stream in (tty, pipe):
-        with Progress(12, "analyze", stream=stream) as bar:
-            for done in (4, 8, 12):
+    tty, pipe, log = Tty(), io.StringIO(), io.StringIO()
+    for stream, after in ((tty, 2.0), (pipe, 2.0), (log, 0.0)):
+        with Progress(12, "sphex analyze", stream=stream, log_after=after, tick=0) as bar:
+            for done in range(1, 13):
                 bar(done, 12)
-    assert "12/12" in tty.getvalue() and tty.getvalue().endswith("\n")
-    assert pipe.getvalue() == ""
+    assert "| 12/12 fields" in tty.getvalue() and tty.getvalue().endswith("\n")
+    assert pipe.getvalue() == ""                 # a short run in a pipe: nothing
+    lines = log.getvalue().splitlines()          # a long one: the quarters, no more
+    assert [ln.split(" (")[-1] for ln in lines] == ["25 %)", "50 %)", "75 %)", "100 %)"]
+    assert lines[0].startswith("sphex analyze: 3/12 fields")
+
+
+def test_progress_time_ticks_while_a_field_is_being_worked_on():
+    import io
+    import time
+
+    from sphex.cli.progress import Progress
+
+    class Tty(io.StringIO):
+        def isatty(self):
+            return True
+
+    tty = Tty()
+    with Progress(1, "sphex smooth", stream=tty, tick=0.05):
+        time.sleep(0.5)                          # one long field, nothing finishes
+    draws = tty.getvalue().split("\r")[1:]
+    assert len(draws) >= 5 and all("| 0/1 field " in d for d in draws)
+    seconds = [float(d.split("field")[1].split("s")[0]) for d in draws]
+    assert seconds == sorted(seconds) and seconds[-1] >= 0.4 and len(set(seconds)) >= 4
 
 
 def test_bundled_demo_data_are_what_the_script_makes_and_say_they_are_synthetic():

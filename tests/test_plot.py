@@ -61,23 +61,72 @@ def test_map_figure_has_geographic_ticks_and_a_unit_colour_bar():
         plot.map_figure(xr.concat([da, da], "time"))
 
 
-def test_triangle_figure_places_cosines_above_and_sines_below():
-    c = np.zeros((4, 4))
-    s = np.zeros((4, 4))
-    c[3, 2], s[3, 2], c[1, 0] = 10.0, 0.1, 1.0
-    h = sphex.Harmonics.from_cos_sin(c, s)
-    fig = plot.triangle_figure(h)
-    img = np.asarray(fig.axes[0].images[0].get_array())     # rows: order -3..3, columns: degree
-    assert img.shape == (7, 4)
-    assert img[3 + 2, 3] == pytest.approx(1.0)       # log10 |C_32| = 1
-    assert img[3 - 2, 3] == pytest.approx(-1.0)      # log10 |S_32| = -1
-    assert img[3 + 0, 1] == pytest.approx(0.0)       # log10 |C_10| = 0
-    assert np.ma.is_masked(img[3 + 3, 2]) or np.isnan(img[3 + 3, 2])   # m > l: empty
-    # a coefficient Dataset works too
-    ds = sxr.from_harmonics(h)
-    fig2 = plot.triangle_figure(ds)
-    img2 = fig2.axes[0].images[0].get_array()
-    np.testing.assert_array_equal(np.ma.filled(img2, np.nan), np.ma.filled(img, np.nan))
+def test_isotropy_figure_draws_the_table_cell_by_cell():
+    from sphex.spectra import isotropy_table
+
+    rng = np.random.default_rng(5)
+    coef = np.tril(rng.standard_normal((41, 41)) + 1j * rng.standard_normal((41, 41)))
+    coef[:, 0] = coef[:, 0].real
+    h = sphex.Harmonics(coef)
+    table = isotropy_table(h)
+    fig = plot.isotropy_figure(sxr.from_harmonics(h), title="t")     # a coefficient Dataset works
+    ax = fig.axes[0]
+    cells = ax.collections[0]
+    np.testing.assert_allclose(np.ma.filled(cells.get_array(), np.nan), table.log2_ratio)
+    # each cell spans its degrees [first, last + 1) and its range of m/l
+    k = table.find(2, 1)
+    box = cells.get_paths()[k].vertices
+    assert box[:, 0].min() == 2.0 and box[:, 0].max() == 3.0
+    assert box[:, 1].min() == pytest.approx(1 / 3) and box[:, 1].max() == pytest.approx(2 / 3)
+    # a diverging scale centred on 0, labelled as ratios
+    assert cells.norm.vmin == -cells.norm.vmax
+    cax = fig.axes[1]
+    fig.canvas.draw()
+    assert [t.get_text() for t in cax.get_yticklabels()] == ["1/8", "1/4", "1/2", "1", "2", "4", "8"]
+    assert "0 zonal" in [t.get_text() for t in ax.get_yticklabels()]
+    # cells of few coefficients carry a dot, and the legend says why
+    dots = ax.get_lines()[0].get_xdata()
+    assert len(dots) == int(np.sum(table.coefficients < plot.FEW_COEFFICIENTS))
+    assert "single draw" in ax.get_legend().get_texts()[0].get_text()
+
+
+def test_colour_maps_have_names_of_their_own():
+    for name in ("strata", "ember", "tilt"):
+        assert getattr(plot, name).name == f"sphex-{name}"
+    g = sphex.Grid.equiangular(18, 36, "cells")
+    v = np.cos(np.deg2rad(g.lat))[:, None] * np.ones(36)
+    fig = plot.map_figure(v - 0.2, g.lat, g.lon, cmap="ember", center=0.0)
+    assert fig.axes[0].collections[0].get_cmap().name == "sphex-ember"
+
+
+def test_map_colour_bar_says_when_its_halves_have_different_scales():
+    g = sphex.Grid.equiangular(18, 36, "cells")
+    v = np.cos(np.deg2rad(g.lat))[:, None] * np.cos(np.deg2rad(g.lon))[None, :]
+    lopsided = plot.map_figure(3 * np.maximum(v, 0) + np.minimum(v, 0), g.lat, g.lon, center=0.0,
+                               label="h")
+    assert "different scales below and above 0" in lopsided.axes[1].get_xlabel()
+    even = plot.map_figure(v, g.lat, g.lon, center=0.0, label="h")
+    assert even.axes[1].get_xlabel() == "h"
+
+
+def test_power_figure_labels_degrees_shades_the_fit_and_fits_each_curve():
+    l = np.arange(300, dtype=float)
+    p = np.zeros(300)
+    p[1:] = l[1:] ** -2.0
+    fig = plot.power_figure([p, 10 * p], labels=["a", "b"], fit=(10, 200), fit_curves=[0, 1],
+                            units="m2 s-2", correlation=np.ones(300), correlation_label="r")
+    ax, low = fig.axes[0], fig.axes[1]
+    fig.canvas.draw()
+    ticks = [t.get_text() for t in low.get_xticklabels() if t.get_text()]
+    for want in ("1", "2", "3", "5", "10", "20", "30", "50", "100", "200"):
+        assert want in ticks
+    texts = [t.get_text() for t in ax.get_legend().get_texts()]
+    assert "fitted degrees 10-200" in texts
+    assert sum("slope -2.00" in t for t in texts) == 2
+    span = [pa for pa in ax.patches if pa.get_label() == "fitted degrees 10-200"][0]
+    assert span.get_alpha() >= 0.3                      # visible, not a faint wash
+    assert "m² s⁻²" in ax.get_ylabel()
+    assert low.get_ylabel() == "correlation" and low.get_ylim() == pytest.approx((-1.05, 1.05))
 
 
 def test_save_writes_png_atomically_and_refuses_to_overwrite(tmp_path):

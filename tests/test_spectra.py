@@ -226,3 +226,119 @@ def test_non_harmonics_input_is_refused():
     h = Harmonics(np.zeros((3, 3)))
     with pytest.raises(ValueError, match="h2"):
         cross_power(h, [1, 2])
+
+
+# ----------------------------------------------------------------- isotropy table
+def _isotropic_coefficients(rng: np.random.Generator, lmax: int, slope: float = -2.0) -> Harmonics:
+    """A Gaussian isotropic random field: at each degree every real coefficient (cosine and
+    sine, orthonormal) has the same variance (common practice: an isotropic field's spectrum
+    is spread evenly over the 2l+1 coefficients of a degree)."""
+    l = np.arange(lmax + 1)[:, None]
+    scale = np.where(l > 0, np.maximum(l, 1.0) ** (slope / 2), 0.0)
+    coef = (rng.standard_normal((lmax + 1, lmax + 1)) + 1j * rng.standard_normal((lmax + 1, lmax + 1)))
+    coef = np.tril(coef) / np.sqrt(2.0) * scale
+    coef[:, 0] = rng.standard_normal(lmax + 1) * scale[:, 0]        # m = 0: one real coefficient
+    return Harmonics(coef)
+
+
+def test_isotropy_table_of_an_isotropic_field_is_flat_above_degree_50(rng):
+    from sphex.spectra import isotropy_table
+
+    t = isotropy_table(_isotropic_coefficients(rng, 255))
+    above = t.degree_last > 50
+    assert above.sum() >= 40
+    # each cell averages n real coefficients whose shares are chi-squared draws: its ratio has a
+    # standard deviation of about sqrt(2/n) (common practice), well inside a factor 2 for n >= 100
+    assert t.coefficients[above].min() >= 100
+    assert np.all(np.abs(t.log2_ratio[above]) <= 1.0)
+    assert np.abs(t.log2_ratio[above]).max() < 0.5          # measured 0.29 with this seed
+    # the spread: a cell's share s of k of a degree's N coefficients is Beta(k/2, (N-k)/2)
+    # (common practice for normalised chi-squared draws), so its ratio has a variance of
+    # about (2/k)(1 - k/N): sqrt(7/8) = 0.94 of sqrt(2/n) with eight cells a row.  Measured
+    # 0.72 with this seed (0.74 to 1.15 over seeds 0..19, 0.95 pooled).
+    z = (t.ratio[above] - 1.0) / np.sqrt(2.0 / t.coefficients[above])
+    assert 0.6 < z.std() < 1.3 and abs(z.mean()) < 0.4
+
+
+def test_isotropy_table_of_single_harmonics_has_the_exact_ratios():
+    from sphex.spectra import isotropy_table
+
+    # a zonal degree-6 field: all of the degree's power in m = 0, whose isotropic share is 1/13
+    c, s = np.zeros((9, 9)), np.zeros((9, 9))
+    c[6, 0] = 2.0
+    t = isotropy_table(Harmonics.from_cos_sin(c, s), fraction_bins=8)
+    row = (t.degree_first <= 6) & (t.degree_last >= 6)
+    zonal = t.find(6, 0)
+    assert t.ratio[zonal] == pytest.approx(13.0, rel=1e-12)
+    others = np.flatnonzero(row & (np.arange(t.ratio.size) != zonal))
+    np.testing.assert_allclose(t.ratio[others], 0.0, atol=1e-15)
+    # a sectoral degree-5 field (cosine and sine of order 5): isotropic share 2/11
+    c, s = np.zeros((9, 9)), np.zeros((9, 9))
+    c[5, 5], s[5, 5] = 1.0, -3.0
+    t = isotropy_table(Harmonics.from_cos_sin(c, s))
+    assert t.ratio[t.find(5, 5)] == pytest.approx(11.0 / 2.0, rel=1e-12)
+    assert t.fraction_high[t.find(5, 5)] == 1.0 and t.find(5, 5) != t.find(5, 4)
+    # one cell per order while a degree has fewer orders than cells: degree 3 has 4 cells
+    assert np.count_nonzero((t.degree_first == 3) & (t.degree_last == 3)) == 4
+    with pytest.raises(ValueError, match="no cell holds"):
+        t.find(0, 0)
+
+
+def test_isotropy_table_is_the_same_in_every_convention_and_pools_a_batch(rng):
+    from sphex.spectra import isotropy_table
+
+    h = _isotropic_coefficients(rng, 40)
+    ref = isotropy_table(h)
+    for norm, cs in itertools.product(NORMS, PHASES):
+        t = isotropy_table(h.to(norm=norm, condon_shortley=cs))
+        np.testing.assert_allclose(t.ratio, ref.ratio, rtol=1e-9)
+    # shares add over a batch: two copies of a field give the same ratios from twice the counts
+    twice = Harmonics(np.stack([h.coef, 3.0 * h.coef]))
+    t2 = isotropy_table(twice)
+    np.testing.assert_allclose(t2.ratio, ref.ratio, rtol=1e-12)
+    np.testing.assert_array_equal(t2.coefficients, 2 * ref.coefficients)
+    # every single-degree row shares out exactly its degree's power:
+    # sum over its cells of ratio x isotropic share (counted coefficients / (2l+1)) is 1
+    for l in (3, 4, 5):
+        row = (t2.degree_first == l) & (t2.degree_last == l)
+        assert np.sum(t2.ratio[row] * t2.coefficients[row] / 2 / (2 * l + 1)) == pytest.approx(1.0)
+
+
+def test_isotropy_table_of_the_demo_topography_shows_its_tidal_figure():
+    """The invented moon's degree-2 figure is C20 and C22 (flattened, elongated towards its
+    planet); the basin and ridge add some degree-2 power in other orders."""
+    from pathlib import Path
+
+    import xarray as xr
+
+    import sphex.xr as sxr
+    from sphex.spectra import isotropy_table
+
+    path = Path(__file__).resolve().parent.parent / "data_demo" / "velanthe_topography.nc"
+    with xr.open_dataset(path) as f:
+        h = sxr.to_harmonics(sxr.analyze(f["topography"].load()))
+    t = isotropy_table(h)
+    zonal, tesseral, sectoral = (t.log2_ratio[t.find(2, m)] for m in (0, 1, 2))
+    assert zonal > 0.5 and sectoral > 0.25          # measured +0.72 and +0.36: above their share
+    assert tesseral < -1.0                          # measured -1.33: m = 1 below half its share
+    # the zonal and sectoral cells carry more than 80 % of degree 2's power (isotropic: 60 %)
+    share = (t.ratio[t.find(2, 0)] * 1 + t.ratio[t.find(2, 2)] * 2) / 5
+    assert share > 0.8
+    # above degree 20 the ridge belt, a great circle tilted 35 degrees, puts its power into
+    # orders up to about sin(35 deg) = 0.57 of the degree and little near sectoral
+    high = t.degree_first >= 20
+    near_sectoral = high & (t.fraction_low >= 0.75)
+    middle = high & (t.fraction_low >= 0.375) & (t.fraction_high <= 0.625)
+    assert t.log2_ratio[near_sectoral].mean() < -0.3 < 0.2 < t.log2_ratio[middle].mean()
+
+
+def test_isotropy_table_errors():
+    from sphex.spectra import isotropy_table
+
+    h = Harmonics(np.ones((4, 4), dtype=complex))
+    with pytest.raises(ValueError, match="degree_step"):
+        isotropy_table(h, degree_step=1.0)
+    with pytest.raises(ValueError, match="fraction_bins"):
+        isotropy_table(h, fraction_bins=0)
+    with pytest.raises(ValueError, match="degrees above 0"):
+        isotropy_table(Harmonics(np.ones((1, 1), dtype=complex)))

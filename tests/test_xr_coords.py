@@ -107,3 +107,41 @@ def test_dataset_with_two_grids_takes_the_global_one():
                 "lon": ("lon", np.arange(360.0), {"units": "degrees_east"})})
     info = sxr.find_grid(ds)
     assert (info.lat_dim, info.lon_dim, info.grid.shape) == ("lat", "lon", (90, 360))
+
+
+def test_grid_texts_users_type():
+    # gaussian:LMAX is the Gauss-Legendre grid too
+    assert sxr.parse_grid("gaussian:63") == sxr.parse_grid("gauss:63")
+    # a spacing that divides 180 degrees; both poles sampled unless a layout is named
+    # (2.5 degrees: 180/2.5 + 1 = 73 latitudes, 360/2.5 = 144 longitudes)
+    g = sxr.parse_grid("equiangular:2.5deg")
+    assert g.shape == (73, 144) and g.kind == "equiangular-poles"
+    assert sxr.parse_grid("equiangular:2.5deg:cells").shape == (72, 144)
+    assert sxr.parse_grid("equiangular:1deg:north").shape == (180, 360)
+    with pytest.raises(ValueError, match="does not divide 180"):
+        sxr.parse_grid("equiangular:7deg")
+    # the lon x lat habit: fewer longitudes than latitudes is refused with the fix
+    with pytest.raises(ValueError, match=r"NLATxNLON, latitudes first: did you mean "
+                                         r"equiangular:73x144:poles\?"):
+        sxr.parse_grid("equiangular:144x73:poles")
+
+
+def test_the_only_unusable_variable_gives_its_own_reason():
+    from sphex.xr.coords import choose_variable
+
+    lat = np.linspace(20.0, 60.0, 9)                    # regional: not global
+    lon = np.arange(0.0, 360.0, 10.0)
+    ds = xr.Dataset({"z": (("lat", "lon"), np.zeros((9, 36))),
+                     "lat_bnds": (("lat", "nv"), np.zeros((9, 2))),
+                     "step": ((), 3.0)},
+                    coords={"lat": ("lat", lat, {"units": "degrees_north", "bounds": "lat_bnds"}),
+                            "lon": ("lon", lon, {"units": "degrees_east"})})
+    with pytest.raises(ValueError, match=r"^f.nc: variable 'z': latitudes .*not global"):
+        choose_variable(ds, None, "f.nc")
+    # two unusable fields: each reason is given
+    ds["w"] = ds["z"] + 1
+    with pytest.raises(ValueError, match=r"no variable is on a usable global grid: variable 'z'.*"
+                                         r"variable 'w'"):
+        choose_variable(ds, None, "f.nc")
+    with pytest.raises(ValueError, match=r"f.nc has no variable 'q' \(variables: z, lat_bnds, step, w\)"):
+        choose_variable(ds, "q", "f.nc")

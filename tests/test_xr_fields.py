@@ -50,7 +50,7 @@ def test_degree_power_dataarray_sums_to_area_mean_square(rng):
     da = xr.DataArray(v, dims=("t", "lat", "lon"), coords={"lat": grid.lat, "lon": grid.lon},
                       attrs={"units": "K"}, name="T")
     p = sxr.degree_power(da)
-    assert p.dims == ("t", "degree") and p.attrs["units"] == "K^2"
+    assert p.dims == ("t", "degree") and p.attrs["units"] == "K2"
     # area mean of f^2 by an independent quadrature: numpy Gauss-Legendre in
     # x = cos(colat) and equally spaced longitudes (numpy.polynomial.legendre.leggauss)
     xg, wg = np.polynomial.legendre.leggauss(40)
@@ -159,3 +159,61 @@ def test_accessors_call_the_functions(rng):
     np.testing.assert_allclose(ds.sphex.synthesize(da).values, da.values, atol=1e-12)
     h = ds.sphex.to_harmonics()
     np.testing.assert_allclose(degree_power(h), ds.sphex.degree_power().values, rtol=1e-14)
+
+
+def test_regrid_keeps_the_source_coordinate_names_and_reports_progress():
+    src = sphex.Grid.equiangular(36, 72, "cells")
+    values = np.stack([band_limited_field(src.lat, src.lon) * k for k in range(1, 6)])
+    da = xr.DataArray(values, dims=("time", "latitude", "longitude"),
+                      coords={"latitude": ("latitude", src.lat, {"units": "degrees_north",
+                                                                 "long_name": "latitude",
+                                                                 "bounds": "latitude_bnds"}),
+                              "longitude": ("longitude", src.lon, {"units": "degrees_east"})},
+                      name="f")
+    calls = []
+    out = sxr.regrid(da, "gaussian:10", progress=lambda done, total: calls.append((done, total)))
+    assert out.dims == ("time", "latitude", "longitude")
+    assert out["latitude"].attrs["long_name"] == "latitude" and "bounds" not in out["latitude"].attrs
+    tgt = sphex.Grid.gauss(10)
+    np.testing.assert_allclose(out.values[2], 3 * band_limited_field(tgt.lat, tgt.lon), atol=1e-12)
+    # the callback hears about fields as they finish, up to all five
+    assert calls[-1] == (5, 5) and len(calls) == 5 and [c[0] for c in calls] == sorted(c[0] for c in calls)
+    # a target given by coordinates brings its own names
+    like = xr.DataArray(np.zeros((11, 22)), dims=("lat", "lon"),
+                        coords={"lat": tgt.lat, "lon": tgt.lon})
+    assert sxr.regrid(da, like).dims == ("time", "lat", "lon")
+
+
+def test_smooth_reads_the_radius_attribute_and_otherwise_assumes_earth_and_says_so(rng):
+    grid = sphex.Grid.gauss(20)
+    h = random_harmonics(rng, 20)
+    base = xr.DataArray(sphex.synthesize(h, grid), dims=("lat", "lon"),
+                        coords={"lat": grid.lat, "lon": grid.lon}, name="g")
+    moon = base.assign_attrs(planet_radius_km=1350.0)
+    np.testing.assert_allclose(sxr.smooth(moon, gaussian_km=200.0).values,
+                               sxr.smooth(base, gaussian_km=200.0, planet_radius_km=1350.0).values,
+                               atol=1e-13)
+    # a Dataset's own attribute counts for its variable
+    ds = base.to_dataset().assign_attrs(planet_radius_km=1350.0)
+    np.testing.assert_allclose(sxr.smooth(ds, gaussian_km=200.0).values,
+                               sxr.smooth(moon, gaussian_km=200.0).values, atol=1e-13)
+    with pytest.warns(UserWarning, match="assumed Earth's mean radius 6371 km"):
+        earth = sxr.smooth(base, gaussian_km=200.0)
+    np.testing.assert_allclose(earth.values,
+                               sxr.smooth(base, gaussian_km=200.0, planet_radius_km=6371.0).values,
+                               atol=1e-13)
+
+
+def test_smooth_and_synthesize_report_progress_field_by_field(rng):
+    grid = sphex.Grid.gauss(12)
+    h = random_harmonics(rng, 12, batch=(24,))
+    da = xr.DataArray(sphex.synthesize(h, grid), dims=("time", "lat", "lon"),
+                      coords={"lat": grid.lat, "lon": grid.lon}, name="g")
+    calls = []
+    out = sxr.smooth(da, band=(6, 10), progress=lambda d, t: calls.append((d, t)))
+    assert [d for d, _ in calls] == list(range(2, 25, 2)) and {t for _, t in calls} == {24}
+    np.testing.assert_allclose(out.values, sxr.smooth(da, band=(6, 10)).values, atol=1e-13)
+    calls.clear()
+    back = sxr.synthesize(sxr.analyze(da), da, progress=lambda d, t: calls.append((d, t)))
+    assert calls[-1] == (24, 24) and len(calls) == 12
+    np.testing.assert_allclose(back.values, da.values, atol=1e-11)

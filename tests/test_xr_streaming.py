@@ -77,7 +77,7 @@ def test_stream_user_errors_leave_no_output(series, tmp_path):
     _write_series(series, src)
     out = tmp_path / "c.nc"
     out.write_text("keep me")
-    with pytest.raises(OutputExistsError, match="--overwrite"):
+    with pytest.raises(OutputExistsError, match="overwrite=True"):
         streaming.stream_analyze(src, "surface_temp", out)
     assert out.read_text() == "keep me"
     with pytest.raises(ValueError, match=r"has no variable 'nope' \(variables: surface_temp\)"):

@@ -14,14 +14,16 @@ the full traceback of an error.
 Modules
 -------
 ``parser``       the parser and :func:`main`
-``shared``       argument types, opening inputs, grid texts, writing outputs, the progress
-                 bar and the one-line error report
+``shared``       argument types, opening inputs, grid texts, writing outputs and the
+                 one-line error report
+``progress``     the one progress display of every subcommand; the first run's kernel notice
+``radius``       the one radius option, ``--radius`` (km unless marked), and its sources
 ``transforms``   ``analyze`` and ``synthesize``
-``spectrum``     ``spectrum``
+``spectrum``     ``spectrum`` (its report and files in ``spectrum_output``)
 ``fields``       ``smooth`` and ``regrid``
 ``flow``         ``flow`` (winds and currents)
-
 ``points``       ``sample``
+``drawing``      ``map``
 ``inspection``   ``inspect``
 ``demo``         ``demo``
 ``bench``        ``bench`` (handed to :mod:`sphex.bench`)

@@ -4,12 +4,13 @@ from __future__ import annotations
 import argparse
 from typing import Any
 
-from sphex.cli.shared import Progress, add_command
+from sphex.cli.progress import Progress, announce_kernel_preparation
+from sphex.cli.shared import add_command
 
 EXAMPLE = """\
 Makes the synthetic moon Velanthe's topography and surface-temperature files
 (invented data), analyses them, and writes coefficients, a spectrum plot, maps
-and a degree-order picture into DIR.
+and the isotropy picture into DIR.
 
 example:
   sphex demo --out sphex-demo-output
@@ -28,4 +29,5 @@ def register(sub: Any) -> None:
 def run(a: argparse.Namespace) -> int:
     from sphex import demo as demo_job
 
+    announce_kernel_preparation("demo")
     return demo_job.run(a.out, overwrite=a.overwrite, progress=Progress)

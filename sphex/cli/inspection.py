@@ -38,6 +38,7 @@ def run(a: argparse.Namespace) -> int:
                 lines.append("  no data variables")
             for name, v in ds.data_vars.items():
                 lines.append(_describe_variable(name, v))
+            lines += _describe_radius(ds.attrs)
     finally:
         ds.close()
     say(*lines)
@@ -79,6 +80,15 @@ def _checked_coefficients(path: str, ds) -> list[str]:
              for w in caught]
     return _describe_coefficients(ds) + notes
 
+def _describe_radius(attrs: dict) -> list[str]:
+    """The planet radius the file states, if any (used by smooth, analyze and spectrum)."""
+    from sphex.xr.radius import number_text, radius_from_attributes
+
+    found = radius_from_attributes(("the file's", attrs))
+    if found is None:
+        return []
+    return [f"  planet radius {number_text(found[0])} km ({found[1]})"]
+
 
 def _describe_coefficients(ds) -> list[str]:
     at = ds.attrs
@@ -87,7 +97,10 @@ def _describe_coefficients(ds) -> list[str]:
              f"  normalisation {at.get('normalization', 'orthonormal')}, phase "
              f"{at.get('phase_convention', 'condon-shortley')}"]
     if "reference_radius" in at:
-        lines.append(f"  reference radius {float(at['reference_radius']):g} m")
+        from sphex.xr.radius import number_text
+
+        metres = float(at["reference_radius"])
+        lines.append(f"  reference radius {number_text(metres / 1e3)} km ({number_text(metres)} m)")
     if "units" in at:
         lines.append(f"  units {at['units']}")
     if extra:

@@ -16,7 +16,8 @@ from collections.abc import Sequence
 from typing import Any, NoReturn
 
 from sphex.cli import (
-    bench, demo, fields, flow, inspection, localized, points, potential, spectrum, transforms,
+    bench, demo, drawing, fields, flow, inspection, localized, points, potential, spectrum,
+    transforms,
 )
 from sphex.cli.shared import (
     DEBUG_VARIABLE, EXIT_INTERRUPTED, FORMATTER, PROG, add_debug_argument, one_line_warnings,
@@ -31,30 +32,15 @@ Spherical-harmonic expansion of global latitude-longitude fields.
 Reads CF-style netCDF files, finds latitude and longitude by name or by CF
 attributes, and works on any extra dimensions (time, level, member) as a batch.
 
-commands:
-  analyze     grid file -> spherical-harmonic coefficient file
-  synthesize  coefficient file -> grid file (any supported grid)
-  spectrum    degree power spectrum (table, CSV, plot)
-  local-spectrum  localised (multitaper) spectrum of a region, with errors
-  smooth      isotropic smoothing (Gaussian, spherical cap, degree taper)
-  regrid      spectral regridding onto another grid
-  flow        vorticity, divergence, streamfunction, velocity potential and
-              kinetic-energy spectrum of winds or currents
-  sample      coefficients or a model at the points of a CSV file (stations, tracks)
-  inspect     what grid each variable is on, or why it is not usable
-  gravity     gravity model file -> grid of geoid, anomalies, deflections
-              (not certified for surveying, engineering or navigation)
-  geomagnetic geomagnetic model file -> grid of field components, D and I
-  demo        the whole job on bundled synthetic data
-  bench       speed measurements
-
 Grids (--grid): a netCDF file whose latitude/longitude define the grid,
-gauss:LMAX, or equiangular:NLATxNLON:LAYOUT with LAYOUT poles, cells or north.
+gauss:LMAX (also gaussian:LMAX), equiangular:NLATxNLON:LAYOUT (latitudes first;
+LAYOUT poles, cells or north), or equiangular:SPACINGdeg (poles layout unless
+:LAYOUT follows).  Radii (--radius) are in km unless marked: 1350km, 1350000m.
 
 start here:
   sphex demo
-  sphex inspect my_field.nc
-  sphex analyze my_field.nc -v topo -o topo_coef.nc
+  sphex inspect data_demo/velanthe_topography.nc
+  sphex analyze data_demo/velanthe_topography.nc -o topo_coef.nc
 
 exit status: 0 done; 2 a problem with the input, the request or the system (one
 line on stderr says what and what to do; nothing is written); 70 a bug in sphex
@@ -62,8 +48,19 @@ line on stderr says what and what to do; nothing is written); 70 a bug in sphex
 """
 
 #: The subcommand modules, in the order their subcommands are listed.
-COMMAND_MODULES = (transforms, spectrum, localized, fields, flow, potential, points, inspection,
-                   demo, bench)
+COMMAND_MODULES = (transforms, spectrum, localized, fields, flow, potential, points, drawing,
+                   inspection, demo, bench)
+
+
+class CommandListFormatter(FORMATTER):
+    """The main help: each command once, its help beside it (argparse leaves out the
+    commands' own indent when it places the help column, and wraps the longest names)."""
+
+    def add_argument(self, action: argparse.Action) -> None:
+        super().add_argument(action)
+        for choice in getattr(action, "_choices_actions", ()):
+            self._action_max_length = max(self._action_max_length,
+                                          len(choice.metavar or choice.dest) + self._current_indent + 2)
 
 
 class OneLineParser(argparse.ArgumentParser):
@@ -77,7 +74,7 @@ class OneLineParser(argparse.ArgumentParser):
 
 def build_parser() -> OneLineParser:
     """The parser of ``sphex`` with every subcommand registered."""
-    p = OneLineParser(prog=PROG, description=MAIN_HELP, formatter_class=FORMATTER)
+    p = OneLineParser(prog=PROG, description=MAIN_HELP, formatter_class=CommandListFormatter)
     p.add_argument("--version", action="version", version=f"%(prog)s {_version()}")
     add_debug_argument(p)
     sub = p.add_subparsers(dest="command", metavar="COMMAND", parser_class=OneLineParser)

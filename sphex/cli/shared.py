@@ -11,12 +11,13 @@ import argparse
 import errno
 import os
 import sys
-import time
 import warnings
 from collections.abc import Iterator
 from contextlib import contextmanager
 from pathlib import Path
-from typing import Any, TextIO
+from typing import Any
+
+from sphex.cli.progress import Progress, progress_bar
 
 __all__ = [
     "PROG", "UserError", "FORMATTER", "add_command", "add_output_arguments",
@@ -150,32 +151,21 @@ def open_input(path: str):
     return open_netcdf(path)
 
 
-def _gridded_variables(ds) -> list[str]:
-    from sphex.xr.coords import find_grid
-
-    out = []
-    for k, v in ds.data_vars.items():
-        try:
-            find_grid(v)
-        except ValueError:
-            continue
-        out.append(str(k))
-    return out
-
-
 def load_variable(path: str, var: str | None):
-    """Open ``path`` and return (DataArray loaded in memory, file global attrs)."""
+    """Open ``path`` and return (DataArray loaded in memory, file global attrs).
+
+    Without ``var`` the file's only variable on a usable grid is taken; when
+    none is usable and one variable looks like a field, its own reason is
+    the message.
+    """
+    from sphex.xr.coords import choose_variable
+
     ds = open_input(path)
     try:
-        if var is None:
-            names = _gridded_variables(ds)
-            if len(names) != 1:
-                listed = ", ".join(map(str, ds.data_vars)) or "none"
-                raise UserError(f"{path}: choose a variable with -v (variables: {listed})")
-            var = names[0]
-        if var not in ds.data_vars:
-            listed = ", ".join(map(str, ds.data_vars)) or "none"
-            raise UserError(f"{path} has no variable {var!r} (variables: {listed})")
+        try:
+            var = choose_variable(ds, var, path)
+        except ValueError as exc:
+            raise UserError(str(exc)) from None
         check_fits_in_memory(ds[var], path)
         try:
             da = ds[var].load()
@@ -217,10 +207,9 @@ def grid_file(spec: str) -> str | None:
 
 def target_grid(spec: str):
     """A Grid (from text) or a Dataset whose coordinates define the grid (from a file)."""
-    from sphex.xr.coords import find_grid, parse_grid
+    from sphex.xr.coords import find_grid, is_grid_text, parse_grid
 
-    head = spec.split(":", 1)[0].lower()
-    if ":" in spec and head in ("gauss", "equiangular") and not Path(spec).exists():
+    if is_grid_text(spec) and not Path(spec).exists():
         return parse_grid(spec)
     if Path(spec).exists():
         ds = open_input(spec)
@@ -235,8 +224,8 @@ def target_grid(spec: str):
                                     info.lon_name: ds[info.lon_name]}).load()
         ds.close()
         return coords
-    raise UserError(f"--grid {spec!r} is neither a file nor gauss:LMAX or "
-                    "equiangular:NLATxNLON:LAYOUT")
+    raise UserError(f"--grid {spec!r} is neither a file nor a grid text (gauss:LMAX, "
+                    "equiangular:NLATxNLON:LAYOUT or equiangular:SPACINGdeg)")
 
 
 def count_fields(da, info) -> int:
@@ -285,89 +274,6 @@ def say(*lines: str) -> None:
 
 
 # ---------------------------------------------------------------------------
-# progress
-# ---------------------------------------------------------------------------
-class Progress:
-    """A one-line progress bar on a terminal stream (silent elsewhere).
-
-    Parameters
-    ----------
-    total : int
-        Number of items (fields) the run will do.
-    label : str
-        Short text in front of the bar.
-    stream : file, optional
-        Where to draw; default ``sys.stderr``.  Nothing is drawn unless the
-        stream is a terminal, so logs and pipes stay clean.
-    min_total : int
-        Runs with fewer items than this draw nothing.
-
-    Examples
-    --------
-    >>> import io
-    >>> bar = Progress(10, "fields", stream=io.StringIO())  # not a terminal: silent
-    >>> bar.update(10); bar.close()
-    """
-
-    width = 28
-
-    def __init__(self, total: int, label: str = "", stream: TextIO | None = None,
-                 min_total: int = 2) -> None:
-        self.total = max(int(total), 0)
-        self.label = label
-        self.stream = sys.stderr if stream is None else stream
-        isatty = getattr(self.stream, "isatty", None)
-        self.enabled = bool(isatty and isatty()) and self.total >= min_total
-        self.done = 0
-        self._start = time.monotonic()
-        self._last = 0.0
-        if self.enabled:
-            self._draw()
-
-    def update(self, n: int = 1) -> None:
-        """Record ``n`` more items done and redraw (at most ten times a second)."""
-        self.done = min(self.done + n, self.total)
-        now = time.monotonic()
-        if self.enabled and (now - self._last > 0.1 or self.done == self.total):
-            self._last = now
-            self._draw()
-
-    def __call__(self, done: int, total: int) -> None:
-        """Callback form: set the count to ``done`` out of ``total``."""
-        self.total = total
-        self.update(done - self.done)
-
-    def _draw(self) -> None:
-        frac = self.done / self.total if self.total else 1.0
-        full = int(round(frac * self.width))
-        elapsed = time.monotonic() - self._start
-        bar = "=" * full + (">" if full < self.width else "") + " " * (self.width - full - 1)
-        self.stream.write(
-            f"\r{self.label} |{bar[:self.width]}| {self.done}/{self.total} {elapsed:5.1f} s"
-        )
-        self.stream.flush()
-
-    def close(self) -> None:
-        """Finish the line."""
-        if self.enabled:
-            self._draw()
-            self.stream.write("\n")
-            self.stream.flush()
-            self.enabled = False
-
-    def __enter__(self) -> "Progress":
-        return self
-
-    def __exit__(self, *exc: object) -> None:
-        self.close()
-
-
-def progress_bar(total: int, label: str) -> Progress:
-    """A progress bar on stderr for ``total`` fields."""
-    return Progress(total, label)
-
-
-# ---------------------------------------------------------------------------
 # errors
 # ---------------------------------------------------------------------------
 def _where(command: str | None) -> str:
@@ -376,6 +282,8 @@ def _where(command: str | None) -> str:
 
 def report_error(command: str | None, exc: BaseException) -> int:
     """Write ``sphex COMMAND: error: MESSAGE`` on one line to stderr; returns 2."""
+    if callable(getattr(exc, "shell_message", None)):   # the shell's words, not Python's keywords
+        exc = UserError(exc.shell_message())
     msg = " ".join(str(exc).split()) or type(exc).__name__
     sys.stderr.write(f"{_where(command)}: error: {msg}\n")
     return EXIT_USER_ERROR

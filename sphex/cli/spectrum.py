@@ -1,107 +1,225 @@
-"""``sphex spectrum``: the degree power spectrum as a table, a CSV file or a plot."""
+"""``sphex spectrum``: degree spectra of one or more inputs, their comparison and isotropy.
+
+The inputs (coefficient files, or grid files analysed first) are read in
+order; the report gives each field's mean square and its variance without
+degree 0, the share of a grid's variance above the analysed degree limit,
+power-law fits, the cross power and correlation of two inputs, and writes a
+table (terminal or CSV), a plot and the isotropy picture.  The tables, the
+text and the figures are made in :mod:`sphex.cli.spectrum_output`.
+"""
 from __future__ import annotations
 
 import argparse
+from dataclasses import dataclass
 from pathlib import Path
 from typing import Any
 
+from sphex.cli.progress import announce_kernel_preparation
+from sphex.cli.radius import add_radius_option, choose_radius
 from sphex.cli.shared import (
-    UserError, add_command, check_paths, count_fields, degree_range, grid_of, load_variable, open_input,
-    progress_bar, say, whole_number,
+    UserError, add_command, check_paths, count_fields, degree_range, grid_of, load_variable,
+    open_input, progress_bar, say, whole_number,
 )
 
 EXAMPLE = """\
 Degree power: the contribution of each degree to the area mean of the squared
-field (its sum is the mean square), in the field's units squared.  Without
---csv or --plot the table is printed.
+field (its sum is the mean square), in the field's units squared; --kind
+per-coefficient divides it by the 2l+1 coefficients of the degree.  Several
+inputs are overlaid, labelled by their variable names; --cross adds the cross
+power and correlation of two inputs.  Without --csv, --plot or --isotropy the
+table is printed.
 
 example:
   sphex spectrum topo_coef.nc --plot topo_spectrum.png --slope 10:60
-  sphex spectrum my_field.nc -v topo --csv topo_power.csv
+  sphex spectrum data_demo/velanthe_topography.nc --csv topo_power.csv
+  sphex spectrum topo_coef.nc topo_smooth_coef.nc --cross --plot topo_compare.png
+  sphex spectrum topo_coef.nc --isotropy topo_isotropy.png
   sphex spectrum velanthe_gravity.gfc --csv velanthe_degree_variances.csv
 """
 
 #: Fields summarised one by one in the report; more are counted.
 LISTED_FIELDS = 8
-#: Fields drawn as curves on the plot; more are drawn as their mean and range.
+#: Fields of one input drawn as curves; more are drawn as their mean and range.
 DRAWN_FIELDS = 6
+#: Spectrum kinds of the command line and the names of sphex.xr.degree_power.
+KINDS = {"power": "power", "per-coefficient": "per_coefficient"}
 
 
 def register(sub: Any) -> None:
     """Add ``spectrum`` to the subcommands."""
     q = add_command(sub, "spectrum",
-                    "Degree power spectrum of coefficients or of a gridded variable", EXAMPLE)
-    q.add_argument("input", metavar="FILE", help="coefficient file, netCDF grid file with -v, or "
-                   "model file (gravity exchange, .shc, sphex model)")
-    q.add_argument("-v", "--var", metavar="VAR", help="variable of a grid file")
+                    "Degree spectra of one or more inputs, compared and drawn",
+                    EXAMPLE)
+    q.add_argument("inputs", nargs="+", metavar="FILE",
+                   help="coefficient files, netCDF grid files (analysed first), or one model file "
+                        "(gravity exchange, .shc, sphex model: its degree variances and their errors)")
+    q.add_argument("-v", "--var", metavar="VAR", action="append",
+                   help="variable of a grid file: once for all inputs, or once per input")
     q.add_argument("--lmax", type=whole_number, metavar="N", help="degree limit")
-    q.add_argument("--plot", metavar="PNG", help="write a log-log plot")
-    q.add_argument("--csv", metavar="CSV", help="write the spectrum as CSV")
+    q.add_argument("--kind", choices=list(KINDS), default="power",
+                   help="power (default) or per-coefficient: power / (2l+1)")
+    q.add_argument("--cross", action="store_true",
+                   help="cross power and correlation per degree of the two inputs")
     q.add_argument("--slope", metavar="L1:L2", type=degree_range,
-                   help="fit a power law over degrees L1..L2 (printed, and drawn on the plot)")
-    q.add_argument("--overwrite", action="store_true", help="replace PNG/CSV if they exist")
+                   help="fit a power law over degrees L1..L2 to each series drawn (printed, and "
+                        "drawn on the plot)")
+    q.add_argument("--plot", metavar="PNG", help="write a log-log plot")
+    q.add_argument("--csv", metavar="CSV", help="write the table as CSV (notes in CSV.txt)")
+    q.add_argument("--isotropy", metavar="PNG",
+                   help="write the isotropy picture: each degree's power shared among its "
+                        "orders, against an isotropic field (one input)")
+    add_radius_option(q, "radius for the plot's half-wavelength axis")
+    q.add_argument("--overwrite", action="store_true", help="replace existing outputs")
     q.set_defaults(func=run)
 
 
+@dataclass
+class SpectrumInput:
+    """One input: its coefficients, and what the report says about it.
+
+    Attributes
+    ----------
+    path : str
+    name : str
+        The variable's name (the legend label).
+    what : str
+        Where the coefficients came from, for the report.
+    coef : xarray.Dataset
+        Coefficients (read, or analysed from the grid).
+    grid_variance : numpy.ndarray or None
+        Per field, the grid's variance about its mean by the grid's
+        quadrature (grid inputs only).
+    radius_sources : list of (str, dict)
+        Attribute sets a radius may come from, in order.
+    """
+
+    path: str
+    name: str
+    what: str
+    coef: Any
+    grid_variance: Any
+    radius_sources: list
+
+
 def run(a: argparse.Namespace) -> int:
-    check_paths([a.input], [a.plot, a.csv], a.overwrite)
-    import numpy as np
-    import xarray as xr
+    from sphex.cli import spectrum_output as output
+    from sphex.cli.potential import is_model_file
 
-    from sphex.xr.fields import degree_power
-
-    ds, source = _coefficients_of_input(a)
-    power = ds if isinstance(ds, xr.DataArray) else degree_power(ds)  # model files: already
-    lmax = power.sizes["degree"] - 1
-    if a.slope and a.slope[1] > lmax:
-        raise UserError(f"--slope {a.slope[0]}:{a.slope[1]} goes past the highest degree {lmax}")
-    labels, table = _power_table(power)
-    units = power.attrs.get("units", "")
-    lines = [f"spectrum of {source}"] + _mean_square_lines(labels, table, units)
-    if a.slope:
-        fit = _fit_slope(table.mean(axis=0), *a.slope)
-        lines.append(f"  power-law fit over degrees {a.slope[0]}..{a.slope[1]}"
-                     f"{' (mean of all fields)' if len(labels) > 1 else ''}: slope {fit[0]:.3f}")
-    if a.csv:
-        _write_csv(a.csv, a.overwrite, labels, table, units)
-        lines.append(f"wrote {a.csv}")
-    if a.plot and isinstance(ds, xr.DataArray):  # a model file: signal, error and their crossing
-        from sphex.cli.potential import draw_model_spectrum
-
-        draw_model_spectrum(a.plot, a.overwrite, power, Path(a.input).name)
-    elif a.plot:
-        _draw_power_plot(a.plot, a.overwrite, labels, table, units, a.slope, Path(a.input).name)
+    _check_request(a)
+    outputs = [a.plot, a.csv, a.isotropy] + ([output.notes_path(a.csv)] if a.csv else [])
+    check_paths(list(a.inputs), outputs, a.overwrite)
+    if len(a.inputs) == 1 and is_model_file(a.inputs[0]):
+        return _run_model(a)
+    names = a.var or [None]
+    inputs = [_read_input(path, names[min(i, len(names) - 1)], a.lmax)
+              for i, path in enumerate(a.inputs)]
+    report = output.Report(inputs, KINDS[a.kind], a.slope, a.cross)
+    lines = report.summary_lines()
     if a.plot:
-        lines.append(f"wrote {a.plot}")
-    if not a.csv and not a.plot:
-        w = max(22, *(len(x) for x in labels)) if labels else 22
-        lines.append("degree " + " ".join(f"{x:>{w}}" for x in labels))
-        for l in np.arange(lmax + 1):
-            lines.append(f"{l:6d} " + " ".join(f"{v:{w}.15g}" for v in table[:, l]))
+        radius = choose_radius("spectrum", a.radius, *inputs[0].radius_sources)
+        report.write_plot(a.plot, a.overwrite, radius)
+        lines.append(f"wrote {a.plot}" + (f" (half-wavelength axis for {radius.describe()})"
+                                          if radius else " (no radius known: no half-wavelength "
+                                          "axis; give --radius for one)"))
+    if a.csv:
+        report.write_csv(a.csv, a.overwrite)
+        lines.append(f"wrote {a.csv} (notes in {output.notes_path(a.csv)})")
+    if a.isotropy:
+        lines += report.write_isotropy(a.isotropy, a.overwrite)
+    if not (a.csv or a.plot or a.isotropy):
+        lines += report.table_lines()
     say(*lines)
     return 0
 
 
-def _coefficients_of_input(a: argparse.Namespace) -> tuple[Any, str]:
-    """The coefficient Dataset of the input (read, or analysed from a grid file) and what it is."""
-    from sphex.cli.potential import is_model_file, model_spectra
-    from sphex.xr.coords import check_lmax
-    from sphex.xr.fields import analyze
+def _check_request(a: argparse.Namespace) -> None:
+    """Refuse combinations that cannot work, before any reading."""
+    n = len(a.inputs)
+    if a.var and len(a.var) not in (1, n):
+        raise UserError(f"give -v once (for every input) or once per input; got {len(a.var)} for "
+                        f"{n} inputs")
+    if a.cross and n != 2:
+        raise UserError(f"--cross compares two inputs; got {n}")
+    if a.isotropy and n != 1:
+        raise UserError(f"--isotropy draws one input; got {n} (run once per input)")
+    if a.slope and a.lmax is not None and a.slope[1] > a.lmax:
+        raise UserError(f"--slope {a.slope[0]}:{a.slope[1]} goes past --lmax {a.lmax}")
+
+
+def _read_input(path: str, var: str | None, lmax: int | None) -> SpectrumInput:
+    """The coefficients of one input (read, or analysed from a grid file)."""
     from sphex.xr.files import open_coefficients
 
-    if is_model_file(a.input):  # degree variances (and error degree variances) of the model
-        return model_spectra(a.input, a.lmax)
-    if _looks_like_coefficients(a.input):
-        ds = open_coefficients(a.input)
-        if a.lmax is not None:
-            ds = ds.isel(degree=slice(0, a.lmax + 1), order=slice(0, a.lmax + 1))
-        return ds, f"coefficients to degree {ds.sizes['degree'] - 1}"
-    da, _ = load_variable(a.input, a.var)
-    info = grid_of(da, a.input)
-    lmax = check_lmax(a.lmax, info.grid, False, f"variable {da.name!r}")
-    with progress_bar(count_fields(da, info), "analyze") as bar:
-        ds = analyze(da, lmax, progress=bar if bar.enabled else None)
-    return ds, f"{da.name!r} on a {info.describe()}"
+    if _looks_like_coefficients(path):
+        ds = open_coefficients(path)
+        if lmax is not None:
+            if lmax > ds.sizes["degree"] - 1:
+                raise UserError(f"--lmax {lmax} is above the highest degree "
+                                f"{ds.sizes['degree'] - 1} of {path}")
+            ds = ds.isel(degree=slice(0, lmax + 1), order=slice(0, lmax + 1))
+        name = str(ds.attrs.get("field_name", Path(path).stem))
+        return SpectrumInput(path, name, f"coefficients to degree {ds.sizes['degree'] - 1}", ds,
+                             None, [("the coefficient file's", dict(ds.attrs))])
+    return _analyse_grid_input(path, var, lmax)
+
+
+def _analyse_grid_input(path: str, var: str | None, lmax: int | None) -> SpectrumInput:
+    """Analyse a grid file's variable; also the grid's own variance per field."""
+    import numpy as np
+
+    from sphex.xr.coords import check_lmax
+    from sphex.xr.fields import analyze
+
+    da, gattrs = load_variable(path, var)
+    info = grid_of(da, path)
+    lmax = check_lmax(lmax, info.grid, False, f"variable {da.name!r}")
+    say(f"read  {path}: {da.name!r} on a {info.describe()}")
+    announce_kernel_preparation("spectrum")
+    with progress_bar(count_fields(da, info), "spectrum") as bar:
+        ds = analyze(da, lmax, progress=bar)
+    spatial = (info.lat_dim, info.lon_dim)
+    batch = [d for d in da.dims if d not in spatial]
+    values = np.asarray(da.transpose(*batch, *spatial).values, dtype=np.float64)
+    values = values[..., list(info.take)]
+    values = values.reshape((-1,) + values.shape[-2:])
+    mean = info.grid.integrate(values) / (4 * np.pi)
+    mean_square = info.grid.integrate(values ** 2) / (4 * np.pi)
+    return SpectrumInput(path, str(da.name), f"{info.describe()}, analysed to degree {lmax}", ds,
+                         mean_square - mean ** 2,
+                         [("the variable's", dict(da.attrs)), ("the file's", gattrs)])
+
+
+def _run_model(a: argparse.Namespace) -> int:
+    """``spectrum MODEL``: the degree variances of a potential model and, when the file has
+    formal errors, its error degree variances; the plot marks where they cross."""
+    import csv
+
+    from sphex.cli.potential import draw_model_spectrum, model_spectra
+    from sphex.xr.output import atomic_output
+
+    if a.isotropy or a.cross:
+        raise UserError("--isotropy and --cross take coefficient or grid files, not a model file")
+    spectra, what = model_spectra(a.inputs[0], a.lmax)
+    names = [str(v) for v in spectra["series"].values]
+    table = spectra.transpose("series", "degree").values
+    lines = [f"spectrum of {what}"]
+    if a.csv:
+        with atomic_output(a.csv, a.overwrite) as tmp:
+            with open(tmp, "w", newline="") as f:
+                w = csv.writer(f)
+                w.writerow(["degree"] + [n.replace(" ", "_") for n in names])
+                for l in range(table.shape[1]):
+                    w.writerow([l] + [f"{v:.15g}" for v in table[:, l]])
+        lines.append(f"wrote {a.csv}")
+    if a.plot:
+        draw_model_spectrum(a.plot, a.overwrite, spectra, Path(a.inputs[0]).name)
+        lines.append(f"wrote {a.plot}")
+    if not a.csv and not a.plot:
+        lines.append("degree " + " ".join(f"{n:>24}" for n in names))
+        for l in range(table.shape[1]):
+            lines.append(f"{l:6d} " + " ".join(f"{v:24.15g}" for v in table[:, l]))
+    say(*lines)
+    return 0
 
 
 def _looks_like_coefficients(path: str) -> bool:
@@ -115,86 +233,3 @@ def _looks_like_coefficients(path: str) -> bool:
         return is_coefficients(ds)
     finally:
         ds.close()
-
-
-def _power_table(power) -> tuple[list[str], Any]:
-    """Column labels and a (nlabels, ndegree) array from a degree-power DataArray."""
-    import numpy as np
-
-    extra = [d for d in power.dims if d != "degree"]
-    if not extra:
-        return ["power"], np.asarray(power.values)[None, :]
-    stacked = power.stack(__field__=extra).transpose("__field__", "degree")
-    labels = []
-    for idx in stacked["__field__"].values:
-        idx = idx if isinstance(idx, tuple) else (idx,)
-        labels.append(" ".join(f"{d}={_coordinate_text(v)}" for d, v in zip(extra, idx)))
-    return labels, np.asarray(stacked.values)
-
-
-def _coordinate_text(v: Any) -> str:
-    """A coordinate value for a column label (times to the minute)."""
-    import numpy as np
-
-    if isinstance(v, np.datetime64) or hasattr(v, "to_datetime64"):
-        return str(np.datetime_as_string(np.datetime64(v, "m")))
-    return str(v)
-
-
-def _mean_square_lines(labels: list[str], table: Any, units: str) -> list[str]:
-    """Mean square and RMS of the first fields (the sums of their spectra)."""
-    import numpy as np
-
-    lines = []
-    for lab, row in zip(labels[:LISTED_FIELDS], table[:LISTED_FIELDS]):
-        ms = float(row.sum())
-        head = f"  {lab}: " if len(labels) > 1 else "  "
-        lines.append(f"{head}mean square {ms:.6g} {units}, rms {np.sqrt(max(ms, 0.0)):.6g}"
-                     f"{' ' + _root_units(units) if units else ''}")
-    if len(labels) > LISTED_FIELDS:
-        lines.append(f"  ... and {len(labels) - LISTED_FIELDS} more fields")
-    return lines
-
-
-def _root_units(units: str) -> str:
-    if units.endswith("^2"):
-        u = units[:-2]
-        return u[1:-1] if u.startswith("(") and u.endswith(")") else u
-    return f"sqrt({units})"
-
-
-def _fit_slope(power, l1: int, l2: int) -> tuple[float, float]:
-    from sphex.spectra import spectral_slope
-
-    res = spectral_slope(power, l1, l2)
-    return float(res[0]), float(res[1])
-
-
-def _write_csv(path: str, overwrite: bool, labels: list[str], table: Any, units: str) -> None:
-    from sphex.xr.output import atomic_output
-
-    with atomic_output(path, overwrite) as tmp:
-        with open(tmp, "w", encoding="utf-8") as f:
-            f.write("# degree power: contribution of each degree to the area mean of the "
-                    f"squared field{'; units ' + units if units else ''}\n")
-            f.write("degree," + ",".join(_csv_cell(x) for x in labels) + "\n")
-            for l in range(table.shape[1]):
-                f.write(f"{l}," + ",".join(f"{v:.17g}" for v in table[:, l]) + "\n")
-
-
-def _csv_cell(s: str) -> str:
-    return '"' + s.replace('"', '""') + '"' if ("," in s or '"' in s) else s
-
-
-def _draw_power_plot(path: str, overwrite: bool, labels: list[str], table: Any, units: str,
-                     slope: tuple[int, int] | None, name: str) -> None:
-    """A log-log plot: one curve per field, or the mean and range of many fields."""
-    from sphex import plot
-
-    curves = table if len(labels) <= DRAWN_FIELDS else None
-    fig = plot.power_figure(
-        list(curves) if curves is not None else [table.mean(axis=0)],
-        labels=labels if curves is not None else [f"mean of {len(labels)} fields"],
-        band=None if curves is not None else (table.min(axis=0), table.max(axis=0)),
-        units=units or None, fit=slope, title=f"Degree power: {name}")
-    plot.save(fig, path, overwrite=overwrite)

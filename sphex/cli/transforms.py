@@ -6,17 +6,25 @@ import sys
 from pathlib import Path
 from typing import Any
 
+from sphex.cli.progress import announce_kernel_preparation
+from sphex.cli.radius import add_radius_option, choose_radius
 from sphex.cli.shared import (
     UserError, add_command, add_output_arguments, check_paths, chunk_spec, count_fields, grid_file,
-    grid_of, load_variable, positive_number, progress_bar, say, target_grid, whole_number,
-    write_field,
+    grid_of, load_variable, open_input, positive_number, progress_bar, say, target_grid,
+    whole_number, write_field,
 )
+
+#: The normalisations by their full names (sphex.legendre.NORMS; repeated here so that
+#: building the parser imports no numeric module).
+NORMS = ("orthonormal", "full", "schmidt", "unnormalized")
 
 ANALYZE_EXAMPLE = """\
 The coefficient file has dimensions degree and order (plus any extra ones such
 as time) and variables cos_coef / sin_coef; its attributes state the
-normalisation, phase convention, lmax, reference radius and units.  A file
-name ending in .txt gets a plain text table (one field only).
+normalisation, phase convention, lmax, reference radius and units.  The
+radius is --radius (km, or 1350km / 1350000m), else the input's
+planet_radius_km attribute.  A file name ending in .txt gets a plain text
+table (one field only).
 
 Fields with missing values (NaN, such as ocean-only fields) are refused unless
 --missing fit: each field is then estimated from its observed cells by least
@@ -31,7 +39,7 @@ example:
 SYNTHESIZE_EXAMPLE = """\
 example:
   sphex synthesize topo_coef.nc --grid gauss:90 -o topo_gauss.nc
-  sphex synthesize topo_coef.nc --grid original_field.nc -o back_on_my_grid.nc
+  sphex synthesize topo_coef.nc --grid data_demo/velanthe_topography.nc -o topo_back.nc
 """
 
 
@@ -43,13 +51,12 @@ def register(sub: Any) -> None:
     q.add_argument("-v", "--var", metavar="VAR", help="variable (optional if only one is gridded)")
     q.add_argument("--lmax", type=whole_number, metavar="N",
                    help="highest degree (default: the grid's exact limit)")
-    q.add_argument("--norm", default="orthonormal",
-                   choices=["orthonormal", "full", "schmidt", "unnormalized"],
+    q.add_argument("--norm", default="orthonormal", type=normalisation,
+                   metavar="{" + ",".join(NORMS) + "}",
                    help="normalisation (default orthonormal)")
     q.add_argument("--no-phase", action="store_true",
                    help="leave out the Condon-Shortley phase (-1)^m")
-    q.add_argument("--radius", type=positive_number, metavar="METRES",
-                   help="reference radius to record with the coefficients")
+    add_radius_option(q, "reference radius to record with the coefficients")
     q.add_argument("--chunks", type=chunk_spec, metavar="DIM=N",
                    help="fields per chunk when streaming a long series (default: about 8 MiB of "
                         "input per chunk along time)")
@@ -75,6 +82,18 @@ def register(sub: Any) -> None:
     q.set_defaults(func=run_synthesize)
 
 
+def normalisation(text: str) -> str:
+    """A normalisation by its full name; a clipped old name gets the full one in the message."""
+    if text in NORMS:
+        return text
+    from sphex.legendre import check_norm
+
+    try:
+        return check_norm(text)
+    except ValueError as exc:
+        raise argparse.ArgumentTypeError(str(exc)) from None
+
+
 def run_analyze(a: argparse.Namespace) -> int:
     """netCDF output streams the input chunk by chunk; a text table is analysed in memory."""
     check_paths([a.input], [a.output], a.overwrite)
@@ -84,34 +103,65 @@ def run_analyze(a: argparse.Namespace) -> int:
     if a.missing == "fit":
         return run_analyze_fit(a, phase)
     if Path(a.output).suffix.lower() not in (".txt", ".tab", ".dat"):
-        from sphex.xr.streaming import stream_analyze
-
-        r = stream_analyze(a.input, a.var, a.output, a.lmax, a.norm, a.chunks, a.scheduler,
-                           a.overwrite, condon_shortley=not a.no_phase, radius=a.radius)
-        say(f"read  {a.input}: {r.variable!r} on a {r.grid}",
-            f"wrote {a.output}: {r.fields} field{'s' if r.fields != 1 else ''}, degrees "
-            f"0..{r.lmax}, {a.norm} normalisation, {phase}")
-        return 0
+        return _analyze_streaming(a, phase)
     from sphex.xr.coefficients import to_harmonics
     from sphex.xr.coords import check_lmax
     from sphex.xr.fields import analyze
     from sphex.xr.tables import write_table
 
-    da, _ = load_variable(a.input, a.var)
+    da, gattrs = load_variable(a.input, a.var)
     info = grid_of(da, a.input)
     lmax = check_lmax(a.lmax, info.grid, False, f"variable {da.name!r}")
     n = count_fields(da, info)
     if n != 1:
         raise UserError(f"a text table holds one field but {da.name!r} has {n}; write .nc instead")
+    radius = choose_radius("analyze", a.radius, ("the variable's", da.attrs),
+                           ("the file's", gattrs))
+    say(f"read  {a.input}: {da.name!r} on a {info.describe()}")
+    announce_kernel_preparation("analyze")
     with progress_bar(n, "analyze") as bar:
         ds = analyze(da, lmax, norm=a.norm, condon_shortley=not a.no_phase,
-                     radius=a.radius, progress=bar if bar.enabled else None)
+                     radius=None if radius is None else radius.metres, progress=bar)
     write_table(to_harmonics(ds), a.output, overwrite=a.overwrite,
                 name=ds.attrs.get("field_name"))
-    say(f"read  {a.input}: {da.name!r} on a {info.describe()}",
-        f"wrote {a.output}: {n} field{'s' if n != 1 else ''}, degrees 0..{lmax}, "
-        f"{a.norm} normalisation, {phase}")
+    say(f"wrote {a.output}: {n} field, degrees 0..{lmax}, {a.norm} normalisation, {phase}",
+        _radius_line(radius))
     return 0
+
+
+def _analyze_streaming(a: argparse.Namespace, phase: str) -> int:
+    """``analyze`` to netCDF: the input is read lazily and streamed into the output."""
+    from sphex.xr.coords import choose_variable
+    from sphex.xr.streaming import stream_analyze
+
+    src = open_input(a.input)
+    try:
+        try:
+            name = choose_variable(src, a.var, a.input)
+        except ValueError as exc:
+            raise UserError(str(exc)) from None
+        info = grid_of(src[name], a.input)
+        n = count_fields(src[name], info)
+        radius = choose_radius("analyze", a.radius, ("the variable's", src[name].attrs),
+                               ("the file's", src.attrs))
+    finally:
+        src.close()
+    say(f"read  {a.input}: {name!r} on a {info.describe()}")
+    announce_kernel_preparation("analyze")
+    with progress_bar(n, "analyze") as bar:
+        r = stream_analyze(a.input, name, a.output, a.lmax, a.norm, a.chunks, a.scheduler,
+                           a.overwrite, condon_shortley=not a.no_phase,
+                           radius=None if radius is None else radius.metres, progress=bar)
+    say(f"wrote {a.output}: {r.fields} field{'s' if r.fields != 1 else ''}, degrees "
+        f"0..{r.lmax}, {a.norm} normalisation, {phase}", _radius_line(radius))
+    return 0
+
+
+def _radius_line(radius) -> str:
+    if radius is None:
+        return ("      no radius recorded: none given with --radius and no planet_radius_km "
+                "attribute")
+    return f"      {radius.describe()}, recorded in the coefficient file"
 
 
 def run_analyze_fit(a: argparse.Namespace, phase: str) -> int:
@@ -128,16 +178,19 @@ def run_analyze_fit(a: argparse.Namespace, phase: str) -> int:
     from sphex.xr.files import write_harmonics
     from sphex.xr.tables import write_table
 
-    da, _ = load_variable(a.input, a.var)
+    da, gattrs = load_variable(a.input, a.var)
     info = grid_of(da, a.input)
     lmax = check_lmax(a.lmax, info.grid, False, f"variable {da.name!r}")
     n = count_fields(da, info)
+    radius = choose_radius("analyze", a.radius, ("the variable's", da.attrs),
+                           ("the file's", gattrs))
     table = Path(a.output).suffix.lower() in (".txt", ".tab", ".dat")
     if table and n != 1:
         raise UserError(f"a text table holds one field but {da.name!r} has {n}; write .nc instead")
     with warnings.catch_warnings(record=True) as caught, progress_bar(100 * n, "fit") as bar:
         warnings.simplefilter("always", IllPosedWarning)
-        ds = analyze(da, lmax, norm=a.norm, condon_shortley=not a.no_phase, radius=a.radius,
+        ds = analyze(da, lmax, norm=a.norm, condon_shortley=not a.no_phase,
+                     radius=None if radius is None else radius.metres,
                      missing="fit", damping=a.damping or 0.0,
                      progress=bar if bar.enabled else None)
     for w in caught:
@@ -173,7 +226,14 @@ def run_synthesize(a: argparse.Namespace) -> int:
     l_file = ds.sizes["degree"] - 1
     if a.lmax is not None and a.lmax > l_file:
         raise UserError(f"--lmax {a.lmax} is above the coefficients' highest degree {l_file}")
-    out = synthesize(ds, target, lmax=a.lmax)
+    n = 1
+    for d, size in ds["cos_coef"].sizes.items():
+        n *= size if d not in ("degree", "order") else 1
+    say(f"read  {a.input}: coefficients of {ds.attrs.get('field_name', 'a field')!r} to degree "
+        f"{l_file}, {n} field{'s' if n != 1 else ''}")
+    announce_kernel_preparation("synthesize")
+    with progress_bar(n, "synthesize") as bar:
+        out = synthesize(ds, target, lmax=a.lmax, progress=bar)
     if a.name:
         out.name = a.name
     elif out.name is None:
@@ -183,6 +243,11 @@ def run_synthesize(a: argparse.Namespace) -> int:
     if used > info.grid.lmax_exact:
         note = (f" (note: degrees above {info.grid.lmax_exact} are not resolved by this grid "
                 "and alias on re-analysis)")
-    write_field(out, a.output, a.overwrite, {}, f"sphex synthesize {a.input} --grid {a.grid}")
+    attrs = {}
+    if "reference_radius" in ds.attrs:      # the radius travels with the field
+        attrs["planet_radius_km"] = float(ds.attrs["reference_radius"]) / 1e3
+    write_field(out, a.output, a.overwrite, attrs, f"sphex synthesize {a.input} --grid {a.grid}")
     say(f"wrote {a.output}: {out.name!r} to degree {used} on a {info.describe()}{note}")
     return 0
+
+

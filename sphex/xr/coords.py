@@ -19,7 +19,8 @@ import xarray as xr
 from sphex.grids import Grid
 from sphex.limits import whole_number
 
-__all__ = ["GridInfo", "find_grid", "parse_grid", "synthesis_target", "check_lmax", "one_line"]
+__all__ = ["GridInfo", "find_grid", "parse_grid", "is_grid_text", "choose_variable", "synthesis_target",
+           "check_lmax", "one_line", "GRID_WORDS"]
 
 _LAYOUTS = {"poles", "cells", "north"}
 _LAT_NAMES = {"lat", "latitude", "lats", "y", "nav_lat", "xlat", "lat_deg", "latitudes"}
@@ -201,15 +202,28 @@ def one_line(exc: BaseException) -> str:
     return " ".join(str(exc).split())
 
 
+#: Spellings of the Gauss-Legendre grid's kind in grid texts.
+GAUSS_WORDS = ("gauss", "gaussian")
+#: The first word of every grid text.
+GRID_WORDS = GAUSS_WORDS + ("equiangular",)
+_GRID_HINT = ("write gauss:LMAX (or gaussian:LMAX), equiangular:NLATxNLON:LAYOUT (latitudes "
+              "first; LAYOUT poles, cells or north) or equiangular:SPACINGdeg[:LAYOUT] (layout "
+              "poles unless given)")
+
+
 def parse_grid(spec: str) -> Grid:
     """Make a Grid from a short text form.
 
     Parameters
     ----------
     spec : str
-        ``"gauss:LMAX"`` (Gauss-Legendre grid exact to degree LMAX) or
-        ``"equiangular:NLATxNLON:LAYOUT"`` with LAYOUT ``poles``, ``cells`` or
-        ``north``.
+        ``"gauss:LMAX"`` or ``"gaussian:LMAX"`` (Gauss-Legendre grid exact to
+        degree LMAX); ``"equiangular:NLATxNLON:LAYOUT"`` with LAYOUT
+        ``poles``, ``cells`` or ``north`` (the latitude count first); or
+        ``"equiangular:SPACINGdeg"`` / ``"equiangular:SPACINGdeg:LAYOUT"``, a
+        grid spacing that divides 180 degrees, in the ``poles`` layout unless
+        another is given (``equiangular:2.5deg`` is 73 x 144 with both poles,
+        ``equiangular:2.5deg:cells`` 72 x 144 cell centres).
 
     Returns
     -------
@@ -218,7 +232,8 @@ def parse_grid(spec: str) -> Grid:
     Raises
     ------
     ValueError
-        If the text does not have one of these forms.
+        If the text does not have one of these forms, or gives fewer
+        longitudes than latitudes (the sizes swapped: NLONxNLAT).
 
     Examples
     --------
@@ -226,26 +241,111 @@ def parse_grid(spec: str) -> Grid:
     32
     >>> parse_grid("equiangular:90x180:cells").kind
     'equiangular-cells'
+    >>> parse_grid("equiangular:2.5deg").shape
+    (73, 144)
     """
-    hint = "use gauss:LMAX or equiangular:NLATxNLON:LAYOUT (LAYOUT poles, cells or north)"
-    parts = spec.strip().split(":")
+    parts = [p.strip() for p in spec.strip().split(":")]
     kind = parts[0].lower()
+    if kind in GAUSS_WORDS and len(parts) == 2 and parts[1].isdigit():
+        return Grid.gauss(int(parts[1]))
+    if kind == "equiangular" and len(parts) in (2, 3):
+        layout = parts[2].lower() if len(parts) == 3 else None
+        if layout is not None and layout not in _LAYOUTS:
+            raise ValueError(f"unknown layout {parts[2]!r} in grid {spec!r}; {_GRID_HINT}")
+        size = parts[1].lower()
+        if size.endswith(("deg", "degrees", "degree", "\u00b0")):
+            return _grid_of_spacing(spec, size, layout or "poles")
+        nlat_s, sep, nlon_s = size.partition("x")
+        if sep and nlat_s.isdigit() and nlon_s.isdigit() and layout is not None:
+            nlat, nlon = int(nlat_s), int(nlon_s)
+            if nlat >= 2 and nlon >= 1:
+                if nlon < nlat:
+                    raise ValueError(
+                        f"grid {spec!r} has fewer longitudes ({nlon}) than latitudes ({nlat}); "
+                        f"the sizes are NLATxNLON, latitudes first: did you mean "
+                        f"equiangular:{nlon}x{nlat}:{layout}?")
+                return Grid.equiangular(nlat, nlon, layout)
+    raise ValueError(f"cannot read grid {spec!r}; {_GRID_HINT}")
 
-    def whole(text: str) -> int | None:
-        text = text.strip()
-        return int(text) if text.isdigit() else None
 
-    if kind == "gauss" and len(parts) == 2 and whole(parts[1]) is not None:
-        return Grid.gauss(whole(parts[1]))
-    if kind == "equiangular" and len(parts) == 3:
-        nlat_s, _, nlon_s = parts[1].lower().partition("x")
-        nlat, nlon = whole(nlat_s), whole(nlon_s)
-        layout = parts[2].strip().lower()
-        if layout not in _LAYOUTS:
-            raise ValueError(f"unknown layout {parts[2]!r} in grid {spec!r}; {hint}")
-        if nlat is not None and nlon is not None and nlat >= 2 and nlon >= 1:
-            return Grid.equiangular(nlat, nlon, layout)
-    raise ValueError(f"cannot read grid {spec!r}; {hint}")
+def _grid_of_spacing(spec: str, size: str, layout: str) -> Grid:
+    """The equiangular grid of a spacing such as ``2.5deg`` in ``layout``."""
+    number = size.rstrip("degrees\u00b0 ")
+    try:
+        step = float(number)
+    except ValueError:
+        raise ValueError(f"cannot read the spacing {size!r} in grid {spec!r}; {_GRID_HINT}") from None
+    bands = 180.0 / step if step > 0 else float("nan")
+    if not (step > 0 and abs(bands - round(bands)) < 1e-9 and round(bands) >= 1):
+        raise ValueError(f"grid {spec!r}: a spacing of {number} degrees does not divide 180 "
+                         "degrees; choose one that does (for example 0.25deg, 1deg, 2.5deg)")
+    n = int(round(bands))
+    return Grid.equiangular(n + 1 if layout == "poles" else n, 2 * n, layout)
+
+
+def is_grid_text(spec: str) -> bool:
+    """Whether ``spec`` is meant as a grid text (its first word is a grid kind)."""
+    return ":" in spec and spec.split(":", 1)[0].strip().lower() in GRID_WORDS
+
+
+def _looks_like_field(da: xr.DataArray, bounds: set[str]) -> bool:
+    """At least two dimensions, and not the bounds of a coordinate."""
+    name = str(da.name)
+    return da.ndim >= 2 and name not in bounds and not name.endswith(("_bnds", "_bounds"))
+
+
+def choose_variable(ds: xr.Dataset, var: str | None, where: str,
+                    how_to_choose: str = "choose one with -v") -> str:
+    """The name of the variable to work on: ``var``, or the file's only usable one.
+
+    Parameters
+    ----------
+    ds : xarray.Dataset
+    var : str or None
+        The variable asked for (None: the only variable on a usable grid).
+    where : str
+        What ``ds`` is, for messages (a file name).
+    how_to_choose : str
+        How the caller names a variable, for messages.
+
+    Returns
+    -------
+    str
+
+    Raises
+    ------
+    ValueError
+        ``var`` is not in ``ds``; several variables are usable; none is. When
+        exactly one variable looks like a field (two or more dimensions, not
+        coordinate bounds), the message is that variable's own reason.
+    """
+    listed = ", ".join(map(str, ds.data_vars)) or "none"
+    if var is not None:
+        if var not in ds.data_vars:
+            raise ValueError(f"{where} has no variable {var!r} (variables: {listed})")
+        return var
+    usable, reasons = [], {}
+    for name, v in ds.data_vars.items():
+        try:
+            find_grid(v)
+        except ValueError as exc:
+            reasons[str(name)] = one_line(exc)
+            continue
+        usable.append(str(name))
+    if len(usable) == 1:
+        return usable[0]
+    if usable:
+        raise ValueError(f"{where} has {len(usable)} variables on a usable grid "
+                         f"({', '.join(usable)}); {how_to_choose}")
+    bounds = {str(c.attrs["bounds"]) for c in ds.coords.values() if "bounds" in c.attrs}
+    fields = [n for n in reasons if _looks_like_field(ds[n], bounds)]
+    if len(fields) == 1:
+        raise ValueError(f"{where}: {reasons[fields[0]]}")
+    if not fields:
+        raise ValueError(f"{where} holds no field on a latitude-longitude grid "
+                         f"(variables: {listed})")
+    raise ValueError(f"{where}: no variable is on a usable global grid: "
+                     + "; ".join(reasons[n] for n in fields))
 
 
 def _coordinate_variables(grid: Grid) -> tuple[xr.DataArray, xr.DataArray]:

@@ -11,12 +11,15 @@ result.  Coefficients are in the layout of :mod:`sphex.xr.coefficients`.
 from __future__ import annotations
 
 import math
+import warnings
+from dataclasses import replace
 from collections.abc import Callable, Mapping, Sequence
 from typing import Any
 
 import numpy as np
 import xarray as xr
 
+from sphex.grids import Grid
 from sphex.harmonics import Harmonics
 from sphex.legendre import check_norm
 from sphex.limits import check_memory, whole_number
@@ -26,6 +29,8 @@ from sphex.xr.coefficients import (
 )
 from sphex.xr.coords import GridInfo, check_lmax, find_grid, synthesis_target
 from sphex.xr.least_squares import analyze_observed, check_missing
+from sphex.xr.radius import EARTH_RADIUS_KM, radius_from_attributes
+from sphex.xr.units import squared_units
 from sphex.xr.missing import (
     FieldNames, field_positions, refuse_missing_in_block, refuse_missing_in_memory,
 )
@@ -214,15 +219,30 @@ def analyze(da: xr.DataArray, lmax: int | None = None, *, norm: str = "orthonorm
 
 
 def _synthesize_block(c: np.ndarray, s: np.ndarray, *, conv: Mapping[str, Any],
-                      lmax: int | None, info: GridInfo) -> np.ndarray:
-    """Gridded fields of a block of real-form coefficients (one apply_ufunc call)."""
+                      lmax: int | None, info: GridInfo,
+                      progress: Callable[[int, int], None] | None = None) -> np.ndarray:
+    """Gridded fields of a block of real-form coefficients (one apply_ufunc call);
+    ``progress(done, total)`` is called as groups of fields finish."""
     from sphex.transform import synthesize as _synthesize
 
     h = harmonics_from_cos_sin(c, s, conv)
     if lmax is not None and lmax < h.lmax:
         h = h.truncate(lmax)
-    out = np.asarray(_synthesize(h, info.grid))
-    return out[..., list(info.put)]
+    if not progress or not h.batch_shape:
+        out = np.asarray(_synthesize(h, info.grid))[..., list(info.put)]
+        if progress:
+            progress(1, 1)
+        return out
+    batch = tuple(h.batch_shape)
+    coef = np.asarray(h.coef).reshape((-1,) + np.asarray(h.coef).shape[-2:])
+    n = coef.shape[0]
+    out = np.empty((n, info.grid.nlat, len(info.put)))
+    step = _progress_step(n)
+    for i in range(0, n, step):
+        part = np.asarray(_synthesize(h.replace(coef=coef[i:i + step]), info.grid))
+        out[i:i + step] = part[..., list(info.put)]
+        progress(min(i + step, n), n)
+    return out.reshape(batch + out.shape[-2:])
 
 
 def _source_attributes(ds: xr.Dataset) -> dict[str, Any]:
@@ -234,7 +254,8 @@ def _source_attributes(ds: xr.Dataset) -> dict[str, Any]:
     return out
 
 
-def synthesize(ds: xr.Dataset | Harmonics, like: Any, *, lmax: int | None = None) -> xr.DataArray:
+def synthesize(ds: xr.Dataset | Harmonics, like: Any, *, lmax: int | None = None,
+               progress: Callable[[int, int], None] | None = None) -> xr.DataArray:
     """Gridded field(s) from coefficients.
 
     Parameters
@@ -247,6 +268,9 @@ def synthesize(ds: xr.Dataset | Harmonics, like: Any, *, lmax: int | None = None
         :class:`Grid`, or a grid text for :func:`parse_grid`.
     lmax : int, optional
         Truncate the coefficients to this degree first.
+    progress : callable, optional
+        ``progress(done, total)`` called as groups of fields finish
+        (numpy-backed coefficients only).
 
     Returns
     -------
@@ -265,7 +289,8 @@ def synthesize(ds: xr.Dataset | Harmonics, like: Any, *, lmax: int | None = None
         scaleout.task_function(_synthesize_block, ds), ds[COS], ds[SIN],
         input_core_dims=[["degree", "order"], ["degree", "order"]],
         output_core_dims=[[info.lat_dim, info.lon_dim]],
-        kwargs={"conv": conv, "lmax": None if lmax is None else int(lmax), "info": info},
+        kwargs={"conv": conv, "lmax": None if lmax is None else int(lmax), "info": info,
+                "progress": progress if isinstance(ds[COS].data, np.ndarray) else None},
         dask="parallelized", output_dtypes=[np.float64],
         dask_gufunc_kwargs={"output_sizes": {info.lat_dim: len(lat), info.lon_dim: len(lon)}},
         keep_attrs=False,
@@ -316,23 +341,36 @@ def _smoothing_weights(lmax: int, gaussian_km: float | None, cap_deg: float | No
 
 def _resynthesize_block(values: np.ndarray, pos: np.ndarray | None = None, *, info: GridInfo,
                         lmax: int, w: np.ndarray | None, out_info: GridInfo | None = None,
-                        where: FieldNames | None = None) -> np.ndarray:
+                        where: FieldNames | None = None,
+                        progress: Callable[[int, int], None] | None = None) -> np.ndarray:
     """Analyse a block of fields, weight each degree by ``w`` (if given) and synthesise
-    on ``out_info``'s grid (default the same grid)."""
+    on ``out_info``'s grid (default the same grid); ``progress(done, total)`` is called as
+    groups of fields finish."""
     from sphex.transform import analyze as _analyze, synthesize as _synthesize
 
-    v = np.ascontiguousarray(np.asarray(values)[..., list(info.take)], dtype=np.float64)
-    refuse_missing_in_block(v.reshape((-1,) + v.shape[-2:]), 0, pos, v.shape[:-2], where)
-    h = _analyze(v, info.grid, lmax=lmax)
-    if w is not None:
-        h = h.filter(w)
+    v = np.asarray(values)[..., list(info.take)]
+    batch = v.shape[:-2]
+    flat = v.reshape((-1,) + v.shape[-2:])
+    n = flat.shape[0]
     target = out_info or info
-    return np.asarray(_synthesize(h, target.grid))[..., list(target.put)]
+    out = np.empty((n, target.grid.nlat, len(target.put)))
+    step = _progress_step(n) if progress else max(n, 1)
+    for i in range(0, n, step):
+        block = np.ascontiguousarray(flat[i:i + step], dtype=np.float64)
+        refuse_missing_in_block(block, i, pos, batch, where)
+        h = _analyze(block, info.grid, lmax=lmax)
+        if w is not None:
+            h = h.filter(w)
+        out[i:i + step] = np.asarray(_synthesize(h, target.grid))[..., list(target.put)]
+        if progress:
+            progress(min(i + step, n), n)
+    return out.reshape(batch + out.shape[-2:])
 
 
 def smooth(da: xr.DataArray, *, gaussian_km: float | None = None, cap_deg: float | None = None,
            band: tuple[int, int] | None = None, weights: Sequence[float] | None = None,
-           planet_radius_km: float | None = None, lmax: int | None = None) -> xr.DataArray:
+           planet_radius_km: float | None = None, lmax: int | None = None,
+           progress: Callable[[int, int], None] | None = None) -> xr.DataArray:
     """Isotropic smoothing on the sphere, on the field's own grid.
 
     Exactly one of ``gaussian_km``, ``cap_deg``, ``band`` or ``weights``.
@@ -351,9 +389,16 @@ def smooth(da: xr.DataArray, *, gaussian_km: float | None = None, cap_deg: float
     weights : sequence of float, optional
         Per-degree weights W_l (missing degrees get 0).
     planet_radius_km : float, optional
-        Radius of the sphere, for ``gaussian_km``.
+        Radius of the sphere in km, for ``gaussian_km``.  Default: the
+        ``planet_radius_km`` attribute of ``da`` (or, when ``da`` is a
+        Dataset, of the Dataset), else Earth's mean radius 6371 km with a
+        warning that says so.  The command line reads the same attributes and
+        makes the same assumption.
     lmax : int, optional
         Degree limit of the analysis (default the grid's exact limit).
+    progress : callable, optional
+        ``progress(done, total)`` called as groups of fields finish
+        (numpy-backed input only).
 
     Returns
     -------
@@ -361,17 +406,21 @@ def smooth(da: xr.DataArray, *, gaussian_km: float | None = None, cap_deg: float
         Same shape, coordinates and attributes, float64; a ``history`` note says
         what was done.
     """
+    outer = dict(da.attrs) if isinstance(da, xr.Dataset) else {}
     da = _single_dataarray(da)
     info = find_grid(da)
     where = f"variable {da.name!r}" if da.name is not None else "the field"
     lmax = check_lmax(lmax, info.grid, False, where)
+    if gaussian_km is not None and planet_radius_km is None:
+        planet_radius_km = _default_radius_km(da.attrs, outer)
     da, pos, names = _prepare_fields(da, info)
     w, how = _smoothing_weights(lmax, gaussian_km, cap_deg, band, weights, planet_radius_km)
     out = xr.apply_ufunc(
         scaleout.task_function(_resynthesize_block, da), da, pos,
         input_core_dims=[[info.lat_dim, info.lon_dim], []],
         output_core_dims=[[info.lat_dim, info.lon_dim]],
-        kwargs={"info": info, "lmax": lmax, "w": w, "where": names},
+        kwargs={"info": info, "lmax": lmax, "w": w, "where": names,
+                "progress": progress if isinstance(da.data, np.ndarray) else None},
         dask="parallelized", output_dtypes=[np.float64], keep_attrs=True,
     )
     out = out.transpose(*da.dims)
@@ -380,13 +429,25 @@ def smooth(da: xr.DataArray, *, gaussian_km: float | None = None, cap_deg: float
     return out
 
 
+def _default_radius_km(attrs: Mapping[str, Any], outer: Mapping[str, Any]) -> float:
+    """The sphere's radius (km) from the attributes, else Earth's with a warning."""
+    found = radius_from_attributes(("the variable's", attrs), ("the Dataset's", outer))
+    if found is not None:
+        return found[0]
+    warnings.warn(f"no planet_radius_km given and none in the attributes: assumed Earth's mean "
+                  f"radius {EARTH_RADIUS_KM:g} km; pass planet_radius_km= for another sphere",
+                  UserWarning, stacklevel=3)
+    return EARTH_RADIUS_KM
+
+
 def append_history(attrs: Mapping[str, Any], line: str) -> str:
     """The ``history`` attribute of ``attrs`` with ``line`` added at the end."""
     old = str(attrs.get("history", "")).strip()
     return f"{old}\n{line}" if old else line
 
 
-def regrid(da: xr.DataArray, like: Any, *, lmax: int | None = None) -> xr.DataArray:
+def regrid(da: xr.DataArray, like: Any, *, lmax: int | None = None,
+           progress: Callable[[int, int], None] | None = None) -> xr.DataArray:
     """Spectral regridding of a field onto another grid.
 
     Parameters
@@ -396,13 +457,21 @@ def regrid(da: xr.DataArray, like: Any, *, lmax: int | None = None) -> xr.DataAr
     like : DataArray, Dataset, Grid or str
         Target grid (see :func:`synthesize`).
     lmax : int, optional
-        Degree limit; default the smaller exact limit of the two grids.
+        Degree limit; default the smaller exact limit of the two grids.  It may
+        exceed the target's exact limit (the values at the target's points
+        are right; re-analysing that grid would alias the degrees above it).
+    progress : callable, optional
+        ``progress(done, total)`` called as groups of fields finish
+        (numpy-backed input only).
 
     Returns
     -------
     xarray.DataArray
         On the target grid, with the non-spatial coordinates and attributes of
-        ``da``.
+        ``da``.  For a target given as a :class:`Grid` or a grid text, the
+        latitude and longitude keep the source's names and attributes
+        (``latitude``/``longitude`` stay so); a target given by coordinates
+        brings its own.
     """
     da = _single_dataarray(da)
     info = find_grid(da)
@@ -418,12 +487,17 @@ def regrid(da: xr.DataArray, like: Any, *, lmax: int | None = None) -> xr.DataAr
         scaleout.task_function(_resynthesize_block, da), da, pos,
         input_core_dims=[[info.lat_dim, info.lon_dim], []],
         output_core_dims=[[tmp_lat, tmp_lon]],
-        kwargs={"info": info, "lmax": lmax, "w": None, "out_info": tinfo, "where": names},
+        kwargs={"info": info, "lmax": lmax, "w": None, "out_info": tinfo, "where": names,
+                "progress": progress if isinstance(da.data, np.ndarray) else None},
         dask="parallelized", output_dtypes=[np.float64],
         dask_gufunc_kwargs={"output_sizes": {tmp_lat: len(lat), tmp_lon: len(lon)}},
         keep_attrs=True,
     )
     out = out.drop_vars([k for k, v in out.coords.items() if set(v.dims) & src_dims], errors="ignore")
+    if isinstance(like, (str, Grid)):
+        lat, lon = _source_named(lat, da[info.lat_name]), _source_named(lon, da[info.lon_name])
+        tinfo = replace(tinfo, lat_dim=info.lat_dim, lon_dim=info.lon_dim, lat_name=info.lat_name,
+                        lon_name=info.lon_name)
     out = out.rename({tmp_lat: tinfo.lat_dim, tmp_lon: tinfo.lon_dim})
     out = out.assign_coords({tinfo.lat_name: lat, tinfo.lon_name: lon})
     out.name = da.name
@@ -432,6 +506,18 @@ def regrid(da: xr.DataArray, like: Any, *, lmax: int | None = None) -> xr.DataAr
         da.attrs, f"sphex regrid: {info.grid.kind} {info.grid.nlat}x{info.grid.nlon} -> "
         f"{tinfo.grid.kind} {tinfo.grid.nlat}x{tinfo.grid.nlon}, degrees 0..{lmax}")
     return out
+
+
+#: Coordinate attributes that describe the source's values and do not carry over.
+_VALUE_ATTRIBUTES = ("bounds", "valid_min", "valid_max", "valid_range", "actual_range")
+
+
+def _source_named(new: Any, source: xr.DataArray) -> xr.Variable:
+    """The new coordinate values on the source coordinate's dimension, with the source's
+    attributes over the new ones (CF units and standard name)."""
+    attrs = dict(getattr(new, "attrs", {}))
+    attrs.update({k: v for k, v in source.attrs.items() if k not in _VALUE_ATTRIBUTES})
+    return xr.Variable(source.dims, np.asarray(new.values, dtype=np.float64), attrs)
 
 
 # ----------------------------------------------------------------------------
@@ -454,11 +540,6 @@ def _spectrum_block(c: np.ndarray, s: np.ndarray, *, conv: Mapping[str, Any],
     from sphex import spectra
 
     return np.asarray(getattr(spectra, func)(harmonics_from_cos_sin(c, s, conv)), dtype=np.float64)
-
-
-def _squared_units(units: str) -> str:
-    """``m`` -> ``m^2``; ``m s-1`` -> ``(m s-1)^2``."""
-    return f"({units})^2" if any(ch in units for ch in " /*.^") else f"{units}^2"
 
 
 def degree_power(obj: xr.Dataset | xr.DataArray | Harmonics, lmax: int | None = None, *,
@@ -500,5 +581,5 @@ def degree_power(obj: xr.Dataset | xr.DataArray | Harmonics, lmax: int | None = 
     p.name = "degree_power" if kind == "power" else f"degree_{kind}"
     p.attrs = {"long_name": text.format(f=ds.attrs.get("field_name", "field"))}
     if units:
-        p.attrs["units"] = _squared_units(units) if squared else units
+        p.attrs["units"] = squared_units(units) if squared else units
     return p

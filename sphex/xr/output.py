@@ -34,7 +34,27 @@ _PARTIAL = re.compile(r"\.pid(\d+)@([A-Za-z0-9_-]*)\.[A-Za-z0-9_]+" + re.escape(
 
 
 class OutputExistsError(FileExistsError):
-    """The output file exists and the caller did not ask to replace it."""
+    """The output file exists and the caller did not ask to replace it.
+
+    The message names Python's ``overwrite=True``; :meth:`shell_message`
+    gives the command line's wording (``--overwrite``).
+    """
+
+    def __init__(self, path: str | os.PathLike, appeared: bool = False) -> None:
+        self.path = str(path)
+        self.appeared = bool(appeared)
+        super().__init__(self._message("overwrite=True"))
+
+    def __reduce__(self) -> tuple:
+        return (type(self), (self.path, self.appeared))
+
+    def _message(self, how: str) -> str:
+        what = "appeared while sphex was working" if self.appeared else "exists"
+        return f"output {self.path!r} {what}; pass {how} to replace it"
+
+    def shell_message(self) -> str:
+        """The message in the command line's words."""
+        return self._message("--overwrite")
 
 
 def _host() -> str:
@@ -93,9 +113,7 @@ def check_output_path(path: str | os.PathLike, overwrite: bool = False) -> Path:
     if p.is_dir():
         raise IsADirectoryError(f"output {str(p)!r} is a directory; give a file name")
     if p.exists() and not overwrite:
-        raise OutputExistsError(
-            f"output {str(p)!r} exists; pass --overwrite (overwrite=True) to replace it"
-        )
+        raise OutputExistsError(p)
     parent = p.parent if str(p.parent) else Path(".")
     if not parent.is_dir():
         raise FileNotFoundError(
@@ -247,15 +265,10 @@ def atomic_output(path: str | os.PathLike, overwrite: bool = False) -> Iterator[
             try:
                 os.link(tmp, final)
             except FileExistsError:
-                raise OutputExistsError(
-                    f"output {str(final)!r} appeared while sphex was working; "
-                    "pass --overwrite (overwrite=True) to replace it"
-                ) from None
+                raise OutputExistsError(final, appeared=True) from None
             except OSError:  # file systems without hard links
                 if final.exists():
-                    raise OutputExistsError(
-                        f"output {str(final)!r} exists; pass --overwrite to replace it"
-                    ) from None
+                    raise OutputExistsError(final) from None
                 os.replace(tmp, final)
     finally:
         with contextlib.suppress(FileNotFoundError):

@@ -14,12 +14,12 @@ import math
 import os
 import sys
 import time
-from collections.abc import Hashable, Mapping, Sequence
+from collections.abc import Callable, Hashable, Mapping, Sequence
 from dataclasses import dataclass
 from pathlib import Path
 from typing import Any, TextIO
 
-from sphex.xr.coords import check_lmax, find_grid
+from sphex.xr.coords import check_lmax, choose_variable, find_grid
 from sphex.xr.fields import analyze
 from sphex.xr.files import netcdf_encoding, open_netcdf, write_failure, write_netcdf
 from sphex.xr.output import atomic_output, check_distinct, check_output_path
@@ -94,24 +94,6 @@ class StreamResult:
 def _open_lazily(path: str | os.PathLike) -> Any:
     # cache=False: reading a slice never loads (and keeps) the whole variable
     return open_netcdf(path, cache=False)
-
-
-def _pick_variable(ds: Any, var: str | None, path: str) -> str:
-    listed = ", ".join(map(str, ds.data_vars)) or "none"
-    if var is None:
-        names = []
-        for k, v in ds.data_vars.items():
-            try:
-                find_grid(v)
-            except ValueError:
-                continue
-            names.append(str(k))
-        if len(names) != 1:
-            raise ValueError(f"{path}: choose a variable with -v (variables: {listed})")
-        return names[0]
-    if var not in ds.data_vars:
-        raise ValueError(f"{path} has no variable {var!r} (variables: {listed})")
-    return var
 
 
 def _check_chunk_memory(info: Any, lmax: int, fields_per_chunk: int, chunks: int) -> None:
@@ -205,6 +187,24 @@ class _ProgressReporter:
         if self.enabled and self.shown and self.tty:
             self.stream.write("\n")
             self.stream.flush()
+
+
+class _CallbackReporter:
+    """Progress handed to a ``(done, total)`` callback in fields."""
+
+    def __init__(self, total: int, callback: Callable[[int, int], None]) -> None:
+        self.total = max(int(total), 1)
+        self.callback = callback
+        self.done = -1
+
+    def fraction(self, frac: float) -> None:
+        done = int(min(max(frac, 0.0), 1.0) * self.total)
+        if done != self.done:
+            self.done = done
+            self.callback(done, self.total)
+
+    def close(self) -> None:
+        pass
 
 
 def _local_progress_callback(reporter: _ProgressReporter) -> Any:
@@ -322,7 +322,8 @@ def stream_analyze(input: str | os.PathLike, var: str | None, output: str | os.P
                    lmax: int | None = None, norm: str = "orthonormal",
                    chunks: Mapping[str, int] | str | None = None, scheduler: str | None = None,
                    overwrite: bool = False, *, condon_shortley: bool = True,
-                   radius: float | None = None, progress: bool = True,
+                   radius: float | None = None,
+                   progress: bool | Callable[[int, int], None] = True,
                    history: str | None = None) -> StreamResult:
     """Analyse a large netCDF variable block by block into a coefficient file.
 
@@ -359,8 +360,11 @@ def stream_analyze(input: str | os.PathLike, var: str | None, output: str | os.P
     condon_shortley : bool
     radius : float, optional
         Reference radius (metres) to record.
-    progress : bool
-        Report progress on stderr for runs longer than two seconds.
+    progress : bool or callable
+        True: report progress on stderr for runs longer than two seconds (a
+        bar on a terminal, a line every tenth in logs); False: nothing; a
+        callable: ``progress(done, total)`` is called with the fields done
+        so far instead (the command line draws its own bar with it).
     history : str, optional
         The ``history`` attribute of the output (default: the equivalent
         ``sphex analyze`` command).
@@ -385,7 +389,7 @@ def stream_analyze(input: str | os.PathLike, var: str | None, output: str | os.P
     path = str(input)
     src = _open_lazily(path)
     try:
-        name = _pick_variable(src, var, path)
+        name = choose_variable(src, var, path)
         da = src[name]
         try:
             info = find_grid(da)
@@ -414,7 +418,7 @@ def stream_analyze(input: str | os.PathLike, var: str | None, output: str | os.P
 
 def write_lazily(ds: Any, output: str | os.PathLike, overwrite: bool = False, *,
                  scheduler: str | None = None, fields: int = 1, label: str = "sphex",
-                 progress: bool = True, source: str | os.PathLike | None = None) -> None:
+                 progress: Any = True, source: str | os.PathLike | None = None) -> None:
     """Compute a lazy (dask-backed) Dataset chunk by chunk into a netCDF file, atomically.
 
     The streaming writer of :func:`stream_analyze`, for any lazy Dataset made
@@ -436,11 +440,16 @@ def write_lazily(ds: Any, output: str | os.PathLike, overwrite: bool = False, *,
         Number of fields the run does (the progress counts them).
     label : str
         Text in front of the progress display.
-    progress : bool
+    progress : bool or callable
+        Show sphex's own progress display on stderr, or call ``progress(done, total)``
+        as fields finish (the command line's bar).
     source : path-like, optional
         The input file, named when reading it fails during the write.
     """
-    reporter = _ProgressReporter(fields, label, enabled=progress)
+    if callable(progress):
+        reporter: Any = _CallbackReporter(fields, progress)
+    else:
+        reporter = _ProgressReporter(fields, label, enabled=bool(progress))
     try:
         if scheduler:
             _write_distributed(ds, output, overwrite, scheduler, reporter,
