@@ -16,7 +16,6 @@ solvers and the result object are in :mod:`sphex.least_squares`.
 from __future__ import annotations
 
 import math
-import numbers
 
 import numpy as np
 import scipy.linalg

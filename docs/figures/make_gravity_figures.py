@@ -42,10 +42,10 @@ def main() -> None:
                                       lmax=cross - 1)
     mgal = anomaly["anomaly"] * 1e5
     mgal.attrs = {"units": "mGal", "long_name": "gravity anomaly"}
-    plot.save(plot.map_figure(geoid["geoid"], cmap="relief", center=0.0,
+    plot.save(plot.map_figure(geoid["geoid"], cmap="strata", center=0.0,
                               title=f"Velanthe (invented): geoid height, degrees 0-{model.lmax}"),
               IMAGES / "velanthe_geoid.png", overwrite=True)
-    plot.save(plot.map_figure(mgal, cmap="relief", center=0.0,
+    plot.save(plot.map_figure(mgal, cmap="strata", center=0.0,
                               title=f"Velanthe (invented): gravity anomaly, degrees 0-{cross - 1}"),
               IMAGES / "velanthe_gravity_anomaly.png", overwrite=True)
     g = geoid["geoid"]

@@ -1,6 +1,6 @@
 """matplotlib figures in the project's own look.
 
-``figures``  the house style, spectra, maps, the degree-order picture, saving
+``figures``  the house style, spectra, maps, the isotropy picture, saving
 ``winds``    kinetic-energy spectra and maps of winds and currents
 ``local``    cap outlines and localised spectra
 ``models``   spectra of potential models with their formal errors
@@ -11,12 +11,13 @@ Every figure function is re-exported here: ``from sphex import plot``, then
 from __future__ import annotations
 
 from sphex.plot.figures import (
-    PALETTE, heat, map_figure, power_figure, relief, save, triangle_figure,
+    PALETTE, ember, isotropy_figure, map_figure, power_figure, save, strata, tilt,
 )
 from sphex.plot.local import cap_outline, draw_cap, local_spectrum_figure
 from sphex.plot.models import model_spectrum_figure
 from sphex.plot.winds import energy_figure, wind_map_figure
 
-__all__ = ["PALETTE", "relief", "heat", "power_figure", "map_figure", "triangle_figure", "save",
+__all__ = ["PALETTE", "strata", "ember", "tilt", "power_figure", "map_figure", "isotropy_figure",
+           "save",
            "energy_figure", "wind_map_figure", "cap_outline", "draw_cap", "local_spectrum_figure",
            "model_spectrum_figure"]

@@ -31,7 +31,7 @@ import xarray as xr
 
 from sphex.xr import scaleout
 from sphex.xr.coords import GridInfo, find_grid
-from sphex.xr.fields import _squared_units
+from sphex.xr.units import squared_units
 from sphex.xr.missing import (
     FieldNames, field_positions, refuse_missing_in_block, refuse_missing_in_memory,
 )
@@ -148,7 +148,7 @@ def derived_units(units: str | None) -> dict[str, str | None]:
         return {"component": units, "per_length": "s-1", "potential": "m2 s-1", "energy": "m2 s-2"}
     group = f"({units})" if any(ch in units for ch in "/*") else units
     return {"component": units, "per_length": f"{group} m-1", "potential": f"m {group}",
-            "energy": _squared_units(units)}
+            "energy": squared_units(units)}
 
 
 def flow_medium(u: xr.DataArray, v: xr.DataArray, medium: str | None) -> str | None:
