@@ -14,7 +14,8 @@ from collections.abc import Sequence
 from typing import Any, NoReturn
 
 from sphex.cli import (
-    bench, demo, fields, flow, inspection, localized, points, potential, spectrum, transforms,
+    bench, demo, fields, flow, inspection, localized, points, potential, report, spectrum,
+    transforms,
 )
 from sphex.cli.shared import FORMATTER, PROG, UserError, report_error
 
@@ -37,6 +38,7 @@ commands:
               kinetic-energy spectrum of winds or currents
   sample      coefficients or a model at the points of a CSV file (stations, tracks)
   inspect     what grid each variable is on, or why it is not usable
+  report      one self-contained HTML page: maps, spectra, key numbers, comparison
   gravity     gravity model file -> grid of geoid, anomalies, deflections
               (not certified for surveying, engineering or navigation)
   geomagnetic geomagnetic model file -> grid of field components, D and I
@@ -54,7 +56,7 @@ start here:
 
 #: The subcommand modules, in the order their subcommands are listed.
 COMMAND_MODULES = (transforms, spectrum, localized, fields, flow, potential, points, inspection,
-                   demo, bench)
+                   report, demo, bench)
 
 
 class OneLineParser(argparse.ArgumentParser):
