@@ -44,10 +44,17 @@ def variance_degrees(power: np.ndarray, shares: tuple[float, ...] = SHARES) -> l
 
 
 def default_slope_range(power: np.ndarray) -> tuple[int, int] | None:
-    """Degrees of the power-law fit: from about a tenth of lmax (at least 2) to nine tenths,
-    within the positive part of the spectrum; None when fewer than 4 degrees remain."""
+    """Degrees of the power-law fit: from about a tenth of the top degree (at least 2) to nine
+    tenths of it, within the positive part of the spectrum.  The top degree is the last one
+    above 1e-10 of the largest power (beyond it a band-limited field has only rounding
+    noise).  None when fewer than 4 degrees remain."""
     p = np.asarray(power, dtype=float)
-    lmax = p.size - 1
+    if p.size < 2:
+        return None
+    live = np.nonzero(p[1:] > 1e-10 * np.nanmax(p[1:]))[0]
+    if live.size == 0:
+        return None
+    lmax = int(live[-1]) + 1
     l1 = max(2, int(round(lmax / 10)))
     l2 = lmax - max(1, int(round(lmax / 10))) if lmax >= 10 else lmax
     while l2 > l1 and not p[l2] > 0:
