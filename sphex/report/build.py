@@ -297,7 +297,7 @@ def build_report(path: str | os.PathLike, *, variable: str | None = None,
     version = _version()
     what = "model" if s.kind == "model" else ("mean of the steps" if s.steps else "field")
     page = Page(title=f"sphex report: {s.label}",
-                lead=f"{s.long_name or 'field'} \u2014 {s.describe}",
+                lead=s.long_name or "field",
                 provenance=_provenance(s, top, version), command=command or "(built from Python)")
     sl = (k, fit[0], fit[1]) if fit is not None else None
     tick()

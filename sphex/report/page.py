@@ -106,8 +106,7 @@ footer { margin-top: 2.5rem; font-size: .85rem; color: #5a5c66; border-top: 1px 
 @media (max-width: 40rem) {
   body { padding: .8rem .6rem 2rem; font-size: 15px; }
   h1 { font-size: 1.35rem; }
-  dl.provenance { grid-template-columns: 1fr; }
-  dl.provenance dd { margin-bottom: .3rem; }
+  dl.provenance { font-size: .85rem; gap: .1rem .6rem; }
   .pair { grid-template-columns: 1fr; }
   th, td { padding: .25rem .3rem; }
 }
