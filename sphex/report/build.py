@@ -183,7 +183,7 @@ def _comparison_section(s: Subject, other: Subject, h1: Harmonics, h2: Harmonics
                                        title="Degree power of both fields"), "both spectra")
     corr = _image(correlation_figure(r, sig, title="Correlation per degree"),
                   "correlation per degree")
-    rat = _image(ratio_figure(ratio, label=f"power of {other.label} / {s.label}",
+    rat = _image(ratio_figure(ratio, label="power ratio, other / this field",
                               title="Ratio of the spectra"), "ratio of the spectra")
     diff = _values_on(s, Harmonics(a.coef - b.coef, units=a.units), grid)
     lat, lon = np.asarray(grid.lat), np.asarray(grid.lon)
@@ -200,7 +200,8 @@ def _comparison_section(s: Subject, other: Subject, h1: Harmonics, h2: Harmonics
                                  "about 2/sqrt(2l+1), common practice).")
             + f'<p>Degrees outside the band: <strong data-key="degrees_above">{above}</strong> '
               f"of {lmax}.</p>"
-            + _figure_html(rat, "Ratio of the spectra, other over this field.")
+            + _figure_html(rat, f"Ratio of the spectra: power of {other.label} over power of "
+                                f"{s.label}, per degree.")
             + _figure_html(dimg, "This field minus the other, synthesised from the difference "
                                  f"of the coefficients to degree {lmax}."))
 
