@@ -353,3 +353,22 @@ def test_page_renders_in_a_browser(page, tmp_path, width, height):
     if os.environ.get("SPHEX_KEEP_SCREENSHOTS"):
         shutil.copy(shot, os.path.join(os.environ["SPHEX_KEEP_SCREENSHOTS"],
                                        f"report_{width}x{height}.png"))
+
+
+def test_comparison_refuses_fields_in_other_units(files, tmp_path):
+    ds = xr.open_dataset(files / "other.nc").load()
+    ds["t2m"].attrs["units"] = "degC"
+    ds.to_netcdf(tmp_path / "celsius.nc")
+    with pytest.raises(ValueError, match="convert one"):
+        build_report(files / "series.nc", compare=tmp_path / "celsius.nc")
+
+
+def test_wide_grids_are_drawn_thinned():
+    from sphex.report.build import MAP_COLUMNS, _thinned
+
+    lat, lon = np.linspace(-89.9, 89.9, 1200), np.arange(2400) * 0.15
+    v, la, lo = _thinned(np.zeros((3, 1200, 2400)), lat, lon)
+    # 2400 columns over at most 1080: every third cell
+    assert v.shape == (3, 400, 800) and lo.size <= MAP_COLUMNS and lo[1] - lo[0] == pytest.approx(0.45)
+    v, la, lo = _thinned(np.zeros((90, 180)), lat[:90], lon[:180])
+    assert v.shape == (90, 180)

@@ -226,3 +226,13 @@ def test_non_harmonics_input_is_refused():
     h = Harmonics(np.zeros((3, 3)))
     with pytest.raises(ValueError, match="h2"):
         cross_power(h, [1, 2])
+
+
+def test_correlation_significance_checks_its_arguments():
+    from sphex.spectra import correlation_significance
+
+    r = correlation_significance(3, level=0.99)
+    assert np.isnan(r[0]) and np.all(np.diff(r[1:]) < 0) and np.all(r[1:] < 1)
+    for bad in (dict(lmax=-1), dict(lmax=2.5), dict(lmax=3, level=1.0), dict(lmax=3, level=0)):
+        with pytest.raises(ValueError):
+            correlation_significance(**bad)

@@ -40,8 +40,23 @@ def _provenance(s: Subject, lmax: int, version: str) -> list[tuple[str, str]]:
     return rows
 
 
+#: Maps draw at most this many columns (every k-th cell of larger grids): the images are
+#: about 800 pixels wide, so more would only make the page heavier.
+MAP_COLUMNS = 1080
+
+
+def _thinned(values: np.ndarray, lat: np.ndarray, lon: np.ndarray
+             ) -> tuple[np.ndarray, np.ndarray, np.ndarray]:
+    """Every k-th row and column of a grid wider than :data:`MAP_COLUMNS`, for drawing."""
+    k = -(-lon.size // MAP_COLUMNS)
+    if k <= 1:
+        return values, lat, lon
+    return values[..., ::k, ::k], lat[::k], lon[::k]
+
+
 def _map_images(s: Subject, values: np.ndarray, lat: np.ndarray, lon: np.ndarray,
                 what: str) -> str:
+    values, lat, lon = _thinned(values, lat, lon)
     cmap = "relief" if np.nanmin(values) < 0 < np.nanmax(values) else "heat"
     center = 0.0 if cmap == "relief" else None
     label = s.long_name or s.variable or "field"
@@ -125,8 +140,9 @@ def _smoothed_section(s: Subject, h: Harmonics, grid: Any, lmax: int, vmin: floa
     cmap = "relief" if center == 0.0 else "heat"
     for r in smoothing_radii(lmax, radius):
         w = gaussian(r, lmax, radius)
-        values = _values_on(s, h.filter(w), grid)
-        img = _image(plot.map_figure(values, np.asarray(grid.lat), np.asarray(grid.lon),
+        values, lat, lon = _thinned(_values_on(s, h.filter(w), grid), np.asarray(grid.lat),
+                                    np.asarray(grid.lon))
+        img = _image(plot.map_figure(values, lat, lon,
                                      units=s.units, cmap=cmap, center=center, vmin=vmin,
                                      vmax=vmax, title=f"Gaussian, half weight at {r:g} km"),
                      f"field smoothed at {r:g} km")
@@ -185,14 +201,15 @@ def _comparison_section(s: Subject, other: Subject, h1: Harmonics, h2: Harmonics
                   "correlation per degree")
     rat = _image(ratio_figure(ratio, label="power ratio, other / this field",
                               title="Ratio of the spectra"), "ratio of the spectra")
-    diff = _values_on(s, Harmonics(a.coef - b.coef, units=a.units), grid)
-    lat, lon = np.asarray(grid.lat), np.asarray(grid.lon)
+    diff, lat, lon = _thinned(_values_on(s, Harmonics(a.coef - b.coef, units=a.units), grid),
+                              np.asarray(grid.lat), np.asarray(grid.lon))
     dimg = _image(plot.map_figure(diff, lat, lon, units=s.units, cmap="relief", center=0.0,
                                   label=f"{s.label} minus {other.label}",
                                   title="Difference of the fields"), "map of the difference")
     above = int(np.sum(np.abs(r[1:]) > sig[1:]))
+    means = " (the means of their steps)" if s.steps or other.steps else ""
     return (f"<p>{html.escape(s.label)} against {html.escape(other.label)} "
-            f"({html.escape(other.describe)}), degrees 0..{lmax}.</p>"
+            f"({html.escape(other.describe)}){means}, degrees 0..{lmax}.</p>"
             + _figure_html(spectra, "Degree power of both fields.")
             + _figure_html(corr, "Correlation per degree (sphex.spectra.correlation). The shaded "
                                  "band holds 95 % of the correlations of two uncorrelated "
@@ -284,6 +301,9 @@ def build_report(path: str | os.PathLike, *, variable: str | None = None,
         if other.kind == "model" or s.kind == "model":
             raise ValueError("--compare takes two grid or coefficient files, not model files; "
                              "compare models with 'sphex spectrum'")
+        if s.units and other.units and s.units != other.units:
+            raise ValueError(f"{path} is in {s.units!r} and {compare} in {other.units!r}; "
+                             "convert one to the other's units before comparing")
     tick = _Steps(8, progress)
     h = s.mean_harmonics
     p = degree_power(h) if s.kind != "model" else _model_variances(s)
