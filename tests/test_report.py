@@ -272,6 +272,9 @@ def test_model_file_input(tmp_path):
     assert int(float(r.numbers["crossing"])) == crossing_degree(dv, ev)
     assert float(r.numbers["variance"]) == pytest.approx(dv[1:].sum(), rel=1e-12)
     assert float(r.numbers["gm"]) == model.gm
+    # the default fit stops below the crossing (35): degrees 0..34, so 34/10 = 3 to 34 - 3 = 31
+    assert crossing_degree(dv, ev) == 35 and "fit over degrees 3-31" in text
+    assert float(r.numbers["slope"]) == pytest.approx(spectral_slope(dv, 3, 31)[0], rel=1e-12)
 
 
 def test_significance_level_against_reference_and_monte_carlo():

@@ -310,7 +310,7 @@ def build_report(path: str | os.PathLike, *, variable: str | None = None,
     top = p.size - 1
     if top < 1:
         raise ValueError(f"{path}: a report needs degrees above 0; give --lmax of 1 or more")
-    fit = slope if slope is not None else default_slope_range(p)
+    fit = slope if slope is not None else default_slope_range(p[: _signal_degrees(s, p)])
     if fit is not None and not 1 <= fit[0] < fit[1] <= top:
         raise ValueError(f"--slope {fit[0]}:{fit[1]} must lie within degrees 1..{top}")
     k = spectral_slope(p, *fit)[0] if fit is not None else None
@@ -359,6 +359,17 @@ def build_report(path: str | os.PathLike, *, variable: str | None = None,
     tick()
     tick()
     return page.render(version)
+
+
+def _signal_degrees(s: Subject, p: np.ndarray) -> int:
+    """Number of degrees (from 0) a default fit may use: all, or for a model with standard
+    deviations those below the degree where the errors reach the signal."""
+    if s.kind != "model" or s.model.sigmas is None:
+        return p.size
+    from sphex.potential import crossing_degree, error_degree_variances
+
+    cross = crossing_degree(p, error_degree_variances(s.model)[: p.size])
+    return p.size if cross is None else int(cross)
 
 
 def _model_variances(s: Subject) -> np.ndarray:
