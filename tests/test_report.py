@@ -216,20 +216,28 @@ def _run(*args, cwd):
 
 
 def test_command_line_on_the_page_reproduces_its_numbers(files):
-    res = _run("report", "series.nc", "-v", "tsurf", "--slope", "2:20", "-o", "a.html",
-               cwd=files)
+    res = _run("report", "series.nc", "-v", "tsurf", "--slope", "2:20", "--bands", "1:3,4:30",
+               "-o", "a.html", cwd=files)
     assert res.returncode == 0, res.stderr
     first = read_page((files / "a.html").read_text(encoding="utf-8"))
-    assert first.command == "sphex report series.nc -v tsurf --slope 2:20 -o a.html"
+    assert first.command == "sphex report series.nc -v tsurf --slope 2:20 --bands 1:3,4:30 -o a.html"
     p, _, _, _ = _api_numbers(files / "series.nc", "tsurf")
     assert float(first.numbers["slope"]) == pytest.approx(spectral_slope(p, 2, 20)[0], rel=1e-12)
+    # band power of the first and last steps
+    da = xr.open_dataset(files / "series.nc")["tsurf"].load()
+    steps = degree_power(sxr.to_harmonics(sxr.analyze(da)))
+    for (a, b) in ((1, 3), (4, 30)):
+        assert float(first.numbers[f"band_{a}_{b}_first"]) == pytest.approx(
+            steps[0, a:b + 1].sum(), rel=1e-12)
+        assert float(first.numbers[f"band_{a}_{b}_last"]) == pytest.approx(
+            steps[-1, a:b + 1].sum(), rel=1e-12)
     (files / "a.html").rename(files / "a_first.html")
     words = shlex.split(first.command)
     assert words[:2] == ["sphex", "report"]
     again = _run(*words[1:], cwd=files)
     assert again.returncode == 0, again.stderr
     second = read_page((files / "a.html").read_text(encoding="utf-8"))
-    assert second.numbers == first.numbers and len(first.numbers) == 11
+    assert second.numbers == first.numbers and len(first.numbers) == 15
 
 
 def test_command_line_errors_are_one_line(files):
@@ -241,6 +249,8 @@ def test_command_line_errors_are_one_line(files):
     assert res.returncode == 2 and "--compare" in res.stderr and "Traceback" not in res.stderr
     res = _run("report", "series.nc", "--slope", "5:99", "-o", "b.html", cwd=files)
     assert res.returncode == 2 and "1..44" in res.stderr
+    res = _run("report", "series.nc", "--bands", "1:3,7:5", "-o", "b.html", cwd=files)
+    assert res.returncode == 2 and "'7:5'" in res.stderr and len(res.stderr.splitlines()) == 1
     assert not (files / "b.html").exists()
 
 
@@ -248,7 +258,9 @@ def test_coefficient_file_input(files, tmp_path):
     h = _coefficients(np.random.default_rng(3), 1)
     single = sphex.Harmonics(h.coef[0], units="K").to(norm="full", condon_shortley=False)
     sxr.write_harmonics(single, tmp_path / "coef.nc")
-    text = build_report(tmp_path / "coef.nc", lmax=20)
+    calls = []
+    text = build_report(tmp_path / "coef.nc", lmax=20, progress=lambda d, t: calls.append((d, t)))
+    assert calls[-1] == (8, 8) and [d for d, _ in calls] == sorted(d for d, _ in calls)
     r = read_page(text)
     p = degree_power(single.truncate(20))
     assert float(r.numbers["total_power"]) == pytest.approx(p.sum(), rel=1e-12)

@@ -41,8 +41,26 @@ def register(sub: Any) -> None:
                    "grid's exact limit, or all degrees of the file)")
     q.add_argument("--slope", type=degree_range, metavar="L1:L2", help="degrees of the "
                    "power-law fit (default: from about lmax/10 to 9 lmax/10)")
+    q.add_argument("--bands", type=degree_bands, metavar="L1:L2[,L3:L4...]", help="degree "
+                   "bands whose power a series shows per step (default: three bands, split at "
+                   "lmax^(1/3) and lmax^(2/3))")
     add_output_arguments(q, "the HTML page to write")
     q.set_defaults(func=run)
+
+
+def degree_bands(text: str) -> list[tuple[int, int]]:
+    """``L1:L2[,L3:L4...]``: inclusive degree bands, each with 1 <= L1 <= L2."""
+    out = []
+    for part in text.split(","):
+        a, sep, b = part.strip().partition(":")
+        try:
+            l1, l2 = int(a), int(b)
+        except ValueError:
+            raise argparse.ArgumentTypeError(f"{part!r} is not L1:L2 (two whole numbers)") from None
+        if not sep or not 1 <= l1 <= l2:
+            raise argparse.ArgumentTypeError(f"{part!r} must be L1:L2 with 1 <= L1 <= L2")
+        out.append((l1, l2))
+    return out
 
 
 def command_line(a: argparse.Namespace) -> str:
@@ -51,6 +69,7 @@ def command_line(a: argparse.Namespace) -> str:
     for flag, value in (("-v", a.var), ("--compare", a.compare), ("-v2", a.var2),
                         ("--lmax", a.lmax),
                         ("--slope", f"{a.slope[0]}:{a.slope[1]}" if a.slope else None),
+                        ("--bands", ",".join(f"{x}:{y}" for x, y in a.bands) if a.bands else None),
                         ("-o", a.output)):
         if value is not None:
             words += [flag, str(value)]
@@ -69,7 +88,8 @@ def run(a: argparse.Namespace) -> int:
     check_output_path(a.output, a.overwrite)
     with Progress(8, "report") as bar:
         page = build_report(a.input, variable=a.var, compare=a.compare, compare_variable=a.var2,
-                            lmax=a.lmax, slope=a.slope, command=command_line(a), progress=bar)
+                            lmax=a.lmax, slope=a.slope, bands=a.bands, command=command_line(a),
+                            progress=bar)
     write_report(page, a.output, a.overwrite)
     say(f"wrote {a.output} ({len(page.encode('utf-8')) / 1e6:.1f} MB, self-contained HTML)")
     return 0

@@ -151,7 +151,7 @@ def _smoothed_section(s: Subject, h: Harmonics, grid: Any, lmax: int, vmin: floa
     return "".join(parts) + "</div>"
 
 
-def _series_section(s: Subject, h: Harmonics) -> str:
+def _series_section(s: Subject, h: Harmonics, bands: list[tuple[int, int]] | None) -> str:
     p = degree_power(s.harmonics)
     pm = degree_power(h)
     first, last = s.steps[0], s.steps[-1]
@@ -165,7 +165,7 @@ def _series_section(s: Subject, h: Harmonics) -> str:
                                    band_label=f"range over {len(s.steps)} steps",
                                    title="Degree power along the series"),
                  "spectra of the first and last steps and of the mean")
-    bands = degree_bands(p.shape[-1] - 1)
+    bands = bands or degree_bands(p.shape[-1] - 1)
     band_power = np.array([p[:, a:b + 1].sum(axis=-1) for a, b in bands])
     steps = np.arange(len(s.steps))
     fig = band_power_figure(steps, bands, band_power, units=_squared(s.units) or None,
@@ -173,8 +173,10 @@ def _series_section(s: Subject, h: Harmonics) -> str:
                             title="Power in degree bands")
     img2 = _image(fig, "power in degree bands along the series")
     rows = "".join(f"<tr><th>degrees {a}-{b}</th>"
-                   f'<td class="num">{band_power[i, 0]:.4g}</td>'
-                   f'<td class="num">{band_power[i, -1]:.4g}</td></tr>'
+                   f'<td class="num" data-key="band_{a}_{b}_first" '
+                   f'data-value="{float(band_power[i, 0])!r}">{band_power[i, 0]:.4g}</td>'
+                   f'<td class="num" data-key="band_{a}_{b}_last" '
+                   f'data-value="{float(band_power[i, -1])!r}">{band_power[i, -1]:.4g}</td></tr>'
                    for i, (a, b) in enumerate(bands))
     table = (f"<table><thead><tr><th>band</th><th>first step</th><th>last step</th></tr></thead>"
              f"<tbody>{rows}</tbody></table>")
@@ -261,6 +263,7 @@ def _model_rows(s: Subject, p: np.ndarray, slope: tuple[float, int, int] | None,
 def build_report(path: str | os.PathLike, *, variable: str | None = None,
                  compare: str | os.PathLike | None = None, compare_variable: str | None = None,
                  lmax: int | None = None, slope: tuple[int, int] | None = None,
+                 bands: list[tuple[int, int]] | None = None,
                  command: str = "", progress: Progress | None = None) -> str:
     """The HTML report of a field, a coefficient file or a model, as text.
 
@@ -279,6 +282,9 @@ def build_report(path: str | os.PathLike, *, variable: str | None = None,
         Degree limit (default: the grid's exact limit or the file's degrees).
     slope : (int, int), optional
         Degrees of the power-law fit (default :func:`default_slope_range`).
+    bands : list of (int, int), optional
+        Degree bands (inclusive) whose power a series shows per step (default
+        :func:`degree_bands`).
     command : str
         The command line that made the page, shown in its header.
     progress : callable, optional
@@ -314,6 +320,9 @@ def build_report(path: str | os.PathLike, *, variable: str | None = None,
     if fit is not None and not 1 <= fit[0] < fit[1] <= top:
         raise ValueError(f"--slope {fit[0]}:{fit[1]} must lie within degrees 1..{top}")
     k = spectral_slope(p, *fit)[0] if fit is not None else None
+    for a, b in bands or ():
+        if not 1 <= a <= b <= top:
+            raise ValueError(f"--bands {a}:{b} must lie within degrees 1..{top}")
     degrees = variance_degrees(p)
     version = _version()
     what = "model" if s.kind == "model" else ("mean of the steps" if s.steps else "field")
@@ -347,7 +356,7 @@ def build_report(path: str | os.PathLike, *, variable: str | None = None,
                                                       float(np.nanmax(values)))
         tick()
         if s.steps:
-            page.sections["series"] = _series_section(s, h)
+            page.sections["series"] = _series_section(s, h, bands)
         tick()
         if other is not None:
             page.sections["comparison"] = _comparison_section(s, other, h, other.mean_harmonics,
