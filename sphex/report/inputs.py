@@ -47,6 +47,8 @@ class Subject:
     radius_km : float or None
         Planet or reference radius, when the input states one.
     model : PotentialModel or None
+    long_name : str
+        What the field is (its ``long_name``), for titles and colour bars.
     """
 
     path: str
