@@ -69,9 +69,10 @@ def files(tmp_path_factory):
 def test_help_lists_every_command_and_subcommand_help_has_an_example(capsys):
     r = run("--help")
     assert r.returncode == 0
-    for name in ("analyze", "synthesize", "spectrum", "smooth", "regrid", "inspect", "demo", "bench"):
+    for name in ("analyze", "synthesize", "spectrum", "smooth", "regrid", "inspect", "report", "demo",
+                 "bench"):
         assert name in r.stdout
-    for name in ("analyze", "synthesize", "spectrum", "smooth", "regrid", "inspect", "demo"):
+    for name in ("analyze", "synthesize", "spectrum", "smooth", "regrid", "inspect", "report", "demo"):
         with pytest.raises(SystemExit) as e:        # in-process: argparse help exits 0
             cli.main([name, "--help"])
         assert e.value.code == 0
