@@ -23,7 +23,7 @@ from __future__ import annotations
 
 from sphex.report.build import build_report, write_report
 from sphex.report.inputs import Subject, read_subject
-from sphex.report.numbers import (
+from sphex.report.key_numbers import (
     SHARES, default_slope_range, degree_bands, smoothing_radii, variance_degrees,
 )
 from sphex.report.page import SECTIONS, degree_order_picture, png_size

@@ -15,7 +15,7 @@ from sphex.plot.overview import (
     ratio_figure,
 )
 from sphex.report.inputs import Progress, Subject, read_subject
-from sphex.report.numbers import (
+from sphex.report.key_numbers import (
     EARTH_RADIUS_KM, SHARES, _squared, default_slope_range, degree_bands, field_rows,
     smoothing_radii, variance_degrees,
 )

@@ -32,8 +32,9 @@ def variance_degrees(power: np.ndarray, shares: tuple[float, ...] = SHARES) -> l
 
     Examples
     --------
+    >>> import numpy as np
     >>> variance_degrees(np.array([5.0, 1.0, 1.0, 2.0]), (0.5, 0.9))
-    [3, 3]
+    [2, 3]
     """
     p = np.asarray(power, dtype=float)[1:]
     total = p.sum()
