@@ -399,6 +399,7 @@ def run(out_dir: str | os.PathLike = "sphex-demo-output", overwrite: bool = Fals
         "wind_vorticity": "winds_vorticity.png",
         "wind_potential": "winds_velocity_potential.png",
         "wind_energy": "winds_energy_spectrum.png",
+        "report": "velanthe_topography_report.html",
     }
     if out.exists() and not out.is_dir():
         raise NotADirectoryError(f"--out {str(out)!r} is a file; give a directory")
@@ -443,6 +444,7 @@ def _make_products(out: Path, names: dict[str, str], overwrite: bool,
     rows, checks = _topography_products(data, out, names, overwrite)
     rows += _temperature_products(data, out, names, overwrite, progress)
     rows += _wind_products(data, out, names, overwrite)
+    rows += _report_product(data, out, names, overwrite)
     w = max(len(k) for k, _ in rows)
     for k, v in rows:
         print(f"  {k:<{w}}  {v}")
@@ -590,3 +592,18 @@ def _wind_products(data: Path, out: Path, names: dict[str, str],
         ("energy spectrum", f"{out / names['wind_energy']}  (rotational {100 * share:.0f} % of the "
                             f"kinetic energy; its slope over degrees 8-{lmax}: {slope:.2f})"),
     ]
+
+
+def _report_product(data: Path, out: Path, names: dict[str, str],
+                    overwrite: bool) -> list[tuple[str, str]]:
+    """The HTML report of the topography (what ``sphex report`` writes); the summary row."""
+    import shlex
+
+    from sphex.report import build_report, write_report
+
+    target = out / names["report"]
+    command = shlex.join(["sphex", "report", str(data / TOPO_FILE), "-v", "topography",
+                          "-o", str(target)] + (["--overwrite"] if overwrite else []))
+    write_report(build_report(data / TOPO_FILE, variable="topography", command=command),
+                 target, overwrite)
+    return [("report", f"{target}  (one self-contained HTML page; open it in a browser)")]

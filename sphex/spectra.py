@@ -32,6 +32,7 @@ __all__ = [
     "cumulative_power",
     "cross_power",
     "correlation",
+    "correlation_significance",
     "spectral_slope",
     "kinetic_energy",
     "IsotropyTable",
@@ -233,6 +234,57 @@ def correlation(h1: Harmonics, h2: Harmonics) -> np.ndarray:
     with np.errstate(invalid="ignore", divide="ignore"):
         r = np.where(den > 0, x / np.where(den > 0, den, 1.0), np.nan)
     return np.clip(r, -1.0, 1.0)
+
+
+def correlation_significance(lmax: int, level: float = 0.95) -> np.ndarray:
+    r"""Per-degree correlation that two uncorrelated isotropic fields exceed with chance ``1 - level``.
+
+    Parameters
+    ----------
+    lmax : int
+        Highest degree (>= 0).
+    level : float
+        Confidence level in (0, 1), two-sided: ``|r_l|`` of two independent
+        fields exceeds the returned value with probability ``1 - level``.
+
+    Returns
+    -------
+    numpy.ndarray
+        Shape ``(lmax+1,)``; NaN at degree 0 (one coefficient: ``|r_0| = 1``
+        always).
+
+    Notes
+    -----
+    The degree-l correlation of :func:`correlation` is the cosine of the
+    angle between the two vectors of the ``n = 2l+1`` real coefficients of
+    degree l.  When one field's coefficients are independent and identically
+    distributed normal numbers (an isotropic Gaussian field), that vector
+    points in a uniformly random direction, so :math:`r_l^2 \sim
+    \mathrm{Beta}(1/2, (n-1)/2)` whatever the other field is, and
+
+    .. math:: r_c = \sqrt{I^{-1}_{\mathrm{level}}(1/2, (n-1)/2)},
+
+    the inverse regularised incomplete beta function.  For large l this tends
+    to :math:`z/\sqrt{2l+1}` with :math:`z = 1.96` at 95 %, the common rule
+    of thumb :math:`2/\sqrt{2l+1}`.
+
+    Examples
+    --------
+    >>> from sphex.spectra import correlation_significance
+    >>> r = correlation_significance(400)
+    >>> round(float(r[400] * (2 * 400 + 1) ** 0.5), 2)
+    1.96
+    """
+    from scipy.special import betaincinv
+
+    if int(lmax) != lmax or lmax < 0:
+        raise ValueError(f"lmax must be a whole number >= 0 (got {lmax!r})")
+    if not 0.0 < float(level) < 1.0:
+        raise ValueError(f"level must lie between 0 and 1, such as 0.95 (got {level!r})")
+    n = 2.0 * np.arange(int(lmax) + 1) + 1.0
+    out = np.full(n.size, np.nan)
+    out[1:] = np.sqrt(betaincinv(0.5, (n[1:] - 1.0) / 2.0, float(level)))
+    return out
 
 
 def spectral_slope(power: np.ndarray, lmin: int, lmax: int) -> tuple:

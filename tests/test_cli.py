@@ -69,9 +69,10 @@ def files(tmp_path_factory):
 def test_help_lists_every_command_and_subcommand_help_has_an_example(capsys):
     r = run("--help")
     assert r.returncode == 0
-    for name in ("analyze", "synthesize", "spectrum", "smooth", "regrid", "inspect", "demo", "bench"):
+    for name in ("analyze", "synthesize", "spectrum", "smooth", "regrid", "inspect", "report", "demo",
+                 "bench"):
         assert name in r.stdout
-    for name in ("analyze", "synthesize", "spectrum", "smooth", "regrid", "inspect", "demo"):
+    for name in ("analyze", "synthesize", "spectrum", "smooth", "regrid", "inspect", "report", "demo"):
         with pytest.raises(SystemExit) as e:        # in-process: argparse help exits 0
             cli.main([name, "--help"])
         assert e.value.code == 0
@@ -215,9 +216,12 @@ def test_demo_writes_its_products(tmp_path):
     names = sorted(p.name for p in out.iterdir())
     for n in ("velanthe_topography_coef.nc", "topography_spectrum.png", "topography_smoothed_200km.png",
               "topography_smoothed_200km.nc", "topography_isotropy.png", "velanthe_wind_flow.nc",
-              "winds_vorticity.png", "winds_velocity_potential.png", "winds_energy_spectrum.png"):
+              "winds_vorticity.png", "winds_velocity_potential.png", "winds_energy_spectrum.png",
+              "velanthe_topography_report.html"):
         assert n in names
         assert str(out / n) in r.stdout
+    report = (out / "velanthe_topography_report.html").read_text(encoding="utf-8")
+    assert '<section id="maps">' in report and "sphex report " in report and "-v topography" in report
     ds = sxr.open_coefficients(out / "velanthe_topography_coef.nc")
     assert ds.attrs["lmax"] == 89 and ds.attrs["reference_radius"] == 1.35e6
     with xr.open_dataset(out / "velanthe_wind_flow.nc") as flow:

@@ -342,3 +342,12 @@ def test_isotropy_table_errors():
         isotropy_table(h, fraction_bins=0)
     with pytest.raises(ValueError, match="degrees above 0"):
         isotropy_table(Harmonics(np.ones((1, 1), dtype=complex)))
+
+def test_correlation_significance_checks_its_arguments():
+    from sphex.spectra import correlation_significance
+
+    r = correlation_significance(3, level=0.99)
+    assert np.isnan(r[0]) and np.all(np.diff(r[1:]) < 0) and np.all(r[1:] < 1)
+    for bad in (dict(lmax=-1), dict(lmax=2.5), dict(lmax=3, level=1.0), dict(lmax=3, level=0)):
+        with pytest.raises(ValueError):
+            correlation_significance(**bad)

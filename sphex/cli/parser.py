@@ -16,8 +16,8 @@ from collections.abc import Sequence
 from typing import Any, NoReturn
 
 from sphex.cli import (
-    bench, demo, drawing, fields, flow, inspection, localized, points, potential, spectrum,
-    transforms,
+    bench, demo, drawing, fields, flow, inspection, localized, points, potential, report,
+    spectrum, transforms,
 )
 from sphex.cli.shared import (
     DEBUG_VARIABLE, EXIT_INTERRUPTED, FORMATTER, PROG, add_debug_argument, one_line_warnings,
@@ -49,7 +49,7 @@ line on stderr says what and what to do; nothing is written); 70 a bug in sphex
 
 #: The subcommand modules, in the order their subcommands are listed.
 COMMAND_MODULES = (transforms, spectrum, localized, fields, flow, potential, points, drawing,
-                   inspection, demo, bench)
+                   inspection, report, demo, bench)
 
 
 class CommandListFormatter(FORMATTER):
