@@ -259,12 +259,14 @@ MUTATIONS: list[Mutation] = [
        "        if l <= lmax:\n            lo = mid + 1", "        if l > lmax:\n            lo = mid + 1", T_TRANS),
     _m("recursion-live-test-at-equator", REC,
        "scaled_phase(m, lmax, x[J - 1], s[J - 1],", "scaled_phase(m, lmax, x[0], s[0],", T_TRANS,
-       equivalent="only speed: every latitude is then taken as live, and the kernels mask lanes "
-                  "still in scaled range out of the sums; results equal to 1e-13 on the transform tests"),
+       equivalent="only speed: every latitude is taken as live and the kernels mask lanes still in "
+                  "scaled range out of the sums; measured: syntheses identical, analyses within 1.7e-16 "
+                  "relative (summation order) at lmax 1023, 511 (batch of 3) and 255 (north layout)"),
     _m("recursion-range-check-every-64-degrees", REC,
        "CHECK_EVERY = 16", "CHECK_EVERY = 64", T_TRANS,
-       equivalent="a lane that turns plain is unmasked up to 48 degrees later, when its values are "
-                  "still below 2^-300 x 2^48 relative (growth per degree < 2): far under rounding"),
+       equivalent="a lane that turns plain joins the sums up to 48 degrees later, while its values are "
+                  "still below 2^-300 x 2^48 of the order's; measured: fields, coefficients and gradients "
+                  "identical at lmax 1023, 511 (batch of 3), 255 (north layout) and 100 (gradient)"),
     # -------------------------------------------------------- kernels: gauss
     _m("gauss-weight-without-sin-squared", GAUSS,
        "weights[i] = 2.0 * s * s / (n * n * d * d)", "weights[i] = 2.0 / (n * n * d * d)", T_GRIDS),
@@ -291,8 +293,9 @@ MUTATIONS: list[Mutation] = [
        "coef[kk, l, m] += complex(outr[kk, l], im)", T_TRANS),
     _m("scalar-analysis-order-zero-imaginary-kept", SCAL,
        "im = outi[kk, l] if m > 0 else 0.0", "im = outi[kk, l]", T_TRANS,
-       equivalent="the zero-frequency term of a real FFT has an imaginary part of exactly 0 and "
-                  "its scale is real, so the kept part is 0: coefficients bit-identical"),
+       equivalent="the zero-frequency term of a real FFT has an imaginary part of exactly 0 and its "
+                  "scale is real, so the kept part is 0; measured: coefficients identical at lmax 1023, "
+                  "511 (batch of 3) and 255"),
     _m("scalar-synthesis-keeps-scaled-sums", SCAL,
        "nscaled -= 1\n                        for kk in range(K):\n                            for t in range(4):\n"
        "                                g[kk, t, j] = 0.0",
@@ -305,8 +308,10 @@ MUTATIONS: list[Mutation] = [
     _m("scalar-synthesis-order-zero-imaginary-kept", SCAL,
        "                if mo == 0:\n                    vn = complex(vn.real, 0.0)\n"
        "                    vs = complex(vs.real, 0.0)\n", "", T_TRANS,
-       equivalent="the inverse real FFT ignores the imaginary part of the zero frequency and the "
-                  "folded path keeps the real part only: fields bit-identical"),
+       equivalent="the inverse real FFT ignores the imaginary part of the zero frequency and the folded "
+                  "path keeps the real part only; measured: fields and gradients identical with and "
+                  "without imaginary a_l0 of 1e-11; the kernel compiled without the guard rounds one "
+                  "gradient differently by 4e-16 relative"),
 ]
 
 
