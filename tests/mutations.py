@@ -145,6 +145,8 @@ MUTATIONS: list[Mutation] = [
        "self.coef * w[..., :, None]", "self.coef * w[..., None, :]", T_HARM),
     _m("harmonics-truncate-off-by-one", HARM,
        "n = min(lmax, self.lmax) + 1", "n = min(lmax, self.lmax)", T_HARM),
+    _m("harmonics-negative-order-not-conjugated", HARM,
+       "value = sign * np.conj(value)", "value = sign * value", T_HARM),
     _m("harmonics-order-zero-check-reads-degree-zero", HARM,
        "im = np.abs(coef[..., :, 0].imag)", "im = np.abs(coef[..., 0, :].imag)", T_HARM),
     _m("harmonics-unnormalized-overflow-unchecked", HARM,
@@ -176,6 +178,11 @@ MUTATIONS: list[Mutation] = [
        "north = np.negative(out[0], out=out[0])", "north = out[0]", T_TRANS),
     _m("transform-gradient-raising-weight", TRANS,
        "(l + m) * (l - m + 1), 0.0)", "(l + m) * (l - m), 0.0)", T_TRANS),
+    _m("transform-gradient-east-without-i", TRANS,
+       "1j * np.arange(1, L1), 1)", "np.arange(1, L1), 1)", T_TRANS),
+    _m("transform-exact-limit-off-by-one", TRANS,
+       "if lmax > grid.lmax_exact and not allow_aliasing:", "if lmax > grid.lmax_exact + 1 and not allow_aliasing:",
+       T_TRANS),
     # ------------------------------------------------------------- spectra
     _m("spectra-orders-counted-once", SPEC,
        "prod[..., :, 0] + 2.0 * prod[..., :, 1:].sum(axis=-1)) / _FOUR_PI",
@@ -192,6 +199,8 @@ MUTATIONS: list[Mutation] = [
        "np.cumsum(degree_power(h), axis=-1)", "np.cumsum(degree_power(h), axis=0)", T_SPEC),
     _m("spectra-correlation-without-sqrt", SPEC,
        "den = np.sqrt(p1 * p2)", "den = p1 * p2", T_SPEC),
+    _m("spectra-common-degrees-use-the-larger", SPEC,
+       "lmax = min(h1.lmax, h2.lmax)", "lmax = max(h1.lmax, h2.lmax)", T_SPEC),
     _m("spectra-slope-intercept-sign", SPEC,
        "intercept = y.mean(axis=-1) - slope * xm", "intercept = y.mean(axis=-1) + slope * xm", T_SPEC),
     # ------------------------------------------------------------- filters
@@ -226,6 +235,13 @@ MUTATIONS: list[Mutation] = [
        "ratio = (h.radius / r) if", "ratio = (r / h.radius) if", T_FILT),
     _m("filters-gradient-east-not-scaled", FILT,
        "        east = east / h.radius\n", "", T_FILT),
+    _m("filters-per-degree-not-cut", FILT,
+       "        w = w[: lmax + 1]\n", "", T_FILT),
+    _m("filters-zonal-weights-not-normalised", FILT,
+       "        lam /= lam[0]\n", "", T_FILT),
+    _m("filters-continuation-overflow-unchecked", FILT,
+       "    if not np.all(np.isfinite(factor)):\n        raise ValueError(\n            f\"downward",
+       "    if False:\n        raise ValueError(\n            f\"downward", T_FILT),
     _m("filters-zonal-weights-pi-for-2pi", FILT,
        "lam *= 2.0 * np.pi", "lam *= np.pi", T_FILT),
     _m("filters-zonal-legendre-recursion", FILT,
@@ -276,7 +292,10 @@ MUTATIONS: list[Mutation] = [
     _m("gauss-polar-nodes-not-polished", GAUSS,
        "DD_NODES = 128", "DD_NODES = 0", T_GRIDS),
     _m("gauss-newton-tolerance-loose", GAUSS,
-       "if abs(dt) <= 1e-13 * t:", "if abs(dt) <= 1e-6 * t:", T_GRIDS),
+       "if abs(dt) <= 1e-13 * t:", "if abs(dt) <= 1e-6 * t:", T_GRIDS,
+       equivalent="Newton converges quadratically from Tricomi's estimate: the step that passes the "
+                  "loose test already lands on the double nearest the root, and the steps the tight "
+                  "test adds change nothing; measured: nodes and weights identical for n = 2 to 10801"),
     _m("gauss-southern-weights-not-mirrored", GAUSS,
        "weights[n - half:] = w[::-1]", "weights[n - half:] = w", T_GRIDS),
     # ------------------------------------------------------- kernels: scalar
@@ -351,9 +370,12 @@ def _cache_state() -> dict[str, tuple[int, int]]:
     return {p.name: (p.stat().st_mtime_ns, p.stat().st_size) for p in cache.glob("*.nb*")}
 
 
+PYTEST_OPTIONS: list[str] = []  # extra options for every pytest run (see --without-slow)
+
+
 def _pytest(tests, env: dict, timeout: float) -> tuple[int | None, str]:
     """Run pytest on ``tests``; (return code or None on timeout, combined output)."""
-    cmd = [sys.executable, "-m", "pytest", "-x", "-q", "-p", "no:cacheprovider", *tests]
+    cmd = [sys.executable, "-m", "pytest", "-x", "-q", "-p", "no:cacheprovider", *PYTEST_OPTIONS, *tests]
     proc = subprocess.Popen(cmd, cwd=ROOT, env=env, stdout=subprocess.PIPE,
                             stderr=subprocess.STDOUT, text=True, start_new_session=True)
     try:
@@ -399,7 +421,7 @@ def run_one(mutation: Mutation, timeout: float) -> tuple[str, str, float]:
     seconds = time.monotonic() - start
     if hashlib.sha256(path.read_bytes()).hexdigest() != digest:
         raise RuntimeError(f"{mutation.path} was not restored: check it with git diff")
-    if _cache_state() != cache_before:
+    if kernels and _cache_state() != cache_before:  # other runs may add entries for unmutated kernels
         raise RuntimeError(f"the numba cache in {KERNELS}__pycache__ changed during {mutation.name}: "
                            "delete that directory before running tests")
     if code is None:
@@ -448,7 +470,11 @@ def main(argv: list[str] | None = None) -> int:
     parser.add_argument("--no-baseline", action="store_true",
                         help="skip the run of the selected tests on the unmutated code")
     parser.add_argument("--markdown", action="store_true", help="print the result table in Markdown")
+    parser.add_argument("--without-slow", action="store_true",
+                        help="deselect the tests marked slow (to see which bugs only they catch)")
     args = parser.parse_args(argv)
+    if args.without_slow:
+        PYTEST_OPTIONS[:] = ["-m", "not slow"]
 
     names = [m.name for m in MUTATIONS]
     duplicates = sorted({n for n in names if names.count(n) > 1})
