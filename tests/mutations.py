@@ -450,10 +450,11 @@ def table(rows: list[tuple[Mutation, str, str, float]], markdown: bool) -> str:
     head = ("mutation", "module", "result", "caught by / why equivalent")
     body = [(m.name, m.path.removeprefix("sphex/"), result, by or (m.equivalent or ""))
             for m, result, by, _ in rows]
-    if markdown:
+    if markdown:  # test ids as docs/validation.md writes them (file::test), so they are checked there
         lines = ["| " + " | ".join(head) + " |", "|" + "---|" * len(head)]
-        lines += ["| " + " | ".join(f"`{c}`" if i in (0, 1) or (i == 3 and "::" in c) else c
-                                    for i, c in enumerate(r)) + " |" for r in body]
+        lines += ["| " + " | ".join(f"`{c}`" if i in (0, 1) else f"`{c.removeprefix('tests/')}`"
+                                    if i == 3 and "::" in c else c for i, c in enumerate(r)) + " |"
+                  for r in body]
         return "\n".join(lines)
     widths = [max(len(r[i]) for r in body + [head]) for i in range(3)]
     fmt = "  ".join(f"{{:<{w}}}" for w in widths) + "  {}"
