@@ -152,7 +152,7 @@ def mp_ortho_column_dtheta(m: int, lmax: int, theta: float, dps: int = 45):
     """d Lambda_lm / d theta (orthonormal, no phase) for l = m..lmax, in mpmath.
 
     From the identity (1-x^2) dP_l^m/dx = -l x P_l^m + (l+m) P_{l-1}^m
-    (DLMF 14.10.5 form, common practice), written for the normalised functions:
+    (DLMF 14.10.5 form, from memory; common practice), written for the normalised functions:
     dLambda_l/dtheta = (l x Lambda_l - sqrt((2l+1)/(2l-1) (l-m)(l+m)) Lambda_{l-1}) / sin(theta).
     """
     with mpmath.workdps(dps):
@@ -276,7 +276,7 @@ def mp_gauss_node_weight(n: int, x0: float, dps: int = 30) -> tuple[float, float
     """Gauss-Legendre node and weight near ``x0`` for n nodes, in mpmath.
 
     Newton's method on P_n (three-term recurrence, common practice) started from x0,
-    weight w = 2 (1 - x^2) / (n P_{n-1}(x))^2 (DLMF 3.5.19 form). Returns doubles.
+    weight w = 2 (1 - x^2) / (n P_{n-1}(x))^2 (DLMF 3.5.19 form, from memory). Returns doubles.
     """
     with mpmath.workdps(dps):
         x = mpmath.mpf(float(x0))
@@ -294,3 +294,20 @@ def mp_gauss_node_weight(n: int, x0: float, dps: int = 30) -> tuple[float, float
         pn, pn1 = p_pair(x)
         w = 2 * (1 - x * x) / (n * pn1) ** 2
         return float(x), float(w)
+
+
+def mp_gauss_colatitude(n: int, x0: float, dps: int = 40) -> float:
+    """Colatitude arccos(x) of the Gauss-Legendre node near ``x0`` for n nodes, in mpmath.
+
+    The node is found as in :func:`mp_gauss_node_weight` and its colatitude taken at ``dps``
+    digits, so that nodes next to the poles (where x = cos(theta) rounds away the relative
+    precision of theta) are resolved to full double precision. Returns a double.
+    """
+    with mpmath.workdps(dps):
+        x = mpmath.mpf(float(x0))
+        for _ in range(5):
+            p0, p1 = mpmath.mpf(1), x
+            for k in range(2, n + 1):
+                p0, p1 = p1, ((2 * k - 1) * x * p1 - (k - 1) * p0) / k
+            x -= p1 / (n * (x * p1 - p0) / (x * x - 1))
+        return float(mpmath.acos(x))

@@ -47,7 +47,7 @@ def test_round_trip_gauss_high_degree(rng):
     assert h.lmax == lmax and h.norm == "orthonormal" and h.condon_shortley is True
     err = rel_err(h.coef, coef)
     print(f"Gauss round trip lmax={lmax}: {err:.2e}")
-    assert err <= 1e-12, err
+    assert err <= 1e-12, err  # measured 3.2e-13
 
 
 @pytest.mark.parametrize("layout,lmax,nlat", [
@@ -63,7 +63,7 @@ def test_round_trip_equiangular_at_lmax_exact(rng, layout, lmax, nlat):
     h = analyze(synthesize(Harmonics(coef), grid), grid)
     err = rel_err(h.coef, coef)
     print(f"{layout} nlat={nlat} round trip lmax={lmax}: {err:.2e}")
-    assert err <= 1e-11, err
+    assert err <= 5e-13, err  # measured 7.8e-14 at lmax 255, 1.1e-14 at lmax 64
 
 
 @pytest.mark.parametrize("condon_shortley", [True, False])
@@ -78,12 +78,13 @@ def test_round_trip_every_convention(rng, norm, condon_shortley):
     h = Harmonics(coef, norm=norm, condon_shortley=condon_shortley)
     back = analyze(synthesize(h, grid), grid, norm=norm, condon_shortley=condon_shortley)
     assert back.norm == norm and back.condon_shortley == condon_shortley
-    assert rel_err(back.coef * scale, coef * scale) < 1e-12
+    assert rel_err(back.coef * scale, coef * scale) < 2e-14  # measured 2.2e-15
 
 
 # --------------------------------------------------------------------------------------
 # Against fields built outside sphex
 # --------------------------------------------------------------------------------------
+@pytest.mark.reference
 @pytest.mark.parametrize("condon_shortley", [True, False])
 @pytest.mark.parametrize("norm", NORMS)
 def test_synthesis_matches_scipy_sum(rng, norm, condon_shortley):
@@ -98,9 +99,10 @@ def test_synthesis_matches_scipy_sum(rng, norm, condon_shortley):
     coef = random_coef(lmax, rng)
     f = synthesize(Harmonics(coef, norm=norm, condon_shortley=condon_shortley), grid)
     ref = complex_form_field(coef, grid.colat, np.radians(grid.lon), norm, condon_shortley)
-    assert rel_err(f, ref) < 1e-13
+    assert rel_err(f, ref) < 1e-13  # measured up to 9.8e-15 (unnormalized, no phase)
 
 
+@pytest.mark.reference
 @pytest.mark.slow
 def test_synthesis_of_high_degree_terms_against_mpmath():
     # source: mpmath 45-digit recursion (tests/_reference.mp_ortho_column) for Lambda_lm at
@@ -133,6 +135,7 @@ def test_synthesis_of_high_degree_terms_against_mpmath():
         assert np.all(err[[2, 3, 4]] < 1e-12), (l, m, err)
 
 
+@pytest.mark.reference
 @pytest.mark.parametrize("kind", ["gauss", "poles", "cells", "north"])
 def test_analysis_of_scipy_harmonics(kind):
     # source: scipy.special.sph_harm_y (orthonormal, Condon-Shortley phase).
@@ -149,12 +152,14 @@ def test_analysis_of_scipy_harmonics(kind):
             h = analyze(part(y), grid)
             expected = np.zeros((lmax + 1, lmax + 1), complex)
             expected[l, m] = value
-            np.testing.assert_allclose(h.coef, expected, rtol=0, atol=1e-13)
+            # 5e-15 absolute on coefficients of size <= 1 (measured 9.6e-16 over all cases)
+            np.testing.assert_allclose(h.coef, expected, rtol=0, atol=5e-15)
             # without the phase the same field has a_lm multiplied by (-1)^m
             h2 = analyze(part(y), grid, condon_shortley=False)
-            np.testing.assert_allclose(h2.coef[l, m], (-1) ** m * value, rtol=0, atol=1e-13)
+            np.testing.assert_allclose(h2.coef[l, m], (-1) ** m * value, rtol=0, atol=5e-15)
 
 
+@pytest.mark.reference
 def test_analysis_of_cos_colat():
     # cos(theta) = sqrt(4 pi / 3) Y_10 (common practice)
     grid = Grid.equiangular(33, 64, "poles")
@@ -170,6 +175,7 @@ def test_analysis_of_cos_colat():
     assert abs(analyze(np.cos(th) + 0 * ph, grid, norm="unnormalized").coef[1, 0] - 1.0) < 1e-14
 
 
+@pytest.mark.reference
 def test_constant_field():
     # 1 = sqrt(4 pi) Y_00 (common practice)
     grid = Grid.gauss(31)
@@ -181,6 +187,7 @@ def test_constant_field():
 # --------------------------------------------------------------------------------------
 # Longitude origin other than 0
 # --------------------------------------------------------------------------------------
+@pytest.mark.reference
 @pytest.mark.parametrize("start", [-180.0, 7.5, -172.5])
 def test_longitude_origin_respected(start):
     # Y_11 (orthonormal, Condon-Shortley) = -sqrt(3/(8 pi)) sin(theta) e^{i phi} (common practice), so
@@ -205,14 +212,20 @@ def test_longitude_origin_respected(start):
     np.testing.assert_allclose(synthesize(Harmonics(coef), grid), np.sin(th) * np.cos(ph), rtol=0, atol=1e-14)
 
 
+@pytest.mark.reference
 def test_south_to_north_rows(rng):
-    # rows stored south to north: same coefficients as the north-to-south grid
+    # rows stored south to north: the synthesis is the field at those rows, against the direct
+    # scipy.special sum (tests/_reference.complex_form_field) at the flipped grid's colatitudes,
+    # and the analysis of the flipped field gives the coefficients back (a round trip)
     lmax = 15
     g = Grid.equiangular(32, 32, "north")
     coef = random_coef(lmax, rng)
     f = synthesize(Harmonics(coef), g)
     flipped = Grid.from_coords(g.lat[::-1], g.lon)
-    np.testing.assert_allclose(synthesize(Harmonics(coef), flipped), f[::-1], rtol=0, atol=1e-13)
+    assert flipped.colat[0] > flipped.colat[-1]  # the first row is the southernmost
+    ref = complex_form_field(coef, flipped.colat, np.radians(flipped.lon), "orthonormal", True)
+    assert rel_err(synthesize(Harmonics(coef), flipped), ref) < 1e-13  # measured 4e-15
+    np.testing.assert_array_equal(synthesize(Harmonics(coef), flipped), f[::-1])
     assert rel_err(analyze(f[::-1], flipped).coef, coef) < 1e-13
 
 
@@ -257,6 +270,7 @@ def test_batch_axes_match_one_by_one(rng):
     assert rel_err(ab.coef, coef) < 1e-12
 
 
+@pytest.mark.reference
 @pytest.mark.parametrize("kind", ["gauss", "poles", "cells", "north"])
 @pytest.mark.parametrize("batch", [(9,), (4, 5), (17,)])
 def test_large_batches_match_one_by_one(rng, kind, batch):
@@ -342,6 +356,7 @@ def test_non_contiguous_input(rng):
     np.testing.assert_array_equal(strided, before)
 
 
+@pytest.mark.reference
 def test_low_degree_field_on_fine_oversampled_grid(rng):
     # a degree-6 field synthesised on a grid that holds far more degrees, with extra
     # longitudes (nlon = 4 lmax_exact + 3), against the direct scipy.special sum
@@ -357,6 +372,7 @@ def test_low_degree_field_on_fine_oversampled_grid(rng):
     assert rel_err(h.coef, expected) < 1e-13
 
 
+@pytest.mark.reference
 def test_synthesis_beyond_grid_limit_is_the_series_at_the_nodes(rng):
     # synthesis evaluates the series at the grid points even when the grid could not analyse
     # that degree (orders above nlon/2 fold onto the longitudes); reference: direct scipy sum
@@ -367,6 +383,7 @@ def test_synthesis_beyond_grid_limit_is_the_series_at_the_nodes(rng):
         assert rel_err(f, ref) < 1e-13
 
 
+@pytest.mark.reference
 @pytest.mark.parametrize("grid, lmax", [(Grid.gauss(20), 21), (Grid.equiangular(24, 24, "cells"), 12),
                                          (Grid.equiangular(25, 48, "poles"), 24),
                                          (Grid.equiangular(24, 48, "north"), 24)])
@@ -434,6 +451,7 @@ def test_order_sequence_covers_each_order_once_and_balances_threads(nthreads):
 # --------------------------------------------------------------------------------------
 # Gradient and regridding
 # --------------------------------------------------------------------------------------
+@pytest.mark.reference
 def test_gradient_of_closed_form_fields():
     # derivatives by hand (common practice): east = (1/sin t) df/dphi, north = -df/dt
     grid = Grid.gauss(20)
@@ -461,17 +479,22 @@ def test_gradient_same_in_every_convention(rng):
         np.testing.assert_allclose(n, n0, rtol=0, atol=1e-12 * np.max(np.abs(n0)))
 
 
+@pytest.mark.reference
 def test_regrid_with_explicit_lmax(rng):
-    # regrid(..., lmax=L) = analysis truncated at L, synthesised on the target
+    # regrid(..., lmax=L) keeps degrees <= L of a degree-20 field: against the direct
+    # scipy.special sum of the truncated coefficients at the target nodes
+    # (tests/_reference.complex_form_field); 1e-13 (measured 3e-15)
     src, dst = Grid.gauss(20), Grid.equiangular(30, 60, "poles")
     coef = random_coef(20, rng)
     out = regrid(synthesize(Harmonics(coef), src), src, dst, lmax=6)
-    expected = synthesize(Harmonics(coef[:7, :7]), dst)
-    np.testing.assert_allclose(out, expected, rtol=0, atol=1e-12 * np.max(np.abs(expected)))
+    expected = complex_form_field(coef[:7, :7], dst.colat, np.radians(dst.lon), "orthonormal", True)
+    assert rel_err(out, expected) < 1e-13
 
 
+@pytest.mark.reference
 def test_regrid_band_limited_field_is_exact():
-    # a degree-3 field is reproduced exactly on any grid that holds degree 3
+    # a degree-3 field is reproduced exactly on any grid that holds degree 3: against the same
+    # closed-form trigonometric polynomial evaluated at the target nodes (common practice)
     def field(grid):
         th, ph = mesh(grid)
         return np.sin(th) ** 2 * np.cos(th) * np.cos(2 * ph - 0.4) + np.cos(th) + 0.5

@@ -5,6 +5,7 @@ import pytest
 from sphex.grids import equiangular_nodes
 
 
+@pytest.mark.reference
 @pytest.mark.parametrize("nlat", [4, 8, 32, 128])
 def test_north_layout_matches_driscoll_healy_closed_form(nlat):
     # Driscoll & Healy (1994), weights of their sampling theorem (from memory):
@@ -18,6 +19,7 @@ def test_north_layout_matches_driscoll_healy_closed_form(nlat):
     np.testing.assert_allclose(w, dh / np.sqrt(2), rtol=0, atol=1e-15)
 
 
+@pytest.mark.reference
 @pytest.mark.parametrize("nlat", [5, 16, 33])
 def test_cells_layout_matches_fejer_direct_sum(nlat):
     # Fejer's first rule (Waldvogel 2006, eq. 2.3, from memory), summed directly:
@@ -28,6 +30,7 @@ def test_cells_layout_matches_fejer_direct_sum(nlat):
     np.testing.assert_allclose(w, direct, rtol=0, atol=1e-15)
 
 
+@pytest.mark.reference
 @pytest.mark.parametrize("nlat", [5, 16, 33])
 def test_poles_layout_matches_clenshaw_curtis_direct_sum(nlat):
     # Clenshaw-Curtis weights (Waldvogel 2006, eq. 2.2, from memory), summed directly
