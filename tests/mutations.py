@@ -66,6 +66,7 @@ GRIDS = "sphex/grids.py"
 LEG = "sphex/legendre.py"
 HARM = "sphex/harmonics.py"
 TRANS = "sphex/transform.py"
+RINGS = "sphex/rings.py"
 SPEC = "sphex/spectra.py"
 FILT = "sphex/filters.py"
 REC = "sphex/kernels/recursion.py"
@@ -156,31 +157,32 @@ MUTATIONS: list[Mutation] = [
     _m("transform-nyquist-order-taken-directly", TRANS,
        "direct = M_out - 1 < (N + 1) // 2", "direct = M_out - 1 <= N // 2", T_TRANS),
     _m("transform-analysis-phase-not-conjugated", TRANS,
-       "np.conj(_phase(M, grid))", "_phase(M, grid)", T_TRANS),
+       "np.conj(longitude_phase(M, grid))", "longitude_phase(M, grid)", T_TRANS),
     _m("transform-analysis-pi-for-2pi", TRANS,
        "scale = (2 * np.pi / grid.nlon)", "scale = (np.pi / grid.nlon)", T_TRANS),
-    _m("transform-longitude-origin-sign", TRANS,
+    _m("transform-longitude-origin-sign", RINGS,
        "np.exp(1j * np.arange(m_count)", "np.exp(-1j * np.arange(m_count)", T_TRANS),
-    _m("transform-equator-ring-counted-twice", TRANS,
+    _m("transform-equator-ring-counted-twice", RINGS,
        "self.wn = np.where(same, self.wn / 2, self.wn)", "self.wn = np.where(same, self.wn, self.wn)",
        T_TRANS),
-    _m("transform-folded-orders-not-conjugated", TRANS,
+    _m("transform-folded-orders-not-conjugated", RINGS,
        "np.conj(X[..., 1:])", "X[..., 1:]", T_TRANS),
-    _m("transform-convention-factor-inverted", TRANS,
+    _m("transform-convention-factor-inverted", RINGS,
        "self.fl = norm_column(lmax, 0, norm_from) / norm_column(lmax, 0, norm_to)",
        "self.fl = norm_column(lmax, 0, norm_to) / norm_column(lmax, 0, norm_from)", T_TRANS),
-    _m("transform-phase-sign-on-even-orders", TRANS,
+    _m("transform-phase-sign-on-even-orders", RINGS,
        "self.fm[1::2] = -1.0", "self.fm[::2] = -1.0", T_TRANS),
     _m("transform-gradient-order-zero-halved", TRANS,
        "dn[:, 0] = np.sqrt(l[:, 0] * (l[:, 0] + 1))", "dn[:, 0] = 0.5 * np.sqrt(l[:, 0] * (l[:, 0] + 1))",
        T_TRANS),
     _m("transform-gradient-north-sign", TRANS,
-       "north = np.negative(out[0], out=out[0])", "north = out[0]", T_TRANS),
+       "north = np.negative(out[0], out=out[0])\n    east = out[1]", "north = out[0]\n    east = out[1]",
+       T_TRANS),
     _m("transform-gradient-raising-weight", TRANS,
        "(l + m) * (l - m + 1), 0.0)", "(l + m) * (l - m), 0.0)", T_TRANS),
     _m("transform-gradient-east-without-i", TRANS,
        "1j * np.arange(1, L1), 1)", "np.arange(1, L1), 1)", T_TRANS),
-    _m("transform-exact-limit-off-by-one", TRANS,
+    _m("transform-exact-limit-off-by-one", RINGS,
        "if lmax > grid.lmax_exact and not allow_aliasing:", "if lmax > grid.lmax_exact + 1 and not allow_aliasing:",
        T_TRANS),
     # ------------------------------------------------------------- spectra
@@ -192,7 +194,7 @@ MUTATIONS: list[Mutation] = [
     _m("spectra-shortcut-ignores-phase", SPEC,
        'if h.norm == "orthonormal" and h.condon_shortley:', 'if h.norm == "orthonormal":', T_SPEC),
     _m("spectra-cross-power-without-conjugate", SPEC,
-       "return _degree_sum((a1 * np.conj(a2)).real)", "return _degree_sum((a1 * a2).real)", T_SPEC),
+       "x = _degree_sum((b1 * np.conj(b2)).real)", "x = _degree_sum((b1 * b2).real)", T_SPEC),
     _m("spectra-per-coefficient-count", SPEC,
        "p / (2.0 * np.arange(p.shape[-1]) + 1.0)", "p / (np.arange(p.shape[-1]) + 1.0)", T_SPEC),
     _m("spectra-cumulative-over-batch-axis", SPEC,

@@ -72,6 +72,7 @@ def gauss_mean(values: np.ndarray, grid: Grid) -> np.ndarray:
 @pytest.mark.parametrize("alpha", [0.0, math.pi / 4, math.pi / 2 - 0.05])
 @pytest.mark.parametrize("grid", [Grid.gauss(15), Grid.equiangular(33, 36, "poles")],
                          ids=["gauss", "poles"])
+@pytest.mark.reference
 def test_solid_body_rotation(grid, alpha):
     # Williamson et al. 1992, J. Comput. Phys. 102, 211-224, the advecting flow of test
     # cases 1 and 2 (formulas from memory): u = u0 (cos lat cos a + sin lat cos lon sin a),
@@ -123,6 +124,7 @@ def sympy_laplacian_of(psi_expr, lat, lon, R):
 
 @pytest.mark.parametrize("grid", [Grid.gauss(31), Grid.equiangular(64, 64, "north")],
                          ids=["gauss", "north"])
+@pytest.mark.reference
 def test_rossby_haurwitz_wave_4(grid):
     # Williamson et al. 1992 test case 6: omega = K = 7.848e-6 s-1, wavenumber 4 (from memory)
     R, omega, K, n = EARTH_RADIUS, 7.848e-6, 7.848e-6, 4
@@ -151,6 +153,7 @@ def test_rossby_haurwitz_wave_4(grid):
 
 
 @pytest.mark.parametrize("radius", [None, 3.3895e6])
+@pytest.mark.reference
 def test_pure_gradient_and_pure_rotational_flows(rng, radius):
     # (u, v) = grad chi has no vorticity and psi = 0; k x grad psi has no divergence and
     # chi = 0; the divergence of grad chi is lap chi, -l(l+1)/R^2 per degree (common
@@ -174,6 +177,7 @@ def test_pure_gradient_and_pure_rotational_flows(rng, radius):
     assert np.max(np.abs(flow.chi.coef)) < 1e-13 * np.max(np.abs(psi.coef))
 
 
+@pytest.mark.reference
 def test_synthesis_matches_direct_sum_with_scipy(rng):
     # u = sum a dLambda/dtheta + i m b Lambda/sin(theta), v = sum i m a Lambda/sin(theta)
     # - b dLambda/dtheta (times e^{i m lon}, both signs of m) with Lambda and its theta
@@ -204,6 +208,7 @@ def test_synthesis_matches_direct_sum_with_scipy(rng):
 # Round trips and the degree limit
 # --------------------------------------------------------------------------------------
 @pytest.mark.slow
+@pytest.mark.reference
 def test_round_trip_gauss_high_degree(rng):
     # Gauss-Legendre with lmax+1 nodes integrates the vector products, polynomials of degree
     # <= 2 lmax in cos(colat), exactly (published method's stated property)
@@ -231,6 +236,7 @@ def test_round_trip_gauss_high_degree(rng):
     ("poles", 255, 512), ("cells", 255, 512), ("north", 255, 512),
     ("poles", 64, 129), ("cells", 64, 129), ("north", 64, 129),
 ])
+@pytest.mark.reference
 def test_round_trip_equiangular_at_vector_limit(rng, layout, lmax, nlat):
     # Clenshaw-Curtis / Fejer / Driscoll-Healy rules on nlat rows are exact to degree
     # nlat - 1 in cos(colat) (published methods' stated property); the vector products
@@ -248,6 +254,7 @@ VECTOR_LIMIT_GRIDS = [Grid.gauss(20, nlon=64)] + [
 
 
 @pytest.mark.parametrize("grid", VECTOR_LIMIT_GRIDS, ids=lambda g: f"{g.kind}-{g.nlat}")
+@pytest.mark.reference
 def test_vector_limit_is_exact_and_sharp(rng, grid):
     # at the limit the round trip holds to rounding; one degree more is refused, and with
     # allow_aliasing=True the result is not exact: the quadrature meets polynomials of degree
@@ -267,6 +274,7 @@ def test_vector_limit_is_exact_and_sharp(rng, grid):
     assert aliased > 1e-6
 
 
+@pytest.mark.reference
 def test_limit_in_longitude(rng):
     # 2 lmax + 1 longitudes separate orders |m| <= lmax (discrete orthogonality of
     # e^{i m lon}; common practice); with 2 lmax the top order aliases
@@ -328,6 +336,7 @@ def finite_difference_errors(flow: Flow, degrees: float) -> list[float]:
             ((u_fd, east[inner]), (v_fd, north[inner]), (zeta_fd, zeta), (delta_fd, delta))]
 
 
+@pytest.mark.reference
 def test_against_fourth_order_finite_differences(rng):
     # components, vorticity and divergence from fourth-order centred differences of
     # synthesised scalar values, away from the poles (common practice):
@@ -347,6 +356,7 @@ def test_against_fourth_order_finite_differences(rng):
         assert 12 < c / f < 20
 
 
+@pytest.mark.reference
 def test_divergence_theorem(rng):
     # Gauss's theorem on the sphere (common practice): the area mean of the divergence is
     # zero, and over the cap north of latitude lat0 the integral of the divergence equals
@@ -378,6 +388,7 @@ def test_divergence_theorem(rng):
 # --------------------------------------------------------------------------------------
 # Energy
 # --------------------------------------------------------------------------------------
+@pytest.mark.reference
 def test_parseval_and_helmholtz_orthogonality(rng):
     # Parseval for vector fields: the kinetic-energy spectrum sums to the area mean of
     # (u^2 + v^2)/2, integrated with numpy.polynomial.legendre.leggauss on a grid fine enough
@@ -426,6 +437,7 @@ def test_kinetic_energy_conventions_batches_and_units(rng):
 # --------------------------------------------------------------------------------------
 @pytest.mark.parametrize("norm,condon_shortley", [("orthonormal", True), ("full", False),
                                                   ("schmidt", True)])
+@pytest.mark.reference
 def test_absolute_vorticity_adds_the_coriolis_parameter(rng, norm, condon_shortley):
     # planetary vorticity f = 2 Omega sin(lat) (common practice), Earth's rotation rate
     omega = 7.292115e-5
@@ -526,6 +538,7 @@ def test_latitude_bands_give_the_same_flow(rng, monkeypatch, grid):
 # --------------------------------------------------------------------------------------
 # Regridding and smoothing through psi and chi
 # --------------------------------------------------------------------------------------
+@pytest.mark.reference
 def test_regrid_flow_is_exact_where_component_regridding_is_not(rng):
     # a band-limited flow moved from a Gauss grid to an equiangular one is the flow at the
     # new nodes; regridding u and v as scalars is not (they carry 1/cos(lat) and are not

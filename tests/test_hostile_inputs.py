@@ -143,6 +143,7 @@ def test_masked_cells_of_a_file_are_refused_by_the_command_line(tmp_path, grid, 
 # overflow
 # ---------------------------------------------------------------------------
 @pytest.mark.parametrize("power", [1000, 700, -700, -1000])
+@pytest.mark.reference
 def test_extreme_values_are_rescaled_exactly(grid, field, power):
     # multiplying by a power of two is exact in binary floating point (common
     # practice), so the transforms of 2**k f must be 2**k times those of f, bit for bit
@@ -157,6 +158,7 @@ def test_extreme_values_are_rescaled_exactly(grid, field, power):
     assert np.array_equal(np.ldexp(degree_power(scaled), -2 * half), degree_power(h))
 
 
+@pytest.mark.reference
 def test_results_beyond_the_double_range_are_refused(grid):
     flat = np.full(grid.shape, 1e308)
     # the orthonormal C00 of a constant c is c sqrt(4 pi) (common practice): beyond 1.8e308
@@ -185,6 +187,7 @@ def test_results_beyond_the_double_range_are_refused(grid):
         degree_power(sphex.Harmonics(np.diag(np.full(LMAX + 1, 1e200)).astype(complex)))
 
 
+@pytest.mark.reference
 def test_overflow_through_the_xarray_layer_and_the_command_line(tmp_path, capsys, grid, files):
     da = dataarray(grid, np.full(grid.shape, 1e308))
     with pytest.raises(ValueError, match="overflow"):
@@ -291,6 +294,7 @@ def test_unknown_or_contradictory_conventions_are_refused(tmp_path, capsys, file
     assert_one_line_error(status, err, *words)
 
 
+@pytest.mark.reference
 def test_conventions_are_applied_and_a_file_without_them_is_read_with_the_defaults_said(
         tmp_path, files, grid, field):
     ds = sxr.open_coefficients(files["coef"])
@@ -359,6 +363,7 @@ def _cut(path, fraction, out):
 
 
 @pytest.mark.parametrize("fmt", ["NETCDF3_CLASSIC", "NETCDF3_64BIT_OFFSET", "NETCDF3_64BIT_DATA"])
+@pytest.mark.reference
 def test_classic_header_promises_the_size_the_library_writes(tmp_path, fmt):
     # files written by the netCDF library itself, with record variables of two
     # types: the size read from the header is the file's, up to the 4-byte padding

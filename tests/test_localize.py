@@ -56,6 +56,7 @@ def scipy_lambda(l: int, m: int, x: float) -> float:
 
 # ----------------------------------------------------------------- windows
 @pytest.mark.parametrize("cap, lwin", [(20.0, 20), (5.0, 40), (60.0, 7), (150.0, 12), (180.0, 5)])
+@pytest.mark.reference
 def test_concentrations_sum_to_the_shannon_number(cap, lwin):
     # source: Simons, Dahlen & Wieczorek 2006 (SIAM Review 48), N = (L+1)^2 (1 - cos theta0) / 2
     w = cap_windows(cap, lwin)
@@ -66,6 +67,7 @@ def test_concentrations_sum_to_the_shannon_number(cap, lwin):
     assert np.all(np.diff(w.concentration) <= 0) and w.concentration[0] <= 1.0
 
 
+@pytest.mark.reference
 def test_zonal_partial_sum_matches_direct_integral():
     # source: scipy.integrate.quad with scipy.special.eval_legendre; the zonal windows' factors sum to
     # the trace of the order-0 concentration matrix, sum_l (2l+1)/2 int_{cos theta0}^1 P_l(x)^2 dx
@@ -79,6 +81,7 @@ def test_zonal_partial_sum_matches_direct_integral():
     assert w.zonal().size == lwin + 1
 
 
+@pytest.mark.reference
 def test_windows_orthonormal_on_the_sphere_and_orthogonal_over_the_cap_sphex_quadrature():
     # quadrature from sphex.grids (Gauss grid over the sphere; Gauss nodes mapped onto the cap, exact
     # for these polynomials); the windows are orthonormal on the sphere and diagonalise the cap
@@ -103,6 +106,7 @@ def test_windows_orthonormal_on_the_sphere_and_orthogonal_over_the_cap_sphex_qua
     np.testing.assert_allclose(cap_gram, np.diag(w.concentration), rtol=0, atol=1e-12)
 
 
+@pytest.mark.reference
 def test_windows_orthogonal_over_the_cap_scipy_quad():
     # source: scipy.integrate.quad with scipy.special.sph_legendre_p; same-order windows:
     # 2 pi int_{x0}^1 g_i g_j dx = lambda_i delta_ij, and = delta_ij over [-1, 1]
@@ -124,6 +128,7 @@ def test_windows_orthogonal_over_the_cap_scipy_quad():
                 assert whole == pytest.approx(1.0 if a == b else 0.0, abs=1e-10)
 
 
+@pytest.mark.reference
 def test_best_window_of_a_20_degree_cap_at_lwin_20_matches_scipy_eigenproblem():
     # source: scipy.integrate.quad (concentration matrix of order 0 from Legendre polynomials,
     # scipy.special.eval_legendre) and scipy.linalg.eigh
@@ -160,6 +165,7 @@ def test_window_sign_and_harmonics_round_trip():
 
 
 # ----------------------------------------------------------------- 3j symbols and coupling
+@pytest.mark.reference
 def test_squared_3j_matches_sympy():
     # source: sympy.physics.wigner.wigner_3j (exact)
     for l1 in range(0, 7):
@@ -168,6 +174,7 @@ def test_squared_3j_matches_sympy():
             np.testing.assert_allclose(squared_3j_zero_orders(l1, l2), ref, rtol=1e-14, atol=1e-16)
 
 
+@pytest.mark.reference
 def test_squared_3j_high_degree_against_sympy_and_orthogonality():
     # source: sympy.physics.wigner.wigner_3j (exact) at degree 700; orthogonality
     # sum_L (2L + 1) (l1 l2 L; 0 0 0)^2 = 1 (common practice)
@@ -180,6 +187,7 @@ def test_squared_3j_high_degree_against_sympy_and_orthogonality():
     assert np.sum((2 * L + 1) * w) == pytest.approx(1.0, rel=1e-13)
 
 
+@pytest.mark.reference
 def test_coupling_matrix_conserves_power():
     # source: Wieczorek & Simons 2005 (the localised field's power is the global power times the
     # window's mean square, 1): each column of M sums to 1 where it is complete
@@ -193,6 +201,7 @@ def test_coupling_matrix_conserves_power():
 
 
 # ----------------------------------------------------------------- multitaper estimates
+@pytest.mark.reference
 def test_multitaper_estimate_is_unbiased_for_a_stationary_field(rng):
     # source: Wieczorek & Simons 2005 (Geophys. J. Int. 162): E[local power] = M S for a stationary
     # field; 200 seeded realisations of a power-law spectrum, mean within 4 standard errors
@@ -213,6 +222,7 @@ def test_multitaper_estimate_is_unbiased_for_a_stationary_field(rng):
     assert np.all(np.abs(mean / expected - 1)[lo:hi + 1] < 0.15)
 
 
+@pytest.mark.reference
 def test_localised_spectrum_is_the_same_wherever_the_cap_is_turned_to(rng):
     # source: common practice (rotation consistency): a field that vanishes outside the cap (a random
     # field times a well-concentrated window) has the same localised spectrum at any centre, however
@@ -234,6 +244,7 @@ def test_localised_spectrum_is_the_same_wherever_the_cap_is_turned_to(rng):
     np.testing.assert_allclose(a.error, c.error, rtol=0, atol=1e-12 * scale)
 
 
+@pytest.mark.reference
 def test_admittance_of_a_scaled_field_returns_the_transfer_function(rng):
     # source: common practice: gravity = Z * topography gives admittance Z and correlation 1
     lmax, lwin = 80, 12

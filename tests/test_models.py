@@ -90,11 +90,13 @@ def check_gravity_model(m: PotentialModel, path: Path) -> None:
         assert sS[l, mm] == pytest.approx(ss, rel=1e-15, abs=1e-300)
 
 
+@pytest.mark.reference
 def test_gravity_exchange_file_every_field(tmp_path):
     path = write(tmp_path, "invented.gfc", gravity_text())
     check_gravity_model(open_model(path), path)
 
 
+@pytest.mark.reference
 def test_gravity_exchange_gzip_and_fortran_exponents(tmp_path):
     path = write(tmp_path, "invented.gfc.gz", gravity_text(fortran=True), zipped=True)
     check_gravity_model(open_model(path), path)
@@ -230,6 +232,7 @@ def shc_values(m: PotentialModel) -> dict:
     return {(n, k): (C[..., n, k] if k >= 0 else S[..., n, -k]) for n, k in SHC_VALUES}
 
 
+@pytest.mark.reference
 def test_shc_every_field_at_an_epoch_of_the_file(tmp_path):
     path = write(tmp_path, "invented.shc", SHC)
     m = open_model(path, epoch=2025.0)
@@ -250,6 +253,7 @@ def test_shc_every_field_at_an_epoch_of_the_file(tmp_path):
     assert C[0, 0] == 0.0  # degree 0 is not in the file
 
 
+@pytest.mark.reference
 def test_shc_epoch_interpolation_by_hand(tmp_path):
     path = write(tmp_path, "invented.shc", SHC)
     m = open_model(path, epoch=2021.5)
@@ -262,6 +266,7 @@ def test_shc_epoch_interpolation_by_hand(tmp_path):
     assert m.epoch == 2021.5
 
 
+@pytest.mark.reference
 def test_shc_epochs_outside_the_range(tmp_path):
     path = write(tmp_path, "invented.shc", SHC)
     with pytest.raises(ValueError, match="outside the file's epochs"):

@@ -17,6 +17,7 @@ def test_crossing_degree_by_hand():
         crossing_degree(signal, error[:3])
 
 
+@pytest.mark.reference
 def test_model_spectrum_figure_marks_the_crossing_and_labels_kaula(tmp_path):
     l = np.arange(61, dtype=float)
     signal = np.where(l >= 2, (2 * l + 1) * (1e-5 / np.maximum(l, 1) ** 2) ** 2, 0.0)

@@ -58,6 +58,7 @@ def scipy_field(coef: np.ndarray, lat: np.ndarray, lon: np.ndarray, diff: bool =
 # --------------------------------------------------------------------------------------
 @pytest.mark.parametrize("condon_shortley", [True, False])
 @pytest.mark.parametrize("norm", NORMS)
+@pytest.mark.reference
 def test_evaluate_matches_scipy_sph_harm_y(rng, norm, condon_shortley):
     # source: scipy.special.sph_harm_y (orthonormal, Condon-Shortley phase), summed over
     # m = -l..l directly; the same field given in every convention must evaluate the same
@@ -74,6 +75,7 @@ def test_evaluate_matches_scipy_sph_harm_y(rng, norm, condon_shortley):
         assert np.max(np.abs(got[k] - ref)) < 1e-13 * np.max(np.abs(ref))
 
 
+@pytest.mark.reference
 def test_evaluate_gradient_matches_scipy_derivatives(rng):
     # source: scipy.special.sph_harm_y(diff_n=1) gives d/dtheta and d/dphi of each term;
     # east = (1/sin theta) df/dphi, north = -df/dtheta (common practice)
@@ -99,6 +101,7 @@ POLAR_POINTS = [0.001, 0.05, 0.5, -0.002, -0.3]
 
 
 @pytest.mark.slow
+@pytest.mark.reference
 def test_evaluate_degree_2700_next_to_poles_against_mpmath(rng):
     # source: mpmath, fully normalised recursion at 45 digits with an unbounded exponent
     # (tests/_reference.mp_ortho_column), parity Lambda_lm(pi - t) = (-1)^(l+m) Lambda_lm(t)
@@ -230,6 +233,7 @@ def point_mass_potential(lat, lon, r, source):
     return 1.0 / np.linalg.norm(np.asarray(r)[..., None] * x - source, axis=-1)
 
 
+@pytest.mark.reference
 def test_point_mass_potential_evaluated_and_fitted_back(rng):
     # source: closed form 1/|x - s| of a unit point mass and its exterior expansion
     # (Legendre generating function + addition theorem, common practice; Y from scipy)
@@ -256,6 +260,7 @@ def test_point_mass_potential_evaluated_and_fitted_back(rng):
 # least squares from scattered points
 # --------------------------------------------------------------------------------------
 @pytest.mark.parametrize("method,bound", [("direct", 1e-9), ("iterative", 1e-8)])
+@pytest.mark.reference
 def test_fit_recovers_band_limited_field(rng, method, bound):
     # band-limited truth at random points, more points than unknowns, no damping:
     # least squares is exact up to rounding (common practice)
@@ -289,6 +294,7 @@ def test_auto_method_chooses_by_size(rng):
         assert fit(data, lat, lon, 100, damping=1e-3, maxiter=3).info["method"] == "iterative"
 
 
+@pytest.mark.reference
 def test_posterior_sigmas_match_monte_carlo_scatter(rng):
     # Monte Carlo (seeded): the scatter of repeated fits with new noise matches the posterior
     # standard deviations sqrt(diag((E^T W E)^-1)) of linear least squares (common practice)
@@ -322,6 +328,7 @@ def test_posterior_sigmas_match_monte_carlo_scatter(rng):
     np.testing.assert_allclose(np.sqrt(np.diag(cov))[: l.size], sC[0, l, m], rtol=1e-12)
 
 
+@pytest.mark.reference
 def test_condition_estimate_of_conjugate_gradients_matches_dense(rng):
     # Lanczos values from the coefficients of conjugate gradients (Saad 2003, section 6.7.3)
     # against the eigenvalues of the dense normal matrix (its inverse is the direct method's
@@ -374,6 +381,7 @@ def cap_mask(grid: Grid, lat0: float, lon0: float, fraction: float) -> np.ndarra
     return cos_d > cos_a
 
 
+@pytest.mark.reference
 def test_fit_masked_recovers_low_degree_field_under_a_30_percent_cap(rng):
     # an ocean-style gap: a cap of missing cells covering 30 % of the sphere (cap area
     # 2 pi (1 - cos a), common practice); degree 5 is well posed there

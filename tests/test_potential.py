@@ -26,6 +26,7 @@ ARCSEC = 180.0 * 3600.0 / math.pi
 
 
 # ----------------------------------------------------------------- normal fields
+@pytest.mark.reference
 def test_grs80_normal_gravity_at_equator_and_pole():
     # Moritz 1980, Geodetic Reference System 1980, derived constants (from memory)
     g = normal_gravity([0.0, 90.0, -90.0], "grs80")
@@ -36,6 +37,7 @@ def test_grs80_normal_gravity_at_equator_and_pole():
     assert GRS80.gravity_pole == pytest.approx(9.8321863685, abs=5e-11)
 
 
+@pytest.mark.reference
 def test_grs80_derived_constants():
     # Moritz 1980, derived constants (from memory), to the digits printed there
     J = GRS80.zonal_coefficients()
@@ -50,6 +52,7 @@ def test_grs80_derived_constants():
     assert GRS80.potential_on_ellipsoid == pytest.approx(62636860.850, abs=5e-4)
 
 
+@pytest.mark.reference
 def test_wgs84_derived_constants():
     # NIMA TR8350.2 (2000), tables 3.3 and 3.4 (from memory)
     assert WGS84.gravity_equator == pytest.approx(9.7803253359, abs=5e-11)
@@ -64,6 +67,7 @@ def test_wgs84_derived_constants():
 
 
 @pytest.mark.parametrize("field", [GRS80, WGS84], ids=["grs80", "wgs84"])
+@pytest.mark.reference
 def test_ellipsoid_is_a_level_surface(field):
     # the level ellipsoid's defining property (Heiskanen & Moritz 1967, section 2-7): U = U0 on
     # it, and |grad U| there is Somigliana's normal gravity (eq. 2-78)
@@ -73,6 +77,7 @@ def test_ellipsoid_is_a_level_surface(field):
     np.testing.assert_allclose(field.gravity_at(r, lat_c), field.surface_gravity(lat), rtol=1e-13)
 
 
+@pytest.mark.reference
 def test_normal_gravity_above_the_ellipsoid():
     # Hofmann-Wellenhof & Moritz 2005, eq. 2-215 (from memory): the second-order series in the
     # height; it drops terms of order f^2 h / a, so agreement to 2e-8 at 1 km (measured 1.05e-8)
@@ -85,6 +90,7 @@ def test_normal_gravity_above_the_ellipsoid():
     np.testing.assert_allclose(GRS80.gravity_at(r, lat_c), series, rtol=2e-8)
 
 
+@pytest.mark.reference
 def test_geocentric_coordinates():
     # common practice: a point at geodetic latitude phi and height h has
     # p = (N + h) cos phi, z = (N (1 - e^2) + h) sin phi with N = a / sqrt(1 - e^2 sin^2 phi);
@@ -169,6 +175,7 @@ def truncation_degree(ratio: float, power: int) -> int:
 
 
 @pytest.mark.parametrize("norm, cs", [("orthonormal", True), ("full", False), ("schmidt", False)])
+@pytest.mark.reference
 def test_point_mass_quantities_at_height(norm, cs):
     depth, height = 0.2 * R, 0.05 * R
     r = R + height
@@ -196,6 +203,7 @@ def test_point_mass_quantities_at_height(norm, cs):
                                   got["anomaly"])
 
 
+@pytest.mark.reference
 def test_point_mass_on_the_ellipsoid_with_the_normal_field_removed():
     # geodetic latitude and ellipsoidal height -> geocentric position (common practice), then the
     # closed-form point mass minus the GRS80 normal potential's zonal series
@@ -236,6 +244,7 @@ def scattered_points(n: int, seed: int) -> tuple[np.ndarray, np.ndarray]:
     return lat.reshape(2, -1), lon.reshape(2, -1)
 
 
+@pytest.mark.reference
 def test_point_mass_quantities_at_scattered_points():
     depth, height = 0.2 * R, 0.05 * R
     r = R + height
@@ -372,6 +381,7 @@ def local_frame(lat_deg, lon_deg):
 
 
 @pytest.mark.parametrize("g", [(-29400.0, 0.0, 0.0), (-29400.0, -1450.0, 4650.0)], ids=["axial", "tilted"])
+@pytest.mark.reference
 def test_dipole_components_on_the_sphere(g):
     height = 350e3
     grid = Grid.gauss(12)
@@ -384,6 +394,7 @@ def test_dipole_components_on_the_sphere(g):
         assert np.max(np.abs(got[name] - expected)) < 1e-13 * np.max(F), name  # measured 1e-15
 
 
+@pytest.mark.reference
 def test_dipole_declination_and_inclination_at_chosen_points():
     # axial dipole: D = 0 and tan I = 2 tan(latitude) (common practice)
     grid = Grid.equiangular(19, 36, "cells")
@@ -404,6 +415,7 @@ def test_dipole_declination_and_inclination_at_chosen_points():
             math.degrees(math.atan2(Z[0, 0], math.hypot(X[0, 0], Y[0, 0]))), abs=1e-10)
 
 
+@pytest.mark.reference
 def test_dipole_in_the_geodetic_frame():
     # geodetic position and the geodetic frame's unit vectors built directly (common practice),
     # independent of the rotation formula used by sphex
@@ -445,6 +457,7 @@ def test_magnetic_conventions_batch_and_errors():
         magnetic(PotentialModel(harmonics=h, gm=1.0), grid, "down")
 
 
+@pytest.mark.reference
 def test_magnetic_power_is_the_mean_square_field():
     # Lowes 1966: sum_l (l+1) (a/r)^(2l+4) sum_m (g^2 + h^2) is the mean of |B|^2 over the sphere
     rng = np.random.default_rng(7)
@@ -488,6 +501,7 @@ def test_degree_variances_and_errors_by_hand():
         error_degree_variances(PotentialModel(harmonics=h, gm=1.0))
 
 
+@pytest.mark.reference
 def test_kaula_rule():
     # Kaula 1966: RMS of a fully normalised coefficient about 1e-5 / l^2, so the degree
     # variance is (2l + 1) 1e-10 / l^4
@@ -498,6 +512,7 @@ def test_kaula_rule():
     np.testing.assert_allclose(kaula_rule(10, constant=2e-5)[2:], 4 * kaula_rule(10)[2:], rtol=1e-15)
 
 
+@pytest.mark.reference
 def test_dipole_at_scattered_points_on_the_sphere_and_ellipsoid():
     g = (-29400.0, -1450.0, 4650.0)
     lat, lon = scattered_points(30, seed=7)

@@ -140,6 +140,7 @@ def _api_numbers(path, var):
     return p, hm, grid, mean_field
 
 
+@pytest.mark.reference
 def test_every_section_is_on_the_page_and_nothing_from_outside(page):
     text, r = page
     expected = [s for s in SECTIONS if s != "model"]
@@ -148,6 +149,7 @@ def test_every_section_is_on_the_page_and_nothing_from_outside(page):
     assert "<style>" in text and "@media print" in text and "max-width: 100%" in text
 
 
+@pytest.mark.reference
 def test_every_image_is_a_png_of_the_stated_size(page):
     import matplotlib.image as mpimg
 
@@ -164,6 +166,7 @@ def test_every_image_is_a_png_of_the_stated_size(page):
         assert a["alt"]
 
 
+@pytest.mark.reference
 def test_numbers_equal_those_of_the_python_api(files, page):
     _, r = page
     p, hm, grid, mean_field = _api_numbers(files / "series.nc", "tsurf")
@@ -192,6 +195,7 @@ def test_numbers_equal_those_of_the_python_api(files, page):
         np.abs(sphex.synthesize(sphex.Harmonics(one), fine)).max(), rel=1e-4)
 
 
+@pytest.mark.reference
 def test_comparison_numbers(files, page):
     text, r = page
     p, hm, _, _ = _api_numbers(files / "series.nc", "tsurf")
@@ -215,6 +219,7 @@ def _run(*args, cwd):
                           capture_output=True, text=True, cwd=cwd, env=env, timeout=600)
 
 
+@pytest.mark.reference
 def test_command_line_on_the_page_reproduces_its_numbers(files):
     res = _run("report", "series.nc", "-v", "tsurf", "--slope", "2:20", "--bands", "1:3,4:30",
                "-o", "a.html", cwd=files)
@@ -240,6 +245,7 @@ def test_command_line_on_the_page_reproduces_its_numbers(files):
     assert second.numbers == first.numbers and len(first.numbers) == 15
 
 
+@pytest.mark.reference
 def test_command_line_errors_are_one_line(files):
     (files / "exists.html").write_text("keep")
     res = _run("report", "series.nc", "-o", "exists.html", cwd=files)
@@ -254,6 +260,7 @@ def test_command_line_errors_are_one_line(files):
     assert not (files / "b.html").exists()
 
 
+@pytest.mark.reference
 def test_coefficient_file_input(files, tmp_path):
     h = _coefficients(np.random.default_rng(3), 1)
     single = sphex.Harmonics(h.coef[0], units="K").to(norm="full", condon_shortley=False)
@@ -269,6 +276,7 @@ def test_coefficient_file_input(files, tmp_path):
     assert {"maps", "smoothed", "spectrum"} <= set(r.sections) and "series" not in r.sections
 
 
+@pytest.mark.reference
 def test_model_file_input(tmp_path):
     from sphex.demo import make_gravity_model
     from sphex.potential import crossing_degree, degree_variances, error_degree_variances
@@ -289,6 +297,7 @@ def test_model_file_input(tmp_path):
     assert float(r.numbers["slope"]) == pytest.approx(spectral_slope(dv, 3, 31)[0], rel=1e-12)
 
 
+@pytest.mark.reference
 def test_significance_level_against_reference_and_monte_carlo():
     from scipy.stats import beta, norm
 
@@ -313,6 +322,7 @@ def test_significance_level_against_reference_and_monte_carlo():
     assert fraction == pytest.approx(0.05, abs=0.013)
 
 
+@pytest.mark.reference
 def test_write_report_is_atomic_and_refuses_to_overwrite(tmp_path):
     write_report("<p>one</p>", tmp_path / "r.html")
     with pytest.raises(FileExistsError):
@@ -343,6 +353,7 @@ def _chromium(browser, url, tmp, extra):
 
 @pytest.mark.slow
 @pytest.mark.parametrize("width,height", [(1280, 900), (390, 844)])
+@pytest.mark.reference
 def test_page_renders_in_a_browser(page, tmp_path, width, height):
     import matplotlib.image as mpimg
 
@@ -370,6 +381,7 @@ def test_page_renders_in_a_browser(page, tmp_path, width, height):
                                        f"report_{width}x{height}.png"))
 
 
+@pytest.mark.reference
 def test_comparison_refuses_fields_in_other_units(files, tmp_path):
     ds = xr.open_dataset(files / "other.nc").load()
     ds["t2m"].attrs["units"] = "degC"
@@ -378,6 +390,7 @@ def test_comparison_refuses_fields_in_other_units(files, tmp_path):
         build_report(files / "series.nc", compare=tmp_path / "celsius.nc")
 
 
+@pytest.mark.reference
 def test_wide_grids_are_drawn_thinned():
     from sphex.report.build import MAP_COLUMNS, _thinned
 

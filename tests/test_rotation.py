@@ -65,6 +65,7 @@ def sympy_small_d(l: int, beta: float) -> np.ndarray:
 
 # ----------------------------------------------------------------- Wigner d
 @pytest.mark.parametrize("beta", [0.0, 0.37, np.pi / 2, 2.5, -1.2, 4.0])
+@pytest.mark.reference
 def test_wigner_small_d_matches_sympy(beta):
     # source: sympy.physics.wigner.wigner_d_small (exact; convention matched in sympy_small_d)
     for l in range(0, 7):
@@ -72,6 +73,7 @@ def test_wigner_small_d_matches_sympy(beta):
                                    rtol=0, atol=2e-15)
 
 
+@pytest.mark.reference
 def test_quarter_turn_exact_values_from_sympy():
     # source: sympy.physics.wigner.wigner_d_small at beta = pi/2 (exact symbolic values)
     for l in range(0, 9):
@@ -79,6 +81,7 @@ def test_quarter_turn_exact_values_from_sympy():
         np.testing.assert_allclose(wigner_small_d(l, 90.0), exact, rtol=0, atol=2e-15)
 
 
+@pytest.mark.reference
 def test_small_d_first_column_is_spherical_harmonic_at_high_degree():
     # source: scipy.special.sph_harm_y; d^l_{m0}(beta) = sqrt(4 pi / (2l + 1)) Y_lm(beta, 0)
     # (common practice: the relation between the zonal column of D and Y_lm)
@@ -92,6 +95,7 @@ def test_small_d_first_column_is_spherical_harmonic_at_high_degree():
 
 
 @pytest.mark.slow
+@pytest.mark.reference
 def test_rotated_zonal_degrees_match_reference_to_degree_1500():
     # Rotating the zonal Y_l0 by (alpha, beta, 0) gives
     # a'_lm = sqrt(4 pi / (2l + 1)) conj(Y_lm(beta, alpha)) (common practice).
@@ -118,6 +122,7 @@ def test_rotated_zonal_degrees_match_reference_to_degree_1500():
 
 
 # ----------------------------------------------------------------- rotation of coefficients
+@pytest.mark.reference
 def test_rotation_equals_sympy_d_matrix_product(rng):
     # source: sympy.physics.wigner.wigner_d_small; a'_{m'} = sum_m e^{-i m' alpha} d_{m'm}(beta)
     # e^{-i m gamma} a_m over all orders, with a_{l,-m} = (-1)^m conj(a_lm) (reality, common practice)
@@ -133,6 +138,7 @@ def test_rotation_equals_sympy_d_matrix_product(rng):
         np.testing.assert_allclose(turned.coef[l, : l + 1], (D @ full)[l:], rtol=0, atol=1e-14)
 
 
+@pytest.mark.reference
 def test_rotate_then_synthesize_equals_resampling_at_rotated_points(rng):
     # source: scipy.special.sph_harm_y_all (direct sum of the original field at R^-1 r);
     # f'(r) = f(R^-1 r) is the definition of rotating the field
@@ -157,6 +163,7 @@ def test_rotate_then_synthesize_equals_resampling_at_rotated_points(rng):
     assert np.max(np.abs(turned[rows, cols] - expected)) < 1e-12 * np.max(np.abs(expected))
 
 
+@pytest.mark.reference
 def test_degree_power_is_invariant(rng):
     # source: common practice (a rotation is unitary within each degree, so the power is unchanged)
     h = random_harmonics(rng, 256)
@@ -173,6 +180,7 @@ def test_rotation_then_inverse_is_identity_at_degree_1000(rng):
     assert np.max(np.abs(back.coef - h.coef)) < 1e-12 * np.max(np.abs(h.coef))
 
 
+@pytest.mark.reference
 def test_composition_of_two_rotations(rng):
     # source: scipy.spatial.transform.Rotation (the Euler angles of the product R2 R1)
     h = random_harmonics(rng, 128)
@@ -185,6 +193,7 @@ def test_composition_of_two_rotations(rng):
     assert np.max(np.abs(two_steps.coef - one_step.coef)) < 1e-12 * np.max(np.abs(h.coef))
 
 
+@pytest.mark.reference
 def test_turn_about_the_polar_axis_is_a_longitude_shift(rng):
     # source: common practice; rotate(h, a, 0, 0) is f'(lon) = f(lon - a), i.e. a'_lm = e^{-i m a} a_lm
     lmax = 63
@@ -199,6 +208,7 @@ def test_turn_about_the_polar_axis_is_a_longitude_shift(rng):
     np.testing.assert_allclose(turned.coef, h.coef * np.exp(-1j * m * np.radians(a)), rtol=0, atol=1e-14)
 
 
+@pytest.mark.reference
 def test_rotation_to_brings_the_pole_to_the_point(rng):
     # source: scipy.special.sph_harm_y_all (direct sum); f'(target) = f(north pole) by definition
     h = random_harmonics(rng, 40)

@@ -40,6 +40,7 @@ def reference(h: Harmonics, weights: np.ndarray, colat: float, lon_deg: np.ndarr
 
 
 @pytest.mark.parametrize("nlon", [7, 40])
+@pytest.mark.reference
 def test_rings_with_their_own_weights_against_scipy(rng, nlon):
     h = random_harmonics(rng)
     colat = np.array([0.3, np.pi - 0.3, 1.1, np.pi - 1.1, np.pi / 2, 0.0, 2.9])

@@ -8,8 +8,9 @@ import numpy as np
 from matplotlib.figure import Figure
 from matplotlib.ticker import FuncFormatter
 
+from sphex.xr.units import typeset_units
 from sphex.plot.figures import (
-    _as_1d, FAINT, _figure, _FIGURE_STYLE, INK, _lat_label, _lon_label, PALETTE, _pretty_units,
+    _as_1d, FAINT, _figure, _FIGURE_STYLE, INK, _lat_label, _lon_label, PALETTE, 
     _style,
 )
 
@@ -251,7 +252,7 @@ def local_spectrum_figure(local: Any, global_power: Any = None, *,
             ax.set_ylim(max(min(lows) / 3.0, max(tops) / 1e10), max(tops) * 3.0)
         ax.xaxis.set_major_formatter(FuncFormatter(lambda v, _: f"{v:g}"))
         ax.set_xlabel("spherical-harmonic degree l")
-        ax.set_ylabel(ylabel + (f" [{_pretty_units(units)}]" if units else ""))
+        ax.set_ylabel(ylabel + (f" [{typeset_units(units)}]" if units else ""))
         ax.grid(True, which="major", color=FAINT, lw=0.6)
         ax.grid(True, which="minor", color=FAINT, lw=0.3, alpha=0.6)
         ax.set_axisbelow(True)

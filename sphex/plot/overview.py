@@ -15,8 +15,9 @@ from matplotlib import colors as mcolors
 from matplotlib.figure import Figure
 from matplotlib.ticker import FuncFormatter
 
+from sphex.xr.units import typeset_units
 from sphex.plot.figures import (
-    _COLOUR_MAPS, _FIGURE_STYLE, _as_1d, _figure, _pretty_units, _style, FAINT, INK, PALETTE,
+    _COLOUR_MAPS, _FIGURE_STYLE, _as_1d, _figure, _style, FAINT, INK, PALETTE,
     PAPER,
 )
 
@@ -92,7 +93,7 @@ def equal_area_map_figure(values: Any, lat: Any, lon: Any, *, units: str | None 
                           aspect=45, shrink=0.8)
         text = label or ""
         if units:
-            text = f"{text} [{_pretty_units(units)}]".strip()
+            text = f"{text} [{typeset_units(units)}]".strip()
         cb.set_label(text)
         cb.outline.set_linewidth(0.5)
         if title:
@@ -249,7 +250,7 @@ def band_power_figure(steps: Any, bands: Sequence[tuple[int, int]], power: Any, 
                     label=f"degrees {l1}-{l2}")
         ax.set_yscale("log")
         ax.set_xlabel(xlabel)
-        ax.set_ylabel("band power" + (f" [{_pretty_units(units)}]" if units else ""))
+        ax.set_ylabel("band power" + (f" [{typeset_units(units)}]" if units else ""))
         ax.grid(True, color=FAINT, lw=0.6)
         ax.legend(frameon=False, fontsize=8.5)
         if title:

@@ -8,8 +8,9 @@ from matplotlib import colors as mcolors
 from matplotlib.figure import Figure
 from matplotlib.ticker import FuncFormatter, LogLocator, NullFormatter
 
+from sphex.xr.units import typeset_units
 from sphex.plot.figures import (
-    _as_1d, FAINT, _figure, _FIGURE_STYLE, INK, map_figure, PALETTE, _pretty_units, _style,
+    _as_1d, FAINT, _figure, _FIGURE_STYLE, INK, map_figure, PALETTE, _style,
 )
 
 __all__ = ["energy_figure", "wind_map_figure"]
@@ -106,7 +107,7 @@ def energy_figure(rotational: Any, divergent: Any, *, units: str | None = None,
         ax.set_xscale("log")
         ax.set_yscale("log")
         ax.set_xlabel("spherical-harmonic degree l")
-        ax.set_ylabel("kinetic energy per degree" + (f" [{_pretty_units(units)}]" if units else ""))
+        ax.set_ylabel("kinetic energy per degree" + (f" [{typeset_units(units)}]" if units else ""))
         ax.grid(True, which="major", color=FAINT, lw=0.6)
         ax.grid(True, which="minor", color=FAINT, lw=0.3, alpha=0.6)
         ax.set_axisbelow(True)
@@ -175,7 +176,7 @@ def wind_map_figure(field: Any, east: Any, north: Any, *, arrows: int = 28,
     if speed > 0:
         ref = float(f"{speed / 2:.1g}")
         text = arrow_units if arrow_units is not None else getattr(east, "attrs", {}).get("units")
-        ax.quiverkey(q, 0.93, 1.035, ref, f"{ref:g}" + (f" {_pretty_units(text)}" if text else ""),
+        ax.quiverkey(q, 0.93, 1.035, ref, f"{ref:g}" + (f" {typeset_units(text)}" if text else ""),
                      labelpos="W", coordinates="axes", color=INK, fontproperties={"size": 8.5})
     return fig
 
