@@ -72,6 +72,7 @@ FILT = "sphex/filters.py"
 REC = "sphex/kernels/recursion.py"
 GAUSS = "sphex/kernels/gauss.py"
 SCAL = "sphex/kernels/scalar.py"
+XR_FIELDS = "sphex/xr/fields.py"
 
 T_GRIDS = "tests/test_grids.py"
 T_LEG = "tests/test_legendre.py"
@@ -80,6 +81,7 @@ T_TRANS = "tests/test_transform.py"
 T_SPEC = "tests/test_spectra.py"
 T_FILT = "tests/test_filters.py"
 T_CLOSED = "tests/test_weights_closed_forms.py"
+T_XR_FIELDS = "tests/test_xr_fields.py"
 
 MUTATIONS: list[Mutation] = [
     # ---------------------------------------------------------------- grids
@@ -333,6 +335,13 @@ MUTATIONS: list[Mutation] = [
                   "path keeps the real part only; measured: fields and gradients identical with and "
                   "without imaginary a_l0 of 1e-11; the kernel compiled without the guard rounds one "
                   "gradient differently by 4e-16 relative"),
+    # ---------------------------------------------------------------- xarray smoothing
+    _m("xr-band-taper-padded-with-ones", XR_FIELDS,
+       "w = np.concatenate([w, np.zeros(lmax + 1 - w.size)])",
+       "w = np.concatenate([w, np.ones(lmax + 1 - w.size)])", T_XR_FIELDS),
+    _m("xr-cap-radius-halved", XR_FIELDS,
+       "w = filters.cap(float(cap_deg), lmax)", "w = filters.cap(float(cap_deg) / 2, lmax)",
+       T_XR_FIELDS),
 ]
 
 

@@ -86,6 +86,47 @@ def test_smooth_matches_filtering_by_hand_and_keeps_the_grid(rng):
         sxr.smooth(da, gaussian_km=100.0, cap_deg=2.0, planet_radius_km=6371.0)
 
 
+@pytest.mark.reference
+def test_smooth_band_removes_every_degree_from_l2_on(rng):
+    # the taper keeps degrees <= L1 whole and removes degrees >= L2 (its definition, written out
+    # degree by degree with math.cos in test_filters); on a degree-20 field, band=(2, 4) must
+    # leave nothing from degree 4 on. Measured: 1e-31 of the field's power there; a taper padded
+    # with ones above its last degree would leave 95 % of it.
+    grid = sphex.Grid.gauss(20)
+    h = random_harmonics(rng, 20)
+    da = xr.DataArray(sphex.synthesize(h, grid), dims=("lat", "lon"),
+                      coords={"lat": grid.lat, "lon": grid.lon}, name="g")
+    out = sxr.smooth(da, band=(2, 4))
+    back = sphex.analyze(out.values, grid)
+    p_in, p_out = degree_power(h), degree_power(back)
+    assert p_out[4:].sum() < 1e-24 * p_in[4:].sum()
+    np.testing.assert_allclose(p_out[:3], p_in[:3], rtol=1e-12)
+    # degree 3 sits halfway down the raised cosine: weight 1/2, power 1/4 (common practice)
+    np.testing.assert_allclose(p_out[3], 0.25 * p_in[3], rtol=1e-12)
+
+
+@pytest.mark.reference
+def test_smooth_cap_averages_over_a_cap_of_the_given_radius(rng):
+    # source: the mean over a spherical cap of angular radius r multiplies degree l by
+    # w_l = integral_{cos r}^{1} P_l(x) dx / (1 - cos r) (Funk-Hecke theorem; common practice),
+    # integrated here with scipy.integrate.quad and scipy.special.eval_legendre; a cap of half
+    # the radius gives other weights (0.03 relative at degree 10 for r = 12 degrees).
+    from scipy.integrate import quad
+    from scipy.special import eval_legendre
+
+    grid = sphex.Grid.gauss(24)
+    h = random_harmonics(rng, 24)
+    da = xr.DataArray(sphex.synthesize(h, grid), dims=("lat", "lon"),
+                      coords={"lat": grid.lat, "lon": grid.lon}, name="g")
+    r = np.radians(12.0)
+    w = np.array([quad(lambda x, l=l: eval_legendre(l, x), np.cos(r), 1.0, epsabs=1e-15,
+                       epsrel=1e-13)[0] for l in range(25)]) / (1.0 - np.cos(r))
+    out = sxr.smooth(da, cap_deg=12.0)
+    back = sphex.analyze(out.values, grid)
+    np.testing.assert_allclose(back.coef, h.coef * w[:, None], rtol=0,
+                               atol=1e-12 * np.abs(h.coef).max())
+
+
 def test_regrid_between_grid_kinds_reproduces_a_band_limited_field():
     src = sphex.Grid.gauss(12)
     da = xr.DataArray(band_limited_field(src.lat, src.lon), dims=("lat", "lon"),
