@@ -321,7 +321,7 @@ def report_failure(command: str | None, exc: BaseException) -> int:
     sphex: ``sphex COMMAND: internal error: ...`` with a hint to rerun with
     ``--debug`` for the traceback, and status 70.
     """
-    if isinstance(exc, (UserError, ValueError)):
+    if isinstance(exc, (UserError, ValueError)) or callable(getattr(exc, "shell_message", None)):
         return report_error(command, exc)
     if isinstance(exc, OSError):
         sys.stderr.write(f"{_where(command)}: error: {_os_message(exc)}\n")

@@ -37,7 +37,7 @@ def _colour_norm(values: np.ndarray, center: float | None, vmin: float | None,
 
 def equal_area_map_figure(values: Any, lat: Any, lon: Any, *, units: str | None = None,
                           label: str | None = None, title: str | None = None,
-                          cmap: Any = "relief", center: float | None = None,
+                          cmap: Any = "strata", center: float | None = None,
                           vmin: float | None = None, vmax: float | None = None) -> Figure:
     """A global field on matplotlib's Mollweide (equal-area) projection.
 
@@ -50,7 +50,7 @@ def equal_area_map_figure(values: Any, lat: Any, lon: Any, *, units: str | None 
     units, label, title : str, optional
         Colour-bar units and label, title.
     cmap : str or Colormap
-        ``"relief"``, ``"heat"``, ``"amplitude"`` or a matplotlib colour map.
+        ``"strata"``, ``"ember"``, ``"tilt"`` or a matplotlib colour map.
     center, vmin, vmax : float, optional
         Middle and limits of the colour scale.
 

@@ -57,8 +57,8 @@ def _thinned(values: np.ndarray, lat: np.ndarray, lon: np.ndarray
 def _map_images(s: Subject, values: np.ndarray, lat: np.ndarray, lon: np.ndarray,
                 what: str) -> str:
     values, lat, lon = _thinned(values, lat, lon)
-    cmap = "relief" if np.nanmin(values) < 0 < np.nanmax(values) else "heat"
-    center = 0.0 if cmap == "relief" else None
+    cmap = "strata" if np.nanmin(values) < 0 < np.nanmax(values) else "ember"
+    center = 0.0 if cmap == "strata" else None
     label = s.long_name or s.variable or "field"
     ea = _image(equal_area_map_figure(values, lat, lon, units=s.units, label=label, cmap=cmap,
                                       center=center, title=f"{what}: equal-area view"),
@@ -137,7 +137,7 @@ def _smoothed_section(s: Subject, h: Harmonics, grid: Any, lmax: int, vmin: floa
              f"one half at the stated distance on a sphere of radius {radius:g} km.{assumed}</p>"
              '<div class="pair">']
     center = 0.0 if vmin < 0 < vmax else None
-    cmap = "relief" if center == 0.0 else "heat"
+    cmap = "strata" if center == 0.0 else "ember"
     for r in smoothing_radii(lmax, radius):
         w = gaussian(r, lmax, radius)
         values, lat, lon = _thinned(_values_on(s, h.filter(w), grid), np.asarray(grid.lat),
@@ -205,7 +205,7 @@ def _comparison_section(s: Subject, other: Subject, h1: Harmonics, h2: Harmonics
                               title="Ratio of the spectra"), "ratio of the spectra")
     diff, lat, lon = _thinned(_values_on(s, Harmonics(a.coef - b.coef, units=a.units), grid),
                               np.asarray(grid.lat), np.asarray(grid.lon))
-    dimg = _image(plot.map_figure(diff, lat, lon, units=s.units, cmap="relief", center=0.0,
+    dimg = _image(plot.map_figure(diff, lat, lon, units=s.units, cmap="strata", center=0.0,
                                   label=f"{s.label} minus {other.label}",
                                   title="Difference of the fields"), "map of the difference")
     above = int(np.sum(np.abs(r[1:]) > sig[1:]))
