@@ -135,7 +135,7 @@ def test_masked_cells_of_a_file_are_refused_by_the_command_line(tmp_path, grid, 
         path, encoding={"f": {"_FillValue": -32767.0}})  # read back as NaN by xarray
     out = tmp_path / "c.nc"
     r = run("analyze", path, "-o", out)
-    assert_one_line_error(r.returncode, r.stderr, "1 missing value", "fit_masked")
+    assert_one_line_error(r.returncode, r.stderr, "1 missing value", "--missing fit")
     assert sorted(p.name for p in tmp_path.iterdir()) == ["filled.nc"]
 
 

@@ -13,7 +13,8 @@ Every figure function is re-exported here: ``from sphex import plot``, then
 from __future__ import annotations
 
 from sphex.plot.figures import (
-    PALETTE, ember, isotropy_figure, map_figure, power_figure, save, strata, tilt,
+    FEW_COEFFICIENTS, PALETTE, ember, isotropy_figure, map_figure, power_figure, save, strata,
+    tilt,
 )
 from sphex.plot.local import cap_outline, draw_cap, local_spectrum_figure
 from sphex.plot.models import model_spectrum_figure
@@ -22,7 +23,7 @@ from sphex.plot.overview import (
 )
 from sphex.plot.winds import energy_figure, wind_map_figure
 
-__all__ = ["PALETTE", "strata", "ember", "tilt", "power_figure", "map_figure", "isotropy_figure",
+__all__ = ["FEW_COEFFICIENTS", "PALETTE", "strata", "ember", "tilt", "power_figure", "map_figure", "isotropy_figure",
            "save",
            "energy_figure", "wind_map_figure", "cap_outline", "draw_cap", "local_spectrum_figure",
            "model_spectrum_figure", "equal_area_map_figure", "cumulative_figure",

@@ -157,6 +157,15 @@ def _sigmas(ds: xr.Dataset) -> Harmonics | None:
     sig.attrs["normalization"] = ds.attrs.get("sigma_normalization", ds.attrs.get("normalization"))
     sig.attrs["phase_convention"] = ds.attrs.get("sigma_phase_convention",
                                                  ds.attrs.get("phase_convention"))
+    # the attributes that restate the convention follow the sigmas' own convention
+    from sphex.xr.conventions import NORM_MEANING
+
+    norm = str(sig.attrs["normalization"])
+    if norm in NORM_MEANING:
+        sig.attrs["normalization_meaning"] = NORM_MEANING[norm]
+    sig.attrs["condon_shortley_phase"] = np.int8(
+        str(sig.attrs["phase_convention"]).lower() == "condon-shortley")
+    sig.attrs.pop("real_form", None)
     return to_harmonics(sig)
 
 
