@@ -92,7 +92,7 @@ def make_topography():
     coef = np.zeros((lmax + 1, lmax + 1), dtype=complex)
     for l in range(3, lmax + 1):
         power = 9.0e5 * l ** -2.4            # m^2 per degree (area mean of h^2)
-        # ortho: power_l = (a_l0^2 + 2 sum |a_lm|^2) / (4 pi) -> per real unit sigma^2
+        # orthonormal: power_l = (a_l0^2 + 2 sum |a_lm|^2) / (4 pi) -> per real unit sigma^2
         sigma = np.sqrt(4 * np.pi * power / (2 * l + 1))
         re = rng.normal(0.0, sigma / np.sqrt(2), l + 1)
         im = rng.normal(0.0, sigma / np.sqrt(2), l + 1)

@@ -38,8 +38,17 @@ __all__ = ["for_order", "all_orders", "derivative_for_order", "NORMS", "norm_sca
 NORMS = ("orthonormal", "full", "schmidt", "unnormalized")
 
 
-# clipped spellings that earlier versions accepted, mapped to the full words
-_RETIRED_NORMS = {'ortho': 'orthonormal', '4pi': 'full', 'unnorm': 'unnormalized'}
+# the digit-led spelling of the fully normalised convention that earlier versions accepted
+_RETIRED_NORMS = {'4pi': 'full'}
+
+
+def _clipped(norm: str) -> str | None:
+    """The full name that ``norm`` clips (a shorter beginning of it, 3 letters or more)."""
+    word = norm.strip().lower()
+    if len(word) < 3:
+        return None
+    found = [n for n in NORMS if n.startswith(word) and n != word]
+    return found[0] if len(found) == 1 else None
 
 
 def check_norm(norm) -> str:
@@ -48,9 +57,10 @@ def check_norm(norm) -> str:
     The names are the trade's full words (``NORMS``); clipped spellings are
     refused with the word that replaces them.
     """
-    if isinstance(norm, str) and norm in _RETIRED_NORMS:
+    full = (_RETIRED_NORMS.get(norm) or _clipped(norm)) if isinstance(norm, str) else None
+    if full is not None:
         raise ValueError(f"normalisation {norm!r} is no longer accepted: use "
-                         f"{_RETIRED_NORMS[norm]!r} (valid: {', '.join(repr(n) for n in NORMS)})")
+                         f"{full!r} (valid: {', '.join(repr(n) for n in NORMS)})")
     if norm not in NORMS:
         raise ValueError(f"unknown normalisation {norm!r}; valid: {', '.join(repr(n) for n in NORMS)}")
     return norm
@@ -58,7 +68,7 @@ def check_norm(norm) -> str:
 
 @functools.lru_cache(maxsize=8)
 def _sectoral_table(lmax: int) -> np.ndarray:
-    """c_m = sqrt(1/(4 pi) prod_{k<=m} (2k+1)/(2k)): P_mm = c_m sin^m (ortho, no phase).
+    """c_m = sqrt(1/(4 pi) prod_{k<=m} (2k+1)/(2k)): P_mm = c_m sin^m (orthonormal, no phase).
 
     Accumulated in extended precision (long double) and rounded once.
     """

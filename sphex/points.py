@@ -331,10 +331,10 @@ def evaluate_adjoint(values, lat, lon, lmax: int, *, radius=None, reference_radi
             raise ValueError(f"reference_radius must be a positive number of metres, got {reference_radius!r}")
         factors = RadialFactors(points, reference_radius, radius, lmax, lat_a.shape)
     coef = adjoint_sums(points, factors, y.reshape((-1, points.size)), lmax)
-    # b = w_m (G)^T-convention: evaluate(a) = E_ortho(G a) with a^ortho = G a, so the
+    # b = w_m (G)^T-convention: evaluate(a) = E_orthonormal(G a) with a^orthonormal = G a, so the
     # adjoint in the requested convention is G times the orthonormal one
-    ortho = Harmonics(coef, norm="orthonormal", condon_shortley=False)
-    factor = ortho.replace(coef=np.ones((lmax + 1, lmax + 1), complex)).to(norm, condon_shortley).coef
+    orthonormal = Harmonics(coef, norm="orthonormal", condon_shortley=False)
+    factor = orthonormal.replace(coef=np.ones((lmax + 1, lmax + 1), complex)).to(norm, condon_shortley).coef
     with np.errstate(divide="ignore", invalid="ignore"):
         g = np.where(factor != 0, 1.0 / factor, 0.0).real
     out = coef * np.tril(g)

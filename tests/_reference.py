@@ -31,16 +31,16 @@ def scipy_lambda(l: int, m: int, theta, norm: str, condon_shortley: bool) -> np.
     ``scipy.special.sph_legendre_p`` is the orthonormal function *with* the
     Condon-Shortley phase (its docstring: the factor sqrt((2n+1)(n-m)!/(4 pi (n+m)!))
     times assoc_legendre_p, which carries (-1)^m).  The other normalisations are
-    the definitions of the core API: 4pi = sqrt(4 pi) ortho, schmidt =
-    sqrt(4 pi / (2l+1)) ortho; unnorm from scipy.special.assoc_legendre_p.
+    the definitions of the core API: full = sqrt(4 pi) orthonormal, schmidt =
+    sqrt(4 pi / (2l+1)) orthonormal; unnormalized from scipy.special.assoc_legendre_p.
     """
     theta = np.asarray(theta, dtype=float)
     phase = 1.0 if condon_shortley else (-1.0) ** m
     # scipy >= 1.15 returns a leading axis over derivative orders (diff_n + 1 entries).
     # sph_legendre_p takes theta itself, so sin(theta) keeps full relative precision next to
     # the poles (assoc_legendre_p takes x = cos(theta), where 1 - x^2 loses digits there).
-    ortho = sps.sph_legendre_p(l, m, theta)[0]
-    return phase * norm_factor_from_ortho(l, m, norm) * ortho
+    orthonormal = sps.sph_legendre_p(l, m, theta)[0]
+    return phase * norm_factor_from_orthonormal(l, m, norm) * orthonormal
 
 
 def scipy_unnorm_from_x(l: int, m: int, x) -> np.ndarray:
@@ -60,8 +60,8 @@ def scipy_lambda_dtheta(l: int, m: int, theta, norm: str, condon_shortley: bool)
     return phase * factor * d
 
 
-def norm_factor_from_ortho(l: int, m: int, norm: str) -> float:
-    """Lambda_lm(norm) / Lambda_lm(ortho), from the definitions of the core API (exact factorials)."""
+def norm_factor_from_orthonormal(l: int, m: int, norm: str) -> float:
+    """Lambda_lm(norm) / Lambda_lm(orthonormal), from the definitions of the core API (exact factorials)."""
     if norm == "orthonormal":
         return 1.0
     if norm == "full":
@@ -264,11 +264,11 @@ def complex_form_field(coef: np.ndarray, colat: np.ndarray, lon_rad: np.ndarray,
 
 
 def norm_factor_array(lmax: int, norm: str) -> np.ndarray:
-    """(lmax+1, lmax+1) array [l, m] of norm_factor_from_ortho (1 where m > l)."""
+    """(lmax+1, lmax+1) array [l, m] of norm_factor_from_orthonormal (1 where m > l)."""
     out = np.ones((lmax + 1, lmax + 1))
     for l in range(lmax + 1):
         for m in range(l + 1):
-            out[l, m] = norm_factor_from_ortho(l, m, norm)
+            out[l, m] = norm_factor_from_orthonormal(l, m, norm)
     return out
 
 

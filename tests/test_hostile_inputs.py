@@ -273,7 +273,7 @@ def test_inconsistent_coefficient_files_are_refused(tmp_path, capsys, files, cha
      ("phase_convention = 'condon-shortley' and condon_shortley_phase = 0 contradict",)),
     ({"phase_convention": "none"},
      ("phase_convention = 'none' and condon_shortley_phase = 1 contradict",)),
-    ({"normalization": "4pi"}, ("normalization = '4pi'", "'orthonormal', 'full'")),
+    ({"normalization": '4pi'}, ("normalization = '4pi'", "'orthonormal', 'full'")),
     ({"normalization": "full"}, ("normalization_meaning describes 'orthonormal'",)),
     ({"condon_shortley_phase": np.int8(3)}, ("condon_shortley_phase = 3",)),
     ({"reference_radius": 6.4e6, "reference_radius_units": "furlong"},

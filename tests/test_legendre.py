@@ -14,7 +14,7 @@ from _reference import (
     mp_ortho_column,
     mp_ortho_column_dtheta,
     mp_to_float,
-    norm_factor_from_ortho,
+    norm_factor_from_orthonormal,
     scipy_lambda,
     scipy_lambda_dtheta,
     scipy_unnorm_from_x,
@@ -62,7 +62,7 @@ def test_for_order_matches_scipy(norm, condon_shortley):
         got = legendre.for_order(m, lmax, COLAT, norm=norm, condon_shortley=condon_shortley)
         assert got.shape == (lmax + 1 - m, COLAT.size)
         ref = np.array([scipy_lambda(l, m, COLAT, norm, condon_shortley) for l in range(m, lmax + 1)])
-        scale = np.array([norm_factor_from_ortho(l, m, norm) for l in range(m, lmax + 1)])
+        scale = np.array([norm_factor_from_orthonormal(l, m, norm) for l in range(m, lmax + 1)])
         worst = max(worst, order_error(got, ref, scale))
     assert worst < 1e-13, worst
 
@@ -79,7 +79,7 @@ def test_all_orders_matches_scipy_and_for_order(norm, condon_shortley):
     ref_all = sps.sph_legendre_p_all(lmax, lmax, COLAT)[0]  # (diff, l, m index, point)
     for m in range(lmax + 1):
         l = np.arange(m, lmax + 1)
-        scale = np.array([norm_factor_from_ortho(int(k), m, norm) for k in l])
+        scale = np.array([norm_factor_from_orthonormal(int(k), m, norm) for k in l])
         phase = 1.0 if condon_shortley else (-1.0) ** m
         ref = phase * ref_all[m:, m, :] * scale[:, None]
         # 1e-13: measured 1.7e-14 (the same recursion errors as test_for_order_matches_scipy)
@@ -97,7 +97,7 @@ def test_values_at_the_poles(norm):
     lmax = 40
     for m in range(lmax + 1):
         l = np.arange(m, lmax + 1)
-        scale = np.array([norm_factor_from_ortho(int(k), m, norm) for k in l])
+        scale = np.array([norm_factor_from_orthonormal(int(k), m, norm) for k in l])
         size = np.sqrt((2 * l + 1) / (4 * np.pi)) * scale  # |Lambda_l0| at a pole
         north = legendre.for_order(m, lmax, np.array([0.0]), norm=norm)[:, 0]
         south = legendre.for_order(m, lmax, np.array([np.pi]), norm=norm)[:, 0]
@@ -119,7 +119,7 @@ def test_unnormalised_matches_scipy_assoc_legendre_in_x():
     for m in range(lmax + 1):
         got = legendre.for_order(m, lmax, colat, norm="unnormalized", condon_shortley=True)
         ref = np.array([scipy_unnorm_from_x(l, m, np.cos(colat)) for l in range(m, lmax + 1)])
-        scale = np.array([norm_factor_from_ortho(l, m, "unnormalized") for l in range(m, lmax + 1)])
+        scale = np.array([norm_factor_from_orthonormal(l, m, "unnormalized") for l in range(m, lmax + 1)])
         assert order_error(got, ref, scale) < 1e-13
 
 
@@ -283,7 +283,7 @@ def test_derivative_matches_scipy(norm, condon_shortley):
         got = legendre.derivative_for_order(m, lmax, COLAT_INTERIOR, norm=norm, condon_shortley=condon_shortley)
         assert got.shape == (lmax + 1 - m, COLAT_INTERIOR.size)
         ref = np.array([scipy_lambda_dtheta(l, m, COLAT_INTERIOR, norm, condon_shortley) for l in range(m, lmax + 1)])
-        scale = np.array([norm_factor_from_ortho(l, m, norm) for l in range(m, lmax + 1)])
+        scale = np.array([norm_factor_from_orthonormal(l, m, norm) for l in range(m, lmax + 1)])
         # floor: where an order's derivative vanishes at a point (l = m at the equator) the
         # error is measured against 1% of the order's size over all points
         worst = max(worst, order_error(got, ref, scale, floor=1e-2))
@@ -347,7 +347,10 @@ def test_unknown_normalisation_rejected():
     # the message names the argument and lists the valid values
     with pytest.raises(ValueError, match="(?is)orthonormal.*full"):
         legendre.for_order(0, 5, np.array([0.5]), norm="bogus")
-    # the clipped spellings of earlier versions are refused with the word that replaces each
-    for old, new in (('ortho', 'orthonormal'), ('4pi', 'full'), ('unnorm', 'unnormalized')):
+    # clipped spellings (any shorter beginning of a name, 3 letters or more) and the
+    # digit-led one of earlier versions are refused with the word that replaces each
+    cases = [(name[:k], name) for name in legendre.NORMS for k in {3, 5, len(name) - 1}
+             if 3 <= k < len(name)]
+    for old, new in cases + [('4pi', 'full')]:
         with pytest.raises(ValueError, match=f"(?s)no longer accepted: use '{new}'"):
             legendre.all_orders(5, np.array([0.5]), norm=old)

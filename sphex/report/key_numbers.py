@@ -107,8 +107,8 @@ def _degree_one(h: Harmonics) -> tuple[float, float, float]:
 def field_rows(h: Harmonics, units: str, slope: tuple[float, int, int] | None,
                 degrees: list[int]) -> list[Row]:
     p = degree_power(h)
-    ortho = h.to(norm="orthonormal", condon_shortley=True)
-    mean = float(ortho.coef[0, 0].real / np.sqrt(4.0 * np.pi))
+    orthonormal = h.to(norm="orthonormal", condon_shortley=True)
+    mean = float(orthonormal.coef[0, 0].real / np.sqrt(4.0 * np.pi))
     amp, lat1, lon1 = _degree_one(h)
     sq = _squared(units)
     rows = [
