@@ -170,7 +170,7 @@ def _through_a_terminal(args):
 
 
 def test_smooth_progress_advances_on_a_terminal_and_stays_quiet_in_a_pipe(tmp_path):
-    grid = sphex.Grid.equiangular(301, 600, "poles")
+    grid = sphex.Grid.equiangular(513, 1024, "poles")    # about a second of work: frames to see
     random_field_file(tmp_path / "s24.nc", 40, grid, np.random.default_rng(8), steps=24)
     text = _through_a_terminal(["smooth", tmp_path / "s24.nc", "--band", "30:50", "-o",
                                 tmp_path / "out.nc"])
