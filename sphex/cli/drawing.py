@@ -6,7 +6,7 @@ from typing import Any
 
 from sphex.cli.progress import announce_kernel_preparation
 from sphex.cli.shared import (
-    UserError, add_command, grid_of, load_variable, open_input, say, target_grid,
+    UserError, add_command, grid_of, is_coefficient_file, load_variable, say, target_grid,
 )
 
 EXAMPLE = """\
@@ -66,7 +66,7 @@ def run(a: argparse.Namespace) -> int:
     from sphex.xr.output import check_output_path
 
     check_output_path(a.output, a.overwrite)
-    if _is_coefficients(a.input):
+    if is_coefficient_file(a.input):
         da = _synthesised(a)
     else:
         if a.grid or a.lmax is not None:
@@ -85,18 +85,6 @@ def run(a: argparse.Namespace) -> int:
         f"right{', colours centred on 0' if signed else ''}")
     return 0
 
-
-def _is_coefficients(path: str) -> bool:
-    from sphex.xr.coefficients import is_coefficients
-    from sphex.xr.tables import is_table_file
-
-    if is_table_file(path):
-        return True
-    ds = open_input(path)
-    try:
-        return is_coefficients(ds)
-    finally:
-        ds.close()
 
 
 def _synthesised(a: argparse.Namespace) -> Any:

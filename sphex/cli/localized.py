@@ -8,9 +8,8 @@ from pathlib import Path
 from typing import Any
 
 from sphex.cli.shared import (
-    UserError, add_command, cap_radius, check_paths, count_fields, grid_of, load_variable,
-    progress_bar, say,
-    whole_number,
+    UserError, add_command, cap_radius, check_paths, count_fields, grid_of, is_coefficient_file,
+    load_variable, progress_bar, say, whole_number,
 )
 
 EXAMPLE = """\
@@ -145,7 +144,7 @@ def _one_field(a: argparse.Namespace) -> tuple[Any, str]:
 
     chosen = a.pick or {}
     where = ", ".join(f"{d}={i}" for d, i in chosen.items())
-    if _is_coefficient_file(a.input):
+    if is_coefficient_file(a.input):
         ds = open_coefficients(a.input)
         _check_pick(ds, chosen, a.input)
         ds = ds.isel(chosen)
@@ -166,19 +165,6 @@ def _one_field(a: argparse.Namespace) -> tuple[Any, str]:
     extra = [d for d in ds["cos_coef"].dims if d not in ("degree", "order")]
     return (ds.isel({d: 0 for d in extra}) if extra else ds), source
 
-
-def _is_coefficient_file(path: str) -> bool:
-    from sphex.cli.shared import open_input
-    from sphex.xr.coefficients import is_coefficients
-    from sphex.xr.tables import is_table_file
-
-    if is_table_file(path):
-        return True
-    ds = open_input(path)
-    try:
-        return is_coefficients(ds)
-    finally:
-        ds.close()
 
 
 def _refuse_many(obj: Any, path: str, core: tuple) -> None:

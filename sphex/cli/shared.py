@@ -24,7 +24,8 @@ __all__ = [
     "whole_number", "positive_number", "distance_km", "cap_radius", "chunk_spec", "degree_range",
     "open_input", "load_variable", "grid_of", "target_grid", "count_fields", "write_field",
     "keep_precision", "Progress", "progress_bar", "say", "report_error", "report_failure",
-    "check_paths", "grid_file", "one_line_warnings", "EXIT_USER_ERROR", "EXIT_INTERNAL_ERROR",
+    "check_paths", "is_coefficient_file", "grid_file", "one_line_warnings", "EXIT_USER_ERROR",
+    "EXIT_INTERNAL_ERROR",
     "EXIT_INTERRUPTED", "DEBUG_VARIABLE",
 ]
 
@@ -366,3 +367,18 @@ def check_paths(inputs: list, outputs: list, overwrite: bool) -> None:
     for path in outputs:
         if path is not None:
             check_output_path(path, overwrite)
+
+
+def is_coefficient_file(path: str) -> bool:
+    """Whether ``path`` holds coefficients (a text table, or netCDF in sphex's layout) rather
+    than a gridded field."""
+    from sphex.xr.coefficients import is_coefficients
+    from sphex.xr.tables import is_table_file
+
+    if is_table_file(path):
+        return True
+    ds = open_input(path)
+    try:
+        return is_coefficients(ds)
+    finally:
+        ds.close()

@@ -17,8 +17,8 @@ from typing import Any
 from sphex.cli.progress import announce_kernel_preparation
 from sphex.cli.radius import add_radius_option, choose_radius
 from sphex.cli.shared import (
-    UserError, add_command, check_paths, count_fields, degree_range, grid_of, load_variable,
-    open_input, progress_bar, say, whole_number,
+    UserError, add_command, check_paths, count_fields, degree_range, grid_of, is_coefficient_file,
+    load_variable, progress_bar, say, whole_number,
 )
 
 EXAMPLE = """\
@@ -150,7 +150,7 @@ def _read_input(path: str, var: str | None, lmax: int | None) -> SpectrumInput:
     """The coefficients of one input (read, or analysed from a grid file)."""
     from sphex.xr.files import open_coefficients
 
-    if _looks_like_coefficients(path):
+    if is_coefficient_file(path):
         ds = open_coefficients(path)
         if lmax is not None:
             if lmax > ds.sizes["degree"] - 1:
@@ -221,15 +221,3 @@ def _run_model(a: argparse.Namespace) -> int:
     say(*lines)
     return 0
 
-
-def _looks_like_coefficients(path: str) -> bool:
-    from sphex.xr.coefficients import is_coefficients
-    from sphex.xr.tables import is_table_file
-
-    if is_table_file(path):
-        return True
-    ds = open_input(path)
-    try:
-        return is_coefficients(ds)
-    finally:
-        ds.close()
