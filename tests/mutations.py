@@ -11,6 +11,10 @@ tests can see; the text says what was measured.  A missed mutation means a
 missing test: add one that fails on the planted bug, or, when the change
 really is harmless, mark it equivalent with the measured reason.
 
+The list below covers the first modules; each later area keeps its own list in
+``tests/mutations_<area>.py`` (a ``MUTATIONS`` list built with ``_mutation._m``),
+which this script picks up by name.
+
 Run it from the repository root (it takes tens of minutes; not part of CI)::
 
     python tests/mutations.py              # every mutation, then the table
@@ -39,27 +43,14 @@ import subprocess
 import sys
 import tempfile
 import time
-from dataclasses import dataclass
+import importlib
 from pathlib import Path
 
 ROOT = Path(__file__).resolve().parent.parent
 KERNELS = "sphex/kernels/"
 
 
-@dataclass(frozen=True)
-class Mutation:
-    """One planted bug: ``original`` (exactly once in ``path``) becomes ``mutated``."""
-
-    name: str
-    path: str
-    original: str
-    mutated: str
-    tests: tuple[str, ...]
-    equivalent: str | None = None
-
-
-def _m(name, path, original, mutated, *tests, equivalent=None):
-    return Mutation(name, path, original, mutated, tuple(tests), equivalent)
+from _mutation import Mutation, _m  # noqa: E402  (tests/ is on sys.path when run)
 
 
 GRIDS = "sphex/grids.py"
@@ -342,6 +333,17 @@ MUTATIONS: list[Mutation] = [
        "w = filters.cap(float(cap_deg), lmax)", "w = filters.cap(float(cap_deg) / 2, lmax)",
        T_XR_FIELDS),
 ]
+
+
+def _more_lists() -> list[Mutation]:
+    """The mutations of the other lists, ``tests/mutations_*.py`` (one per area), in name order."""
+    found = []
+    for path in sorted(Path(__file__).resolve().parent.glob("mutations_*.py")):
+        found += importlib.import_module(path.stem).MUTATIONS
+    return found
+
+
+MUTATIONS += _more_lists()
 
 
 # ---------------------------------------------------------------------------
