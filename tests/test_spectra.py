@@ -382,6 +382,29 @@ def test_isotropy_table_errors():
     with pytest.raises(ValueError, match="degrees above 0"):
         isotropy_table(Harmonics(np.ones((1, 1), dtype=complex)))
 
+@pytest.mark.reference
+def test_correlation_significance_against_student_t_and_the_hat_box_theorem():
+    # source: scipy.stats.t.ppf.  For a direction uniform on the sphere of n = 2l + 1
+    # dimensions the cosine r with any fixed vector has r sqrt(n - 1) / sqrt(1 - r^2)
+    # distributed as Student's t with n - 1 degrees of freedom (common practice: the first of
+    # n normal numbers over the norm of the others), so the two-sided critical value is
+    # r_c = t / sqrt(t^2 + n - 1) with t = t.ppf((1 + level) / 2, n - 1).  At l = 1 (n = 3) the
+    # cosine is uniform on [-1, 1] (Archimedes' hat-box theorem, common practice): r_c = level.
+    from scipy.stats import t as student_t
+
+    from sphex.spectra import correlation_significance
+
+    for level in (0.5, 0.9, 0.95, 0.99):
+        r = correlation_significance(300, level=level)
+        n = 2.0 * np.arange(301) + 1.0
+        t = student_t.ppf((1.0 + level) / 2.0, n[1:] - 1.0)
+        ref = t / np.sqrt(t * t + n[1:] - 1.0)
+        # measured at most 2.1e-15 relative (two routes through the incomplete beta function)
+        np.testing.assert_allclose(r[1:], ref, rtol=1e-13)
+        assert abs(r[1] - level) < 1e-14
+        assert np.isnan(r[0])
+
+
 def test_correlation_significance_checks_its_arguments():
     from sphex.spectra import correlation_significance
 
