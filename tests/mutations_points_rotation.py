@@ -33,6 +33,8 @@ CG_CONDITION = T_PTS + "::test_condition_estimate_of_conjugate_gradients_matches
 MASKED = T_PTS + "::test_fit_masked_recovers_low_degree_field_under_a_30_percent_cap"
 DAMPING = T_PTS + "::test_damping_and_prior_shrink_toward_zero"
 POLES_2700 = T_PTS + "::test_evaluate_degree_2700_next_to_poles_against_mpmath"
+NORMAL_EQUATIONS = T_PTS + "::test_weighted_damped_fit_matches_numpy_normal_equations"
+DATA_UNITS = T_PTS + "::test_iterative_fit_does_not_depend_on_the_data_units"
 
 SYMPY_D = T_ROT + "::test_wigner_small_d_matches_sympy"
 SYMPY_PRODUCT = T_ROT + "::test_rotation_equals_sympy_d_matrix_product"
@@ -54,6 +56,7 @@ UNBIASED = T_LOC + "::test_multitaper_estimate_is_unbiased_for_a_stationary_fiel
 TURNED_CAP = T_LOC + "::test_localised_spectrum_is_the_same_wherever_the_cap_is_turned_to"
 ADMITTANCE = T_LOC + "::test_admittance_of_a_scaled_field_returns_the_transfer_function"
 SELF_CROSS = T_LOC + "::test_cross_power_of_a_field_with_itself_is_its_power"
+WINDOWED_QUADRATURE = T_LOC + "::test_local_power_at_the_pole_is_the_power_of_each_windowed_field_at_every_degree"
 
 MUTATIONS = [
     # ------------------------------------------------------------------ points.py
@@ -77,18 +80,20 @@ MUTATIONS = [
        MONTE_CARLO),
     _m("points-residual-rms-unweighted", PTS,
        "rms = np.sqrt(np.sum(w * residual ** 2, axis=-1) / np.sum(w))",
-       "rms = np.sqrt(np.mean(residual ** 2, axis=-1))", FIT, MONTE_CARLO),
+       "rms = np.sqrt(np.mean(residual ** 2, axis=-1))", FIT, MONTE_CARLO,
+       NORMAL_EQUATIONS),
     # ------------------------------------------------------------ least_squares.py
     _m("lsq-real-form-without-sqrt2", LSQ,
        "scale = np.where(self._m > 0, 1.0 / math.sqrt(2.0), 1.0)\n        coef[:, self._l, self._m]",
        "scale = np.where(self._m > 0, 1.0, 1.0)\n        coef[:, self._l, self._m]", FIT),
     _m("lsq-damping-scale-not-squared", LSQ,
-       "return d * scale ** 2 / var[basis.degree]", "return d * scale / var[basis.degree]", DAMPING),
+       "return d * scale ** 2 / var[basis.degree]", "return d * scale / var[basis.degree]", DAMPING,
+       NORMAL_EQUATIONS),
     _m("lsq-prior-indexed-by-order", LSQ,
        "return d * scale ** 2 / var[basis.degree]", "return d * scale ** 2 / var[basis.order]", DAMPING),
     _m("lsq-cg-absolute-stopping-test", LSQ,
        "cg(recorder.operator, rhs, rtol=tol, atol=0.0,", "cg(recorder.operator, rhs, rtol=0.0, atol=tol,",
-       FIT),
+       FIT, DATA_UNITS),
     _m("lsq-lanczos-off-diagonal-without-sqrt", LSQ,
        "off = np.sqrt(np.abs(beta[: k - 1])) / alpha[: k - 1]", "off = beta[: k - 1] / alpha[: k - 1]",
        CG_CONDITION),
@@ -152,24 +157,31 @@ MUTATIONS = [
        "scale = math.sqrt(4.0 * math.pi)  # unit mean square", "scale = 4.0 * math.pi  # unit mean square",
        UNBIASED),
     _m("loc-product-grid-too-coarse", LOC,
-       "grid = Grid.gauss(lmax + lwin)", "grid = Grid.gauss(lmax)", TURNED_CAP, UNBIASED),
+       "grid = Grid.gauss(lmax + lwin)", "grid = Grid.gauss(lmax)", TURNED_CAP, UNBIASED,
+       WINDOWED_QUADRATURE),
     _m("loc-coupling-without-2l-plus-1", LOC,
        "M *= (2.0 * np.arange(lmax_out + 1) + 1.0)[:, None]", "M *= (np.arange(lmax_out + 1) + 1.0)[:, None]",
        COUPLING),
+    _m("loc-multitaper-sum-not-mean", LOC,
+       "means = [s.mean(axis=0) for s in spectra]", "means = [s.sum(axis=0) for s in spectra]",
+       SELF_CROSS, UNBIASED),
     _m("loc-jackknife-factor", LOC,
        "error = np.sqrt((K - 1) / K * ", "error = np.sqrt(1.0 / K * ", SELF_CROSS),
     _m("loc-correlation-without-sqrt", LOC,
-       "den = np.sqrt(a * b)", "den = a * b", ADMITTANCE),
+       "den = np.sqrt(a * b)", "den = a * b", ADMITTANCE,
+       T_LOC + "::test_local_correlation_is_the_cross_power_over_the_root_of_the_powers"),
     _m("loc-valid-range-off-by-one", LOC,
        "valid_range=(windows.lwin, lmax - windows.lwin)", "valid_range=(windows.lwin, lmax - windows.lwin + 1)",
        UNBIASED, ADMITTANCE),
     # ------------------------------------------------------------------- spectra.py
     _m("spectra-significance-degrees-of-freedom", SPEC,
        "betaincinv(0.5, (n[1:] - 1.0) / 2.0, float(level))", "betaincinv(0.5, n[1:] / 2.0, float(level))",
-       T_SPEC + "::test_correlation_significance_checks_its_arguments"),
+       T_SPEC + "::test_correlation_significance_checks_its_arguments",
+       T_SPEC + "::test_correlation_significance_against_student_t_and_the_hat_box_theorem"),
     _m("spectra-significance-without-sqrt", SPEC,
        "out[1:] = np.sqrt(betaincinv(", "out[1:] = (betaincinv(",
-       T_SPEC + "::test_correlation_significance_checks_its_arguments"),
+       T_SPEC + "::test_correlation_significance_checks_its_arguments",
+       T_SPEC + "::test_correlation_significance_against_student_t_and_the_hat_box_theorem"),
     _m("spectra-isotropy-share-of-order-zero", SPEC,
        "weight = np.where(m == 0, 1.0, 2.0)                  # cosine and sine for m > 0",
        "weight = np.where(m == 0, 2.0, 2.0)                  # cosine and sine for m > 0",

@@ -222,6 +222,50 @@ def test_multitaper_estimate_is_unbiased_for_a_stationary_field(rng):
     assert np.all(np.abs(mean / expected - 1)[lo:hi + 1] < 0.15)
 
 
+def scipy_series(coef: np.ndarray, theta: np.ndarray, phi: np.ndarray) -> np.ndarray:
+    """sum_l [a_l0 Y_l0 + 2 Re sum_{m>0} a_lm Y_lm] on the mesh (theta, phi) (radians) with
+    scipy.special.sph_harm_y (orthonormal, Condon-Shortley phase) for a real field."""
+    lmax = coef.shape[-1] - 1
+    f = np.zeros((theta.size, phi.size))
+    for l in range(lmax + 1):
+        for m in range(l + 1):
+            y = sps.sph_harm_y(l, m, theta[:, None], phi[None, :])
+            f += (1.0 if m == 0 else 2.0) * np.real(coef[l, m] * y)
+    return f
+
+
+@pytest.mark.reference
+def test_local_power_at_the_pole_is_the_power_of_each_windowed_field_at_every_degree(rng):
+    # source: direct quadrature (numpy.polynomial.legendre.leggauss in latitude, equal steps in
+    # longitude, exact for these polynomial integrands) of the field times each window, both summed
+    # with scipy.special.sph_harm_y; the degree power of a field is the area mean of the square of
+    # its degree-l part, (|a_l0|^2 + 2 sum_m |a_lm|^2) / (4 pi) (common practice).  At the north
+    # pole no rotation is involved: each per-window spectrum must be that of the window, scaled to
+    # unit mean square, times the field, at every degree 0..lmax (the valid range and above it)
+    lmax, lwin, cap = 16, 4, 30.0
+    field = stationary_fields(rng, np.r_[0.0, 1.0 / np.arange(1, lmax + 1)], 1)
+    est = local_power(field, 90.0, 0.0, cap, lwin, n_windows=3)
+    n = lmax + lwin + 1                        # exact to degree 2n - 1 >= 2 lmax + lwin in cos(theta)
+    x, wx = np.polynomial.legendre.leggauss(n)
+    theta = np.arccos(x)
+    nlon = 2 * (lmax + lwin) + 2               # exact for orders up to 2 lmax + lwin
+    phi = 2 * np.pi * np.arange(nlon) / nlon
+    f = scipy_series(field.to("orthonormal", True).coef[0], theta, phi)
+    windows = cap_windows(cap, lwin)
+    for k in range(3):
+        # the window's coefficients are orthonormal without the phase: (-1)^m to the phase convention
+        g = windows.harmonics([k]).to("orthonormal", True).coef[0]
+        product = math.sqrt(4 * np.pi) * scipy_series(g, theta, phi) * f
+        power = np.zeros(lmax + 1)
+        for l in range(lmax + 1):
+            for m in range(l + 1):
+                y = sps.sph_harm_y(l, m, theta[:, None], phi[None, :])
+                a = np.sum(wx[:, None] * (2 * np.pi / nlon) * product * np.conj(y))
+                power[l] += (1.0 if m == 0 else 2.0) * abs(a) ** 2 / (4 * np.pi)
+        # measured at most 8.1e-15 of the largest degree's power
+        np.testing.assert_allclose(est.per_window[k, 0], power, rtol=0, atol=1e-13 * power.max())
+
+
 @pytest.mark.reference
 def test_localised_spectrum_is_the_same_wherever_the_cap_is_turned_to(rng):
     # source: common practice (rotation consistency): a field that vanishes outside the cap (a random
@@ -278,6 +322,28 @@ def test_cross_power_of_a_field_with_itself_is_its_power(rng):
     K = p.per_window.shape[0]
     np.testing.assert_allclose(p.error, p.per_window.std(axis=0, ddof=1) / np.sqrt(K), rtol=1e-10)
     np.testing.assert_allclose(p.power, p.per_window.mean(axis=0), rtol=1e-13)
+
+
+def test_local_correlation_is_the_cross_power_over_the_root_of_the_powers(rng):
+    # internal consistency with the documented definition S12 / sqrt(S11 S22) of the multitaper
+    # averages, for two partly correlated fields (values well inside (-1, 1), so that the clip to
+    # [-1, 1] hides nothing), and invariance under scaling either field
+    lmax, lwin, cap = 40, 8, 35.0
+    spectrum = np.r_[0.0, 1.0 / np.arange(1, lmax + 1)]
+    f = stationary_fields(rng, spectrum, 1)
+    g = f + 1.5 * stationary_fields(rng, spectrum, 1)
+    args = (-20.0, 140.0, cap, lwin, 4)      # the four best windows
+    r = local_correlation(f, g, *args)
+    x = local_cross_power(f, g, *args).power
+    p1 = local_power(f, *args).power
+    p2 = local_power(g, *args).power
+    lo, hi = r.valid_range
+    ref = x / np.sqrt(p1 * p2)
+    assert np.all(np.abs(ref[..., lo:hi + 1]) < 0.9)
+    np.testing.assert_allclose(r.value, ref, rtol=1e-12)
+    scaled = local_correlation(1e3 * f, 1e-2 * g, *args)
+    np.testing.assert_allclose(scaled.value, r.value, rtol=1e-12)
+    np.testing.assert_allclose(scaled.error, r.error, rtol=1e-9)
 
 
 def test_conventions_and_batches_give_the_same_localised_spectrum(rng):
