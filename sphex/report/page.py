@@ -16,9 +16,12 @@ __all__ = ["SECTIONS", "Row", "Image", "png_size", "degree_order_picture", "Page
 
 #: Section ids in page order (those that apply to the input appear).
 SECTIONS = ("provenance", "maps", "numbers", "spectrum", "cumulative", "degree-order",
-            "smoothed", "series", "comparison", "model")
+            "smoothed", "series", "comparison", "local", "winds", "wind-maps", "model")
 #: Resolution of the PNG images.
 DPI = 110
+#: Maps draw at most this many columns (every k-th cell of larger grids): the images are
+#: about 800 pixels wide, so more would only make the page heavier.
+MAP_COLUMNS = 1080
 
 
 @dataclass
@@ -152,7 +155,8 @@ above; run it again to reproduce them.</p></footer>
 _TITLES = {"numbers": "Key numbers", "maps": "Maps", "spectrum": "Degree power spectrum",
            "cumulative": "Cumulative power", "degree-order": "Isotropy: power by order",
            "smoothed": "Smoothed field", "series": "Series", "comparison": "Comparison",
-           "model": "Model"}
+           "local": "Localised spectrum", "winds": "Kinetic energy",
+           "wind-maps": "Vorticity and divergence", "model": "Model"}
 
 
 def _section(key: str, body: str) -> str:
