@@ -448,14 +448,17 @@ def test_wind_page_has_the_wind_sections_only(wind_page):
     text, r = wind_page
     assert r.sections == WIND_SECTIONS
     assert r.scripts == 0 and r.outside == []
-    # energy spectrum, vorticity map, divergence map
-    assert len(r.images) == 3
+    # energy spectrum; maps of vorticity, divergence, streamfunction, velocity potential
+    assert len(r.images) == 5
     assert_png_images(r)
     assert "u (eastward), v (northward)" in text and "1350 km (attribute planet_radius_km" in text
     caption = next(c for c in r.captions if c.startswith("Kinetic energy per degree"))
     assert "reference slopes -3 and -5/3" in caption and "not fitted" in caption
     assert any(c.startswith("Vorticity (colours) with the wind") for c in r.captions)
     assert any(c.startswith("Divergence (colours) with the divergent wind") for c in r.captions)
+    assert any(c.startswith("Velocity potential (colours) with the divergent wind")
+               for c in r.captions)
+    assert "181 x 360 equiangular-poles grid" in text
 
 
 @pytest.mark.reference

@@ -106,6 +106,7 @@ figcaption { font-size: .9rem; color: #4a4c55; margin-top: .3rem; }
 table { border-collapse: collapse; width: 100%; font-size: .95rem; background: #fffdf8; }
 th, td { text-align: left; padding: .3rem .5rem; border-bottom: 1px solid var(--faint); vertical-align: top; }
 td.num { text-align: right; font-variant-numeric: tabular-nums; white-space: nowrap; }
+td.unit { white-space: nowrap; }
 .note { color: #5a5c66; font-size: .9rem; }
 footer { margin-top: 2.5rem; font-size: .85rem; color: #5a5c66; border-top: 1px solid var(--faint); }
 @media (max-width: 40rem) {
@@ -156,7 +157,7 @@ _TITLES = {"numbers": "Key numbers", "maps": "Maps", "spectrum": "Degree power s
            "cumulative": "Cumulative power", "degree-order": "Isotropy: power by order",
            "smoothed": "Smoothed field", "series": "Series", "comparison": "Comparison",
            "local": "Localised spectrum", "winds": "Kinetic energy",
-           "wind-maps": "Vorticity and divergence", "model": "Model"}
+           "wind-maps": "Flow maps", "model": "Model"}
 
 
 def _section(key: str, body: str) -> str:
@@ -172,7 +173,8 @@ def _numbers_table(rows: list[Row]) -> str:
         else:
             shown = f"{int(r.value)}" if r.key.startswith("degree_") else f"{r.value:.6g}"
             cell = f'<td class="num" data-key="{r.key}" data-value="{r.value!r}">{shown}</td>'
-        lines.append(f"<tr><th>{html.escape(r.name)}</th>{cell}<td>{html.escape(r.unit)}</td>"
+        lines.append(f"<tr><th>{html.escape(r.name)}</th>{cell}"
+                     f'<td class="unit">{html.escape(r.unit)}</td>'
                      f"<td class=\"note\">{html.escape(r.note)}</td></tr>")
     lines.append("</tbody></table>")
     return "\n".join(lines)

@@ -221,7 +221,8 @@ def wind_numbers(w: Wind) -> list[Row]:
                          ("wind_rms_divergence", "RMS divergence", w.flow.divergence())):
         rows.append(Row(key, name, float(np.sqrt(np.atleast_2d(degree_power(h)).sum(axis=-1)
                                                  .mean())), pu,
-                        f"area RMS{';' + mean if mean else ''}"))
+                        "root mean square over the sphere" + (" and the steps" if w.steps
+                                                               else "")))
     for key, name, e in (("wind_slope_rotational", "power-law slope, rotational part", rot),
                          ("wind_slope_divergent", "power-law slope, divergent part", div)):
         p = e.mean(axis=0)
@@ -246,21 +247,36 @@ def _scaled(values: np.ndarray, units: str | None) -> tuple[np.ndarray, str]:
 
 
 def _display_grid(w: Wind) -> Any:
-    """The grid the maps are drawn on: the file's own, or a Gauss grid of at most 1080
-    columns for wider files (the images are about 800 pixels wide)."""
+    """The grid the maps are drawn on: the file's own when it has 360 to 1080 columns; a
+    1-degree grid with both poles for coarser files (the synthesis of the coefficients, exact
+    between the nodes, draws smooth maps) and a Gauss grid of at most 1080 columns for wider
+    ones (the images are about 800 pixels wide)."""
     from sphex.grids import Grid
+
     g = w.info.grid
+    if g.nlon < 360:
+        return Grid.equiangular(181, 360, "poles")
     return g if g.nlon <= MAP_COLUMNS else Grid.gauss(min(w.lmax, MAP_COLUMNS // 2 - 1))
 
 
+#: The maps of the flow: what is drawn, its long name, which units, which part as arrows.
+_MAPS = (("vorticity", "relative vorticity", "per_length", "whole"),
+         ("divergence", "divergence", "per_length", "divergent"),
+         ("streamfunction", "streamfunction psi", "potential", "rotational"),
+         ("velocity potential", "velocity potential chi", "potential", "divergent"))
+
+
 def _wind_maps(w: Wind) -> str:
-    """Vorticity with the wind, divergence with the divergent wind (first step of a series)."""
+    """Vorticity with the flow, divergence with its divergent part, streamfunction with the
+    rotational part and velocity potential with the divergent part (the first step of a
+    series), drawn as arrows."""
     import xarray as xr
 
     from sphex import plot
     from sphex.flow import Flow, synthesize_flow
     from sphex.harmonics import Harmonics
     from sphex.transform import synthesize
+    from sphex.xr.flow_components import derived_units
 
     def first(h: Harmonics) -> Harmonics:
         if not h.batch_shape:
@@ -277,25 +293,33 @@ def _wind_maps(w: Wind) -> str:
         return xr.DataArray(values, dims=("lat", "lon"), coords=coords,
                             attrs={"units": units} if units else {})
 
-    u, v = synthesize_flow(flow, grid)
-    ud, vd = synthesize_flow(flow.divergent(), grid)
+    parts = {"whole": flow, "rotational": flow.rotational(), "divergent": flow.divergent()}
+    arrows = {k: synthesize_flow(f, grid) for k, f in parts.items()}
+    fields = {"vorticity": flow.vorticity(), "divergence": flow.divergence(),
+              "streamfunction": flow.psi, "velocity potential": flow.chi}
+    units = derived_units(w.units)
     when = f", first step ({w.steps[0]})" if w.steps else ""
-    parts = []
-    for name, h, east, north, arrows in (
-            ("vorticity", flow.vorticity(), u, v, f"the {w.what}"),
-            ("divergence", flow.divergence(), ud, vd, f"the divergent {w.what}")):
-        values, units = _scaled(np.asarray(synthesize(h, grid)), w.per_length_units)
-        fig = plot.wind_map_figure(gridded(values, units), gridded(east, w.units),
-                                   gridded(north, w.units), units=units,
-                                   label=f"relative {name}" if name == "vorticity" else name,
-                                   title=f"{name.capitalize()} and {arrows}")
-        parts.append(_figure_html(_image(fig, f"map of the {name} with {arrows} as arrows"),
-                                  f"{name.capitalize()} (colours) with {arrows} as arrows{when}; "
-                                  "from the coefficients of psi and chi, nothing differenced on "
-                                  "the grid."))
-    series = (f"<p>The maps show the first of {len(w.steps)} steps ({html.escape(w.steps[0])}): "
-              "a mean over the steps would blur systems that move.</p>" if w.steps else "")
-    return series + "".join(parts)
+    figures = []
+    for name, long_name, which, part in _MAPS:
+        values, shown = _scaled(np.asarray(synthesize(fields[name], grid)), units[which])
+        what = f"the {w.what}" if part == "whole" else f"the {part} {w.what}"
+        east, north = arrows[part]
+        fig = plot.wind_map_figure(gridded(values, shown), gridded(east, w.units),
+                                   gridded(north, w.units), units=shown, label=long_name,
+                                   title=f"{name.capitalize()} and {what}")
+        figures.append(_figure_html(_image(fig, f"map of the {name} with {what} as arrows"),
+                                    f"{name.capitalize()} (colours) with {what} as arrows"
+                                    f"{when}."))
+    g = w.info.grid
+    drawn = ("on the file's grid" if grid is g else
+             f"on a {grid.nlat} x {grid.nlon} {grid.kind} grid (the band-limited field between "
+             "the file's nodes, not an interpolation)" if grid.nlon > g.nlon else
+             f"on a {grid.nlat} x {grid.nlon} {grid.kind} grid (fewer points than the file)")
+    series = (f" The maps show the first of {len(w.steps)} steps ({html.escape(w.steps[0])}): "
+              "a mean over the steps would blur systems that move." if w.steps else "")
+    return (f"<p>All four fields come from the coefficients of psi and chi, nothing differenced "
+            f"on the grid; they are drawn {html.escape(drawn)}.{series}</p>"
+            '<div class="pair">' + "".join(figures) + "</div>")
 
 
 def _energy_section(w: Wind, rows: list[Row]) -> str:
