@@ -565,12 +565,15 @@ def test_local_section_from_the_command_line(files):
     r = read_page((files / "loc.html").read_text(encoding="utf-8"))
     assert r.command == ("sphex report series.nc -v tsurf --at -20,40 --cap 40 "
                          "--window-degree 8 --windows 4 -o loc.html")
-    from sphex.localize import local_power
+    from sphex.localize import expected_local_power, local_power
 
-    _, hm, _, _ = _api_numbers(files / "series.nc", "tsurf")
+    p, hm, _, _ = _api_numbers(files / "series.nc", "tsurf")
     local = local_power(hm, -20.0, 40.0, 40.0, 8, 4)
     assert float(r.numbers["local_windows"]) == 4
     assert float(r.numbers["local_power"]) == pytest.approx(local.power[8:37].sum(), rel=1e-10)
+    # the blurred global spectrum of the same 4 windows (not of all concentrated ones)
+    blurred = expected_local_power(p, 40.0, 8, 4)[8:37].sum()
+    assert float(r.numbers["local_blurred_global"]) == pytest.approx(blurred, rel=1e-10)
 
 
 def test_local_and_wind_options_errors_are_one_line(files):
