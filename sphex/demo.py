@@ -400,6 +400,7 @@ def run(out_dir: str | os.PathLike = "sphex-demo-output", overwrite: bool = Fals
         "wind_potential": "winds_velocity_potential.png",
         "wind_energy": "winds_energy_spectrum.png",
         "report": "velanthe_topography_report.html",
+        "wind_report": "velanthe_winds_report.html",
     }
     if out.exists() and not out.is_dir():
         raise NotADirectoryError(f"--out {str(out)!r} is a file; give a directory")
@@ -596,14 +597,20 @@ def _wind_products(data: Path, out: Path, names: dict[str, str],
 
 def _report_product(data: Path, out: Path, names: dict[str, str],
                     overwrite: bool) -> list[tuple[str, str]]:
-    """The HTML report of the topography (what ``sphex report`` writes); the summary row."""
+    """The HTML reports of the topography and of the winds (what ``sphex report`` writes); the
+    summary rows."""
     import shlex
 
     from sphex.report import build_report, write_report
 
+    again = ["--overwrite"] if overwrite else []
     target = out / names["report"]
     command = shlex.join(["sphex", "report", str(data / TOPO_FILE), "-v", "topography",
-                          "-o", str(target)] + (["--overwrite"] if overwrite else []))
+                          "-o", str(target)] + again)
     write_report(build_report(data / TOPO_FILE, variable="topography", command=command),
                  target, overwrite)
-    return [("report", f"{target}  (one self-contained HTML page; open it in a browser)")]
+    winds = out / names["wind_report"]
+    command = shlex.join(["sphex", "report", str(data / WIND_FILE), "-o", str(winds)] + again)
+    write_report(build_report(data / WIND_FILE, command=command), winds, overwrite)
+    return [("report", f"{target}  (one self-contained HTML page; open it in a browser)"),
+            ("wind report", f"{winds}  (kinetic energy, vorticity and divergence of the winds)")]

@@ -217,11 +217,14 @@ def test_demo_writes_its_products(tmp_path):
     for n in ("velanthe_topography_coef.nc", "topography_spectrum.png", "topography_smoothed_200km.png",
               "topography_smoothed_200km.nc", "topography_isotropy.png", "velanthe_wind_flow.nc",
               "winds_vorticity.png", "winds_velocity_potential.png", "winds_energy_spectrum.png",
-              "velanthe_topography_report.html"):
+              "velanthe_topography_report.html", "velanthe_winds_report.html"):
         assert n in names
         assert str(out / n) in r.stdout
     report = (out / "velanthe_topography_report.html").read_text(encoding="utf-8")
     assert '<section id="maps">' in report and "sphex report " in report and "-v topography" in report
+    winds = (out / "velanthe_winds_report.html").read_text(encoding="utf-8")
+    assert '<section id="winds">' in winds and '<section id="wind-maps">' in winds
+    assert '<section id="maps">' not in winds and "velanthe_winds.nc -o " in winds
     ds = sxr.open_coefficients(out / "velanthe_topography_coef.nc")
     assert ds.attrs["lmax"] == 89 and ds.attrs["reference_radius"] == 1.35e6
     with xr.open_dataset(out / "velanthe_wind_flow.nc") as flow:

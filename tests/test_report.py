@@ -12,6 +12,7 @@ import shutil
 import subprocess
 import sys
 from html.parser import HTMLParser
+from pathlib import Path
 
 import numpy as np
 import pytest
@@ -19,11 +20,12 @@ import xarray as xr
 
 import sphex
 import sphex.xr as sxr
-from sphex.report import SECTIONS, build_report, png_size, write_report
+from sphex.report import SECTIONS, Region, build_report, png_size, write_report
 from sphex.spectra import correlation, correlation_significance, degree_power, spectral_slope
 
 LMAX = 30
 RADIUS_KM = 1000.0
+DEMO = Path(__file__).resolve().parent.parent / "data_demo"
 
 
 class PageReader(HTMLParser):
@@ -39,6 +41,8 @@ class PageReader(HTMLParser):
         self.outside: list[str] = []
         self.command = ""
         self._in_command = False
+        self._in_caption = False
+        self.captions: list[str] = []
         self._key: str | None = None
         self.text: list[str] = []
 
@@ -62,17 +66,24 @@ class PageReader(HTMLParser):
                 self.numbers[a["data-key"]] = a["data-value"]
         if tag == "pre" and a.get("class") == "command":
             self._in_command = True
+        if tag == "figcaption":
+            self._in_caption = True
+            self.captions.append("")
 
     def handle_endtag(self, tag):
         if tag == "pre":
             self._in_command = False
         if tag in ("td", "strong"):
             self._key = None
+        if tag == "figcaption":
+            self._in_caption = False
 
     def handle_data(self, data):
         self.text.append(data)
         if self._in_command:
             self.command += data
+        if self._in_caption:
+            self.captions[-1] += data
         if self._key is not None:
             self.shown[self._key] = self.shown.get(self._key, "") + data
 
@@ -143,19 +154,16 @@ def _api_numbers(path, var):
 @pytest.mark.reference
 def test_every_section_is_on_the_page_and_nothing_from_outside(page):
     text, r = page
-    expected = [s for s in SECTIONS if s != "model"]
+    expected = [s for s in SECTIONS if s not in ("model", "local", "winds", "wind-maps")]
     assert sorted(r.sections) == sorted(expected)
     assert r.scripts == 0 and r.outside == []
     assert "<style>" in text and "@media print" in text and "max-width: 100%" in text
 
 
-@pytest.mark.reference
-def test_every_image_is_a_png_of_the_stated_size(page):
+def assert_png_images(r: PageReader) -> None:
+    """Every image of the page is a PNG data URI of the stated size, with a text."""
     import matplotlib.image as mpimg
 
-    _, r = page
-    # maps (2), spectrum, cumulative, degree-order, smoothed (3), series (2), comparison (4)
-    assert len(r.images) == 14
     for a in r.images:
         head, _, b64 = a["src"].partition(",")
         assert head == "data:image/png;base64"
@@ -164,6 +172,14 @@ def test_every_image_is_a_png_of_the_stated_size(page):
         pixels = mpimg.imread(io.BytesIO(data), format="png")  # decodes as a PNG
         assert pixels.shape[:2] == (int(a["height"]), int(a["width"]))
         assert a["alt"]
+
+
+@pytest.mark.reference
+def test_every_image_is_a_png_of_the_stated_size(page):
+    _, r = page
+    # maps (2), spectrum, cumulative, degree-order, smoothed (3), series (2), comparison (4)
+    assert len(r.images) == 14
+    assert_png_images(r)
 
 
 @pytest.mark.reference
@@ -400,3 +416,176 @@ def test_wide_grids_are_drawn_thinned():
     assert v.shape == (3, 400, 800) and lo.size <= MAP_COLUMNS and lo[1] - lo[0] == pytest.approx(0.45)
     v, la, lo = _thinned(np.zeros((90, 180)), lat[:90], lon[:180])
     assert v.shape == (90, 180)
+
+
+# ---------------------------------------------------------------------------
+# winds and localised spectra
+# ---------------------------------------------------------------------------
+WIND_SECTIONS = ["provenance", "winds", "wind-maps"]
+
+
+@pytest.fixture(scope="module")
+def wind_page():
+    text = build_report(DEMO / "velanthe_winds.nc", command="sphex report velanthe_winds.nc -o w.html")
+    return text, read_page(text)
+
+
+def _api_wind():
+    """The demo's winds through the Python API: sphex.flow and sphex.spectra.kinetic_energy."""
+    from sphex.flow import analyze_flow
+    from sphex.spectra import kinetic_energy
+
+    with xr.open_dataset(DEMO / "velanthe_winds.nc") as ds:
+        u, v = (ds[k].values.astype(float) for k in ("u", "v"))
+        grid = sphex.Grid.from_coords(ds["lat"].values, ds["lon"].values)
+        radius = float(ds.attrs["planet_radius_km"]) * 1e3
+    flow = analyze_flow(u, v, grid, radius=radius)
+    rot, div = kinetic_energy(flow)
+    return u, v, grid, flow, rot, div
+
+
+def test_wind_page_has_the_wind_sections_only(wind_page):
+    text, r = wind_page
+    assert r.sections == WIND_SECTIONS
+    assert r.scripts == 0 and r.outside == []
+    # energy spectrum; maps of vorticity, divergence, streamfunction, velocity potential
+    assert len(r.images) == 5
+    assert_png_images(r)
+    assert "u (eastward), v (northward)" in text and "1350 km (attribute planet_radius_km" in text
+    caption = next(c for c in r.captions if c.startswith("Kinetic energy per degree"))
+    assert "reference slopes -3 and -5/3" in caption and "not fitted" in caption
+    assert any(c.startswith("Vorticity (colours) with the wind") for c in r.captions)
+    assert any(c.startswith("Divergence (colours) with the divergent wind") for c in r.captions)
+    assert any(c.startswith("Velocity potential (colours) with the divergent wind")
+               for c in r.captions)
+    assert "181 x 360 equiangular-poles grid" in text
+
+
+@pytest.mark.reference
+def test_wind_numbers_equal_those_of_the_python_api(wind_page):
+    _, r = wind_page
+    n = {k: float(v) for k, v in r.numbers.items()}
+    u, v, grid, flow, rot, div = _api_wind()
+    total = (rot + div).sum(axis=-1)
+    assert n["wind_energy"] == pytest.approx(total.mean(), rel=1e-12)
+    assert n["wind_energy_rotational"] == pytest.approx(rot.sum(axis=-1).mean(), rel=1e-12)
+    assert n["wind_energy_divergent"] == pytest.approx(div.sum(axis=-1).mean(), rel=1e-12)
+    assert n["wind_rotational_share"] == pytest.approx(100 * rot.sum() / (rot + div).sum(),
+                                                       rel=1e-12)
+    assert n["wind_rotational_share"] + n["wind_divergent_share"] == pytest.approx(100.0)
+    assert n["wind_energy_first"] == pytest.approx(total[0], rel=1e-12)
+    assert n["wind_energy_last"] == pytest.approx(total[-1], rel=1e-12)
+    # the kinetic energy is the area mean of (u^2 + v^2)/2 by the grid's quadrature (Parseval
+    # for vector fields, common practice; the demo's winds are band-limited to the grid's exact
+    # degree 36 and stored in float32: agreement to about 1e-7)
+    area = grid.integrate(np.ones(grid.shape))
+    by_quadrature = np.mean([grid.integrate((u[i] ** 2 + v[i] ** 2) / 2) / area
+                             for i in range(u.shape[0])])
+    assert n["wind_energy"] == pytest.approx(by_quadrature, rel=1e-6)
+    # RMS vorticity and divergence: the fields synthesised on the grid, squared, integrated
+    for key, h in (("wind_rms_vorticity", flow.vorticity()),
+                   ("wind_rms_divergence", flow.divergence())):
+        field = sphex.synthesize(h, grid)
+        ms = np.mean([grid.integrate(field[i] ** 2) / area for i in range(field.shape[0])])
+        assert n[key] == pytest.approx(np.sqrt(ms), rel=1e-10)
+    # slopes over the default fit range: 36/10 = 4 to 36 - 4 = 32
+    assert n["wind_slope_rotational"] == pytest.approx(
+        spectral_slope(rot.mean(axis=0), 4, 32)[0], rel=1e-12)
+    assert n["wind_slope_divergent"] == pytest.approx(
+        spectral_slope(div.mean(axis=0), 4, 32)[0], rel=1e-12)
+    assert n["wind_radius"] == 1350.0
+
+
+def test_wind_sections_join_a_scalar_report_of_one_component():
+    text = build_report(DEMO / "velanthe_winds.nc", variable="u")
+    r = read_page(text)
+    assert {"maps", "numbers", "spectrum", "series", "winds", "wind-maps"} <= set(r.sections)
+    assert "local" not in r.sections and "model" not in r.sections
+    _, _, _, _, rot, div = _api_wind()
+    assert float(r.numbers["wind_energy"]) == pytest.approx((rot + div).sum(axis=-1).mean(),
+                                                            rel=1e-12)
+
+
+def test_no_wind_or_local_sections_for_other_inputs(page, tmp_path):
+    from sphex.demo import make_gravity_model
+
+    _, r = page
+    assert not {"winds", "wind-maps", "local"} & set(r.sections)
+    assert not any(k.startswith(("wind_", "local_")) for k in r.numbers)
+    (tmp_path / "moon.gfc").write_text(make_gravity_model())
+    model = read_page(build_report(tmp_path / "moon.gfc"))
+    assert not {"winds", "wind-maps", "local"} & set(model.sections)
+    with pytest.raises(ValueError, match="--east and --north name the wind components of a grid"):
+        build_report(tmp_path / "moon.gfc", east="u", north="v")
+    with pytest.raises(ValueError, match="--at localises a field"):
+        build_report(tmp_path / "moon.gfc", region=Region(0.0, 0.0, 30.0, 10))
+
+
+def test_wind_page_refuses_scalar_options(tmp_path):
+    with pytest.raises(ValueError, match=r"--at applies to a scalar field.*-v u"):
+        build_report(DEMO / "velanthe_winds.nc", region=Region(0.0, 0.0, 30.0, 8))
+    with pytest.raises(ValueError, match=r"--compare applies to a scalar field"):
+        build_report(DEMO / "velanthe_winds.nc", compare=DEMO / "velanthe_winds.nc")
+    with pytest.raises(ValueError, match="no variable 'wind_u'"):
+        build_report(DEMO / "velanthe_winds.nc", east="wind_u", north="v")
+
+
+@pytest.mark.reference
+def test_local_section_numbers_equal_those_of_the_python_api(files):
+    from sphex.localize import expected_local_power, local_power
+
+    region = Region(-20.0, 40.0, 40.0, 8)
+    text = build_report(files / "series.nc", region=region)
+    r = read_page(text)
+    assert "local" in r.sections and not {"winds", "wind-maps"} & set(r.sections)
+    # the 14 images of a series page without --compare less the comparison's 4, plus the
+    # localised spectrum and the map with the cap
+    assert len(r.images) == 12
+    assert_png_images(r)
+    n = {k: float(v) for k, v in r.numbers.items()}
+    p, hm, _, _ = _api_numbers(files / "series.nc", "tsurf")
+    local = local_power(hm, -20.0, 40.0, 40.0, 8)
+    lo, hi = 8, 44 - 8
+    assert local.valid_range == (lo, hi)
+    assert (n["local_valid_min"], n["local_valid_max"]) == (lo, hi)
+    assert n["local_windows"] == local.n_windows
+    assert n["local_concentration_min"] == pytest.approx(local.concentration.min(), rel=1e-12)
+    assert n["local_power"] == pytest.approx(local.power[lo:hi + 1].sum(), rel=1e-10)
+    blurred = expected_local_power(p, 40.0, 8, local.n_windows)[lo:hi + 1].sum()
+    assert n["local_blurred_global"] == pytest.approx(blurred, rel=1e-10)
+    assert n["local_ratio"] == pytest.approx(local.power[lo:hi + 1].sum() / blurred, rel=1e-10)
+    assert "20\u00b0S 40\u00b0E" in text
+
+
+@pytest.mark.reference
+def test_local_section_from_the_command_line(files):
+    res = _run("report", "series.nc", "-v", "tsurf", "--at", "-20,40", "--cap", "40",
+               "--window-degree", "8", "--windows", "4", "-o", "loc.html", cwd=files)
+    assert res.returncode == 0, res.stderr
+    r = read_page((files / "loc.html").read_text(encoding="utf-8"))
+    assert r.command == ("sphex report series.nc -v tsurf --at -20,40 --cap 40 "
+                         "--window-degree 8 --windows 4 -o loc.html")
+    from sphex.localize import expected_local_power, local_power
+
+    p, hm, _, _ = _api_numbers(files / "series.nc", "tsurf")
+    local = local_power(hm, -20.0, 40.0, 40.0, 8, 4)
+    assert float(r.numbers["local_windows"]) == 4
+    assert float(r.numbers["local_power"]) == pytest.approx(local.power[8:37].sum(), rel=1e-10)
+    # the blurred global spectrum of the same 4 windows (not of all concentrated ones)
+    blurred = expected_local_power(p, 40.0, 8, 4)[8:37].sum()
+    assert float(r.numbers["local_blurred_global"]) == pytest.approx(blurred, rel=1e-10)
+
+
+def test_local_and_wind_options_errors_are_one_line(files):
+    for args, words in ((["--cap", "30"], "--at LAT,LON"),
+                        (["--at", "10,20", "--cap", "30"], "--at needs --window-degree N"),
+                        (["--at", "10,20", "--cap", "30", "--window-degree", "60"],
+                         "above the field's highest degree 44"),
+                        (["--at", "10,20", "--cap", "30", "--window-degree", "8",
+                          "--windows", "99"], "choose 1.."),
+                        (["--east", "u"], "give both --east and --north")):
+        res = _run("report", "series.nc", "-v", "tsurf", *args, "-o", "c.html", cwd=files)
+        assert res.returncode == 2, (args, res.stderr)
+        assert words in res.stderr and len(res.stderr.strip().splitlines()) == 1
+        assert "Traceback" not in res.stderr
+    assert not (files / "c.html").exists()

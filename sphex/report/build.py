@@ -14,14 +14,17 @@ from sphex.plot.overview import (
     band_power_figure, correlation_figure, cumulative_figure, equal_area_map_figure,
     ratio_figure,
 )
-from sphex.report.inputs import Progress, Subject, read_subject
+from sphex.report.inputs import Progress, Subject, _input_kind, read_subject
 from sphex.report.key_numbers import (
     EARTH_RADIUS_KM, SHARES, _squared, default_slope_range, degree_bands, field_rows,
     smoothing_radii, variance_degrees,
 )
 from sphex.report.page import (
-    Page, Row, _figure_html, _image, _numbers_table, _version, degree_order_picture,
+    MAP_COLUMNS, Page, Row, _figure_html, _image, _numbers_table, _version,
+    degree_order_picture,
 )
+from sphex.report.local_section import Region, check_region, local_section
+from sphex.report.winds import Wind, read_wind, wind_provenance, wind_sections
 from sphex.spectra import correlation, correlation_significance, degree_power, spectral_slope
 from sphex.xr.output import atomic_output
 
@@ -38,11 +41,6 @@ def _provenance(s: Subject, lmax: int, version: str) -> list[tuple[str, str]]:
         rows.append(("radius", f"{s.radius_km:g} km"))
     rows.append(("sphex version", version))
     return rows
-
-
-#: Maps draw at most this many columns (every k-th cell of larger grids): the images are
-#: about 800 pixels wide, so more would only make the page heavier.
-MAP_COLUMNS = 1080
 
 
 def _thinned(values: np.ndarray, lat: np.ndarray, lon: np.ndarray
@@ -264,8 +262,10 @@ def build_report(path: str | os.PathLike, *, variable: str | None = None,
                  compare: str | os.PathLike | None = None, compare_variable: str | None = None,
                  lmax: int | None = None, slope: tuple[int, int] | None = None,
                  bands: list[tuple[int, int]] | None = None,
-                 command: str = "", progress: Progress | None = None) -> str:
-    """The HTML report of a field, a coefficient file or a model, as text.
+                 command: str = "", progress: Progress | None = None,
+                 east: str | None = None, north: str | None = None,
+                 region: Region | None = None) -> str:
+    """The HTML report of a field, a wind, a coefficient file or a model, as text.
 
     Parameters
     ----------
@@ -289,6 +289,14 @@ def build_report(path: str | os.PathLike, *, variable: str | None = None,
         The command line that made the page, shown in its header.
     progress : callable, optional
         ``progress(done, total)`` as the parts of the page are made.
+    east, north : str, optional
+        The eastward and northward components of a wind or current in a grid
+        file (default: found by their CF standard names).  When the file holds
+        them, the page has the sections ``winds`` and ``wind-maps``; without
+        ``variable`` it is a page about the wind alone.
+    region : Region, optional
+        A spherical cap whose localised spectrum the section ``local`` shows
+        (not drawn unless asked for: it costs one analysis per window).
 
     Returns
     -------
@@ -300,7 +308,19 @@ def build_report(path: str | os.PathLike, *, variable: str | None = None,
     ValueError
         An unusable input, ``lmax`` or ``slope``.
     """
+    kind = _input_kind(str(path))
+    if (east is not None or north is not None) and kind != "grid":
+        raise ValueError(f"--east and --north name the wind components of a grid file; {path} is "
+                         f"a {'model' if kind == 'model' else 'coefficient'} file: leave them out")
+    wind = read_wind(path, east, north, lmax) if kind == "grid" else None
+    if wind is not None and variable is None:
+        return _wind_page(wind, compare=compare, slope=slope, bands=bands, region=region,
+                          command=command, progress=progress)
     s = read_subject(path, variable, lmax)
+    if region is not None and s.kind == "model":
+        raise ValueError("--at localises a field, not a model's potential coefficients: write "
+                         "the quantity you want on a grid with 'sphex gravity' or 'sphex "
+                         "geomagnetic' and report that file")
     other = None
     if compare is not None:
         other = read_subject(compare, compare_variable, lmax)
@@ -310,7 +330,7 @@ def build_report(path: str | os.PathLike, *, variable: str | None = None,
         if s.units and other.units and s.units != other.units:
             raise ValueError(f"{path} is in {s.units!r} and {compare} in {other.units!r}; "
                              "convert one to the other's units before comparing")
-    tick = _Steps(8, progress)
+    tick = _Steps(8 + (region is not None) + 2 * (wind is not None), progress)
     h = s.mean_harmonics
     p = degree_power(h) if s.kind != "model" else _model_variances(s)
     top = p.size - 1
@@ -323,6 +343,8 @@ def build_report(path: str | os.PathLike, *, variable: str | None = None,
     for a, b in bands or ():
         if not 1 <= a <= b <= top:
             raise ValueError(f"--bands {a}:{b} must lie within degrees 1..{top}")
+    if region is not None:
+        check_region(region, top)
     degrees = variance_degrees(p)
     version = _version()
     what = "model" if s.kind == "model" else ("mean of the steps" if s.steps else "field")
@@ -361,12 +383,39 @@ def build_report(path: str | os.PathLike, *, variable: str | None = None,
         if other is not None:
             page.sections["comparison"] = _comparison_section(s, other, h, other.mean_harmonics,
                                                               grid)
+        if region is not None:
+            thin, la, lo = _thinned(values, lat, lon)
+            page.sections["local"] = local_section(h, region, _squared(s.units), s.label, thin,
+                                                   la, lo, s.units)
+            tick()
+        if wind is not None:
+            page.sections.update(wind_sections(wind, tick))
     else:
         page.sections["maps"] = ("<p>A model file holds potential coefficients; draw its "
                                  "quantities with <code>sphex gravity</code> or <code>sphex "
                                  "geomagnetic</code>.</p>")
     tick()
     tick()
+    return page.render(version)
+
+
+def _wind_page(w: Wind, *, compare: Any, slope: Any, bands: Any, region: Region | None,
+               command: str, progress: Progress | None) -> str:
+    """The page of a wind alone (a grid file with the components and no ``variable``)."""
+    for given, option in ((compare, "--compare"), (slope, "--slope"), (bands, "--bands"),
+                          (region, "--at")):
+        if given is not None:
+            raise ValueError(f"{option} applies to a scalar field, and {w.path} is read as the "
+                             f"{w.what} ({w.east}, {w.north}): choose a variable with -v (for "
+                             f"example -v {w.east})")
+    tick = _Steps(2, progress)
+    version = _version()
+    page = Page(title=f"sphex report: {Path(w.path).name} ({w.east}, {w.north})",
+                lead={"wind": "horizontal wind", "current": "horizontal current"}.get(
+                    w.what, "horizontal flow"),
+                provenance=wind_provenance(w) + [("sphex version", version)],
+                command=command or "(built from Python)")
+    page.sections.update(wind_sections(w, tick))
     return page.render(version)
 
 

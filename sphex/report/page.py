@@ -16,9 +16,12 @@ __all__ = ["SECTIONS", "Row", "Image", "png_size", "degree_order_picture", "Page
 
 #: Section ids in page order (those that apply to the input appear).
 SECTIONS = ("provenance", "maps", "numbers", "spectrum", "cumulative", "degree-order",
-            "smoothed", "series", "comparison", "model")
+            "smoothed", "series", "comparison", "local", "winds", "wind-maps", "model")
 #: Resolution of the PNG images.
 DPI = 110
+#: Maps draw at most this many columns (every k-th cell of larger grids): the images are
+#: about 800 pixels wide, so more would only make the page heavier.
+MAP_COLUMNS = 1080
 
 
 @dataclass
@@ -103,6 +106,7 @@ figcaption { font-size: .9rem; color: #4a4c55; margin-top: .3rem; }
 table { border-collapse: collapse; width: 100%; font-size: .95rem; background: #fffdf8; }
 th, td { text-align: left; padding: .3rem .5rem; border-bottom: 1px solid var(--faint); vertical-align: top; }
 td.num { text-align: right; font-variant-numeric: tabular-nums; white-space: nowrap; }
+td.unit { white-space: nowrap; }
 .note { color: #5a5c66; font-size: .9rem; }
 footer { margin-top: 2.5rem; font-size: .85rem; color: #5a5c66; border-top: 1px solid var(--faint); }
 @media (max-width: 40rem) {
@@ -152,7 +156,8 @@ above; run it again to reproduce them.</p></footer>
 _TITLES = {"numbers": "Key numbers", "maps": "Maps", "spectrum": "Degree power spectrum",
            "cumulative": "Cumulative power", "degree-order": "Isotropy: power by order",
            "smoothed": "Smoothed field", "series": "Series", "comparison": "Comparison",
-           "model": "Model"}
+           "local": "Localised spectrum", "winds": "Kinetic energy",
+           "wind-maps": "Flow maps", "model": "Model"}
 
 
 def _section(key: str, body: str) -> str:
@@ -168,7 +173,8 @@ def _numbers_table(rows: list[Row]) -> str:
         else:
             shown = f"{int(r.value)}" if r.key.startswith("degree_") else f"{r.value:.6g}"
             cell = f'<td class="num" data-key="{r.key}" data-value="{r.value!r}">{shown}</td>'
-        lines.append(f"<tr><th>{html.escape(r.name)}</th>{cell}<td>{html.escape(r.unit)}</td>"
+        lines.append(f"<tr><th>{html.escape(r.name)}</th>{cell}"
+                     f'<td class="unit">{html.escape(r.unit)}</td>'
                      f"<td class=\"note\">{html.escape(r.note)}</td></tr>")
     lines.append("</tbody></table>")
     return "\n".join(lines)
