@@ -136,6 +136,14 @@ def test_distances_in_km_may_carry_the_unit(text, value):
     assert shared.distance_km(text) == value
 
 
+@pytest.mark.parametrize("text,value", [("1350", 1350.0), ("1350km", 1350.0), ("1350 km", 1350.0),
+                                        ("1350000m", 1350.0), ("1350000 m", 1350.0), ("0.5KM", 0.5)])
+def test_radius_may_carry_km_or_m(text, value):
+    from sphex.cli.radius import radius_km
+
+    assert radius_km(text) == pytest.approx(value, rel=1e-15)   # 1350000 * 1e-3 rounds
+
+
 @pytest.mark.parametrize("text", ["10", "10deg", "10 degrees", "10\u00b0"])
 def test_cap_radius_may_carry_the_unit(text):
     assert shared.cap_radius(text) == 10.0

@@ -83,13 +83,14 @@ def test_smooth_gaussian_against_kernel_weights_by_quadrature_and_keeps_the_grid
     h = random_harmonics(rng, 20)
     da = xr.DataArray(sphex.synthesize(h, grid), dims=("lat", "lon"),
                       coords={"lat": grid.lat, "lon": grid.lon}, name="g", attrs={"units": "mGal"})
-    out = sxr.smooth(da, gaussian_km=500.0, planet_radius_km=6371.0)
-    w = gaussian_weights_by_quadrature(500.0, 6371.0, 20)
+    out = sxr.smooth(da, gaussian_km=100.0, planet_radius_km=1350.0)     # a moon of 1350 km
+    w = gaussian_weights_by_quadrature(100.0, 1350.0, 20)
     expect = complex_form_field(h.coef * w[:, None], np.asarray(grid.colat), np.radians(grid.lon),
                                 "orthonormal", True)
-    # measured 9.8e-15 of the largest value; 5e-14 leaves room for summation order. A Gaussian of
-    # 10 % larger radius is off by 7e-2, a cap of the same radius by 0.28
-    assert np.abs(out.values - expect).max() < 5e-14 * np.abs(expect).max()
+    # measured 1.4e-14 to 1.9e-14 of the largest value (three seeds; the quadrature of the weights
+    # is good to about 1e-14); bound 1e-13. A Gaussian of 10 % larger radius is off by 7e-2, the
+    # same 100 km on Earth's 6371 km by 0.4, a cap of the same radius by 0.25
+    assert np.abs(out.values - expect).max() < 1e-13 * np.abs(expect).max()
     assert out.dims == da.dims and out.attrs["units"] == "mGal" and "Gaussian" in out.attrs["history"]
     # a taper that starts above the field's top degree changes nothing: a round trip (analysis
     # and synthesis on the Gauss grid), measured 2.9e-15 of the largest value (8e-14 absolute)
