@@ -316,6 +316,7 @@ def test_per_coefficient_kind_variance_and_fits_of_the_drawn_series(pair, monkey
     assert any(f"to beta, slope {slope_b:.2f}" in t for t in legend)
 
 
+@pytest.mark.reference
 def test_share_of_the_grid_variance_above_the_analysed_degree(tmp_path):
     # f = P2 + P10 (zonal Legendre polynomials of sin(lat)): degree powers 1/5 and 1/21
     # (common practice: the mean of P_l^2 over the sphere is 1/(2l+1))

@@ -55,7 +55,10 @@ def test_seam_column_descending_and_shifted_longitudes_give_one_answer():
     shifted = sxr.analyze(field_dataarray(lat, lon - 180.0))
     # (c) longitudes decreasing
     desc = sxr.analyze(field_dataarray(lat, lon[::-1]))
-    for other in (seam, shifted, desc):
+    # (d) longitudes that wrap inside the array: 112.5..337.5 then 0..90 (a rolled file)
+    lon_rolled = np.roll(lon, -5)
+    rolled = sxr.analyze(field_dataarray(lat, lon_rolled))
+    for other in (seam, shifted, desc, rolled):
         np.testing.assert_allclose(other[sxr.COS], ref[sxr.COS], atol=1e-13)
         np.testing.assert_allclose(other[sxr.SIN], ref[sxr.SIN], atol=1e-13)
     # synthesis onto the seam grid restores the repeated column
@@ -63,8 +66,12 @@ def test_seam_column_descending_and_shifted_longitudes_give_one_answer():
     assert back.sizes["lon"] == 17
     np.testing.assert_array_equal(back.values[:, -1], back.values[:, 0])
     np.testing.assert_allclose(back.values, band_limited_field(lat, lon_seam), atol=1e-12)
+    # and onto the rolled grid, each column at its own longitude
+    back = sxr.synthesize(rolled, like=field_dataarray(lat, lon_rolled))
+    np.testing.assert_allclose(back.values, band_limited_field(lat, lon_rolled), atol=1e-12)
 
 
+@pytest.mark.reference
 def test_coefficients_refer_to_the_zero_meridian():
     # f = cos(lat) cos(lon - 30 deg) = cos30 cos(lat)cos(lon) + sin30 cos(lat)sin(lon)
     # (angle-difference identity; common practice), so S11 / C11 = tan(30 deg)

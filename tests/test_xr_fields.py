@@ -45,6 +45,7 @@ def test_analyze_synthesize_keeps_coordinates_attributes_and_extra_dims(rng):
     np.testing.assert_allclose(ds[sxr.SIN].values, s, atol=1e-12)
 
 
+@pytest.mark.reference
 def test_degree_power_dataarray_sums_to_area_mean_square(rng):
     grid = sphex.Grid.equiangular(33, 64, "poles")      # exact to degree 16
     h = random_harmonics(rng, 16, batch=(2,))
@@ -141,7 +142,10 @@ def test_smooth_cap_averages_over_a_cap_of_the_given_radius(rng):
                                atol=1e-12 * np.abs(h.coef).max())
 
 
+@pytest.mark.reference
 def test_regrid_between_grid_kinds_reproduces_a_band_limited_field():
+    # source: band_limited_field is a trigonometric polynomial of degree <= 3 (common practice, in
+    # its docstring), so regridding must give its closed form at the new nodes
     src = sphex.Grid.gauss(12)
     da = xr.DataArray(band_limited_field(src.lat, src.lon), dims=("lat", "lon"),
                       coords={"lat": src.lat, "lon": src.lon}, name="f")
