@@ -84,7 +84,7 @@ MUTATIONS = [
        T_FIELDS),
     _m("adapt-fields-columns-not-mapped-back", FIELDS,
        "out = np.asarray(_synthesize(h, info.grid))[..., list(info.put)]",
-       "out = np.asarray(_synthesize(h, info.grid))", T_FIELDS),
+       "out = np.asarray(_synthesize(h, info.grid))", T_FIELDS, T_COORDS),
     # ---------------------------------------------------------------- units
     _m("adapt-units-division-exponent-not-negated", UNITS,
        "zip(parts, (1, -1))", "zip(parts, (1, 1))", T_UNITS),
