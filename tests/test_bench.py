@@ -42,7 +42,7 @@ def test_vector_case_reports_ratios_to_two_scalar_transforms():
     text = "\n".join(vectors.format_rows([row]))
     assert "roofline of two scalar transforms" in text and "    31 " in text
 
-@pytest.mark.reference
+
 def test_point_benchmark_measures_the_same_series_on_grid_and_points():
     from sphex.bench import points
 

@@ -140,6 +140,7 @@ def test_a_new_user_run_writes_the_diagnostics_the_spectrum_and_the_plot(files):
     _no_leftovers(d)
 
 
+@pytest.mark.reference
 def test_radius_rotation_and_streaming_by_single_steps(files):
     d = files["dir"]
     base, out = d / "base.nc", d / "moon.nc"
@@ -149,7 +150,9 @@ def test_radius_rotation_and_streaming_by_single_steps(files):
     assert r.returncode == 0, r.stderr
     assert "radius 1350 km (--radius)" in r.stdout and "absolute_vorticity" in r.stdout
     with xr.open_dataset(base) as a, xr.open_dataset(out) as b:
-        # the same winds on a smaller sphere: vorticity grows as 1/R
+        # the same winds on a smaller sphere: vorticity grows as 1/R (zeta = lap psi, psi ~ R u;
+        # common practice), and the absolute vorticity adds the Coriolis parameter
+        # f = 2 Omega sin(lat) (common practice)
         np.testing.assert_allclose(b["vorticity"].values * 1350.0 / EARTH_KM, a["vorticity"].values,
                                    rtol=2e-6, atol=1e-6 * float(np.abs(a["vorticity"]).max()))
         f = 2 * 2.5e-6 * np.sin(np.radians(b["latitude"].values))[:, None]
@@ -220,6 +223,7 @@ def test_help_has_an_example_and_the_command_is_listed(capsys):
 # ----------------------------------------------------------------------------
 # the figures
 # ----------------------------------------------------------------------------
+@pytest.mark.reference
 def test_energy_figure_draws_both_parts_and_the_reference_slopes_as_such():
     from sphex import plot
 
@@ -230,6 +234,7 @@ def test_energy_figure_draws_both_parts_and_the_reference_slopes_as_such():
     ax = fig.axes[0]
     assert (ax.get_xscale(), ax.get_yscale()) == ("log", "log")
     lines = {line.get_label(): line for line in ax.get_lines()}
+    # the l^-3 and l^-5/3 ranges of atmospheric kinetic-energy spectra (common practice)
     for label, slope in (("reference slope -3", -3.0), ("reference slope -5/3", -5.0 / 3.0)):
         x, y = (np.asarray(a, dtype=float) for a in lines[label].get_data())
         fitted = np.polyfit(np.log(x), np.log(y), 1)[0]

@@ -78,6 +78,7 @@ def test_sample_writes_values_at_the_points_and_says_which_columns_it_used(files
     np.testing.assert_allclose([float(row[-1]) for row in rows], want, rtol=0, atol=1e-12)
 
 
+@pytest.mark.reference
 def test_sample_a_gravity_model_gives_its_potential(files):
     # a model with C00 = 1 and nothing else is a point mass: V = GM / r (closed form, common practice)
     d = files["dir"]
@@ -137,9 +138,11 @@ def test_analyze_missing_fit_on_a_file_with_nan(files):
     assert r.returncode == 0, r.stderr
     assert "observed 70." in r.stdout and "iterations" in r.stdout and "warning" not in r.stderr
     back = sxr.open_harmonics(d / "fit.nc")
-    assert np.max(np.abs(back.coef - h.coef)) < 1e-8 * np.max(np.abs(h.coef))
+    # conjugate gradients stop at a relative residual of 1e-10: measured 5.4e-12 (coefficients) and
+    # 4.1e-12 (residual RMS); bound 1e-9 (other seeds reach 1e-10)
+    assert np.max(np.abs(back.coef - h.coef)) < 1e-9 * np.max(np.abs(h.coef))
     with xr.open_dataset(d / "fit.nc") as ds:
-        assert ds.attrs["fit_residual_rms"] < 1e-8 and "not filled" in ds.attrs["fit_method"]
+        assert ds.attrs["fit_residual_rms"] < 1e-9 and "not filled" in ds.attrs["fit_method"]
     # too high a degree for the gap: the warning reaches the user as one line, and a file is written
     r = run("analyze", "ocean.nc", "--lmax", 20, "--missing", "fit", "-o", "fit20.nc", cwd=d)
     assert r.returncode == 0 and "sphex analyze: warning: ill-posed fit" in r.stderr

@@ -28,6 +28,25 @@ def test_netcdf_round_trip_is_bit_exact(tmp_path, rng, norm, cs):
         assert f.attrs["reference_radius"] == 6.3781e6
 
 
+def test_coefficients_stored_in_shuffled_label_order_read_as_written(tmp_path, rng):
+    # degrees and orders stored in a random order (not just reversed, whose sorting permutation
+    # is its own inverse) are read by their labels: the cosine and sine parts come back bit for
+    # bit, in degree and order 0, 1, ...
+    h = random_harmonics(rng, 9, batch=(2,))
+    ds = sxr.from_harmonics(h)
+    perm_l, perm_m = rng.permutation(10), rng.permutation(10)
+    assert not np.array_equal(np.argsort(perm_l), perm_l)      # not its own inverse
+    assert not np.array_equal(np.argsort(perm_m), perm_m)
+    path = tmp_path / "shuffled.nc"
+    ds.isel(degree=perm_l, order=perm_m).to_netcdf(path)
+    with xr.open_dataset(path) as f:
+        np.testing.assert_array_equal(f.degree.values, perm_l)
+    back = sxr.open_coefficients(path)
+    np.testing.assert_array_equal(back.degree.values, np.arange(10))
+    for name in (sxr.COS, sxr.SIN):
+        np.testing.assert_array_equal(back[name].values, ds[name].values)
+
+
 def test_coefficient_dataset_round_trip_and_no_silent_overwrite(tmp_path, rng):
     grid = sphex.Grid.gauss(10)
     da = xr.DataArray(sphex.synthesize(random_harmonics(rng, 10), grid), dims=("lat", "lon"),

@@ -50,7 +50,8 @@ def test_local_power_of_a_gridded_field_analyses_it_first(rng):
     core = localize.local_power(h, -60.0, 10.0, CAP, LWIN, n_windows=3)
     assert out.power.dims == ("time", "degree")
     np.testing.assert_array_equal(out["time"].values, time)
-    np.testing.assert_allclose(out.power.values, core.power, rtol=1e-10)
+    # analysis then the core on the coefficients: measured 3.2e-15 relative; bound 2e-14
+    np.testing.assert_allclose(out.power.values, core.power, rtol=2e-14)
     assert int(out.attrs["n_windows"]) == 3 and out.power.attrs["units"] == "K^2"
     # lmax truncates the analysis
     low = sxr.local_power(da, -60.0, 10.0, CAP, LWIN, n_windows=3, lmax=16)
@@ -81,6 +82,7 @@ def test_two_field_adapters_match_the_core_and_broadcast_batches(rng, batch_coef
     assert cor.correlation.attrs["units"] == "1"
 
 
+@pytest.mark.reference
 def test_admittance_of_a_scaled_field_is_the_scale(batch_coefficients):
     # a field against itself times a constant gives that constant (common practice)
     topo = batch_coefficients

@@ -44,6 +44,7 @@ def test_evaluate_station_table_keeps_dims_and_coords_and_matches_the_core(rng):
                                rtol=0, atol=1e-12)
 
 
+@pytest.mark.reference
 def test_evaluate_track_lazily_with_dask_and_closed_form(rng):
     # f = sin(lat) analysed from a grid; at any point its value is sin(lat) (closed form,
     # common practice: sin(lat) is the degree-1 zonal harmonic times a constant)
@@ -63,6 +64,7 @@ def test_evaluate_track_lazily_with_dask_and_closed_form(rng):
     np.testing.assert_allclose(out.values, np.sin(np.deg2rad(track["lat"].values)), atol=1e-13)
 
 
+@pytest.mark.reference
 def test_evaluate_model_potential_of_a_point_mass_at_radius():
     # a model with only C00 = 1 is a point mass: V = GM / r (closed form, common practice)
     coef = np.zeros((3, 3), complex)
@@ -112,6 +114,7 @@ def _capped(rng, lmax, batch=(), cap_fraction=0.3):
     return h, da
 
 
+@pytest.mark.reference
 def test_analyze_missing_fit_recovers_band_limited_fields_with_a_masked_cap(rng, tmp_path):
     lmax = 5
     h, da = _capped(rng, lmax, batch=(2,))
@@ -121,11 +124,14 @@ def test_analyze_missing_fit_recovers_band_limited_fields_with_a_masked_cap(rng,
         warnings.simplefilter("error", IllPosedWarning)       # well posed: no warning
         ds = sxr.analyze(da, lmax=lmax, missing="fit")
     back = sxr.to_harmonics(ds)
-    assert np.max(np.abs(back.coef - h.coef)) < 1e-8 * np.max(np.abs(h.coef))
+    # conjugate gradients stop at a relative residual of 1e-10 of the normal equations: measured
+    # 3.3e-12 here (up to 9.6e-11 with other seeds), so the bound is 1e-9, not a rounding bound
+    assert np.max(np.abs(back.coef - h.coef)) < 1e-9 * np.max(np.abs(h.coef))
     assert ds[sxr.COS].dims == ("member0", "degree", "order")
     assert ds.attrs["fit_fields"] == "member0" and ds.attrs["fit_damping"] == 0.0
     assert "not filled" in ds.attrs["fit_method"]
-    assert np.all(ds.attrs["fit_residual_rms"] < 1e-8) and np.all(ds.attrs["fit_converged"] == 1)
+    # residual RMS measured 5.5e-12 and 1.4e-12 (up to 1.4e-10 with other seeds)
+    assert np.all(ds.attrs["fit_residual_rms"] < 1e-9) and np.all(ds.attrs["fit_converged"] == 1)
     np.testing.assert_allclose(ds.attrs["fit_observed_fraction"], 0.7, atol=0.02)
     assert np.all(ds.attrs["fit_iterations"] > 1)
     # the attributes survive a netCDF file
@@ -166,6 +172,7 @@ def test_analyze_missing_fit_reports_progress_in_hundredths_of_a_field(rng):
     assert done == sorted(done) and len(set(done)) == len(done) and len(calls) > 4   # never backwards
 
 
+@pytest.mark.reference
 def test_analyze_missing_fit_damps_towards_the_observed_mean_in_any_normalisation(rng):
     # a field of 280 K plus small band-limited anomalies, a 30% cap missing; damping pulls
     # the undetermined combinations to the observed mean, so under the gap the fit stays
@@ -180,8 +187,9 @@ def test_analyze_missing_fit_damps_towards_the_observed_mean_in_any_normalisatio
         assert abs(ds.attrs["fit_reference_mean"] - np.nanmean(da.values)) < 0.2
         back = sxr.synthesize(ds, like=da).values
         assert np.max(np.abs(back[gap] - 280.0)) < 0.5
-        # without damping the mean is handed back exactly: the band-limited truth again
+        # without damping the mean is handed back exactly: the band-limited truth again; C00 of a
+        # constant c is c sqrt(4 pi) orthonormal and c fully normalised (common practice)
         exact = sxr.to_harmonics(sxr.analyze(da, lmax=4, missing="fit", norm=norm))
         truth = (0.01 * h).to(norm)
         assert abs(exact[0, 0] - truth[0, 0] - 280.0 * (np.sqrt(4 * np.pi) if norm == "orthonormal"
-                                                        else 1.0)) < 1e-8
+                                                        else 1.0)) < 1e-12   # 1 ulp of 993 measured

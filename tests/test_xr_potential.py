@@ -55,6 +55,7 @@ def test_gravity_fields_match_the_core_with_units_and_attributes(rng, tmp_path):
     np.testing.assert_array_equal(ds2["anomaly"].values[:, -1], ds2["anomaly"].values[:, 0])
 
 
+@pytest.mark.reference
 def test_geoid_on_the_ellipsoid_has_the_cf_standard_name(rng):
     model = small_gravity_model(rng)
     model = PotentialModel(harmonics=model.harmonics.replace(radius=6378136.3), gm=3.986004415e14)
@@ -64,6 +65,7 @@ def test_geoid_on_the_ellipsoid_has_the_cf_standard_name(rng):
     assert ds.attrs["latitude_kind"] == "geodetic" and ds.attrs["normal_field"] == "grs80"
 
 
+@pytest.mark.reference
 def test_magnetic_fields_and_epochs():
     C = np.zeros((2, 2, 2))
     S = np.zeros((2, 2, 2))
@@ -81,7 +83,8 @@ def test_magnetic_fields_and_epochs():
     assert ds["down"].attrs["units"] == "T" and ds["declination"].attrs["units"] == "degree"
     power = degree_variances(model)
     assert power.dims == ("epoch", "degree") and power.attrs["units"] == "nT2"
-    # by hand: degree 1 of the first epoch, g10^2 + g11^2 + h11^2 (Schmidt)
+    # by hand: degree 1 of the first epoch, g10^2 + g11^2 + h11^2 (the degree variance of Schmidt
+    # coefficients, sum over m of g^2 + h^2; common practice)
     assert power.values[0, 1] == pytest.approx(29400.0**2 + 1450.0**2 + 4650.0**2, rel=1e-14)
 
 

@@ -11,6 +11,7 @@ from sphex.xr.units import product_units, root_units, squared_units, typeset_uni
     ("m", "m2", "m"), ("K", "K2", "K"), ("m s-1", "m2 s-2", "m s-1"), ("m/s", "m2 s-2", "m s-1"),
     ("kg m-2 s-1", "kg2 m-4 s-2", "kg m-2 s-1"), ("W m**-2", "W2 m-4", "W m-2"),
     ("m.s-1", "m2 s-2", "m s-1"), ("1", "1", "1"), ("10 m", "(10 m)^2", "10 m")])
+@pytest.mark.reference
 def test_squared_units_in_the_udunits_habit(units, squared, back):
     # UDUNITS writes products with spaces or '.', exponents as trailing integers (common practice)
     assert squared_units(units) == squared
@@ -23,6 +24,7 @@ def test_products_and_typesetting():
     assert typeset_units("m2 s-2") == "m\u00b2 s\u207b\u00b2" and typeset_units("m^2") == "m\u00b2"
 
 
+@pytest.mark.reference
 def test_radius_attributes_and_unit_warnings():
     assert radius_from_attributes(("the variable's", {}), ("the file's", {"planet_radius_km": "1350"})) \
         == (1350.0, "the file's planet_radius_km attribute")
