@@ -2,10 +2,13 @@
 
 Vector transforms and their kernels, flows and their energy spectrum, gravity and
 magnetic quantities, the readers of model files and the normal fields.  Each entry is
-one careless edit that changes results, with the few tests that should notice (fast
-ones first).  ``python tests/mutations.py --only vector- --only flow- ...`` runs some of
-them; the names start with the module's short name (``vkernel-`` for the kernels,
-whose mutations recompile every kernel and take a minute or two each).
+one careless edit that changes results, with the few tests that should notice.  The
+names start with their module's prefix, so that ``python tests/mutations.py --only
+PREFIX`` runs one module's: ``vector-`` (vector_transform.py), ``vkernel-``
+(kernels/vector.py: each recompiles every kernel, minutes apiece), ``flows-``
+(flow.py; not ``flow-``, which would also pick the core's ``...-overflow-...``
+entries), ``energy-`` (kinetic_energy in spectra.py), ``potential-``, ``models-``
+and ``normal-`` (normal_field.py).  docs/validation.md records the last run.
 """
 from __future__ import annotations
 
