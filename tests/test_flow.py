@@ -177,14 +177,12 @@ def test_pure_gradient_and_pure_rotational_flows(rng, radius):
     assert np.max(np.abs(flow.chi.coef)) < 1e-13 * np.max(np.abs(psi.coef))
 
 
-@pytest.mark.reference
-def test_synthesis_matches_direct_sum_with_scipy(rng):
-    # u = sum a dLambda/dtheta + i m b Lambda/sin(theta), v = sum i m a Lambda/sin(theta)
-    # - b dLambda/dtheta (times e^{i m lon}, both signs of m) with Lambda and its theta
-    # derivative from scipy.special.sph_legendre_p(diff_n=1); the definition of the convention
-    lmax = 12
-    grid = Grid.equiangular(30, 27, "cells")  # below the degree: plain point evaluation
-    a, b = potential(lmax, rng), potential(lmax, rng)
+def direct_sum(a: Harmonics, b: Harmonics, grid: Grid) -> tuple[np.ndarray, np.ndarray]:
+    """u = sum a dLambda/dtheta + i m b Lambda/sin(theta), v = sum i m a Lambda/sin(theta)
+    - b dLambda/dtheta (times e^{i m lon}, both signs of m) at the grid's nodes, with Lambda and
+    its theta derivative from scipy.special.sph_legendre_p(diff_n=1); the definition of the
+    convention, summed term by term (no FFT)."""
+    lmax = a.lmax
     theta = grid.colat
     phi = np.radians(grid.lon)
     u = np.zeros(grid.shape, dtype=complex)
@@ -199,9 +197,88 @@ def test_synthesis_matches_direct_sum_with_scipy(rng):
             u += np.outer(am * dlam + bm * z, e)
             v += np.outer(am * z - bm * dlam, e)
     assert np.max(np.abs(u.imag)) < 1e-12 * np.max(np.abs(u))
+    return u.real, v.real
+
+
+@pytest.mark.reference
+def test_synthesis_matches_direct_sum_with_scipy(rng):
+    # the components against the term-by-term sum of the convention with scipy.special
+    # (see direct_sum)
+    lmax = 12
+    grid = Grid.equiangular(30, 27, "cells")  # below the degree: plain point evaluation
+    a, b = potential(lmax, rng), potential(lmax, rng)
+    u, v = direct_sum(a, b, grid)
     east, north = synthesize_flow(Flow(a, b), grid)
-    assert rel_err(east, u.real) < 1e-13
-    assert rel_err(north, v.real) < 1e-13
+    assert rel_err(east, u) < 1e-13
+    assert rel_err(north, v) < 1e-13
+
+
+@pytest.mark.parametrize("grid", [Grid.equiangular(30, 26, "cells"),
+                                  Grid.from_coords(Grid.gauss(14).lat, 360.0 * np.arange(26) / 26)],
+                         ids=["cells", "gauss"])
+@pytest.mark.reference
+def test_synthesis_at_the_nyquist_order_matches_direct_sum_with_scipy(rng, grid):
+    # a flow whose top order is nlon / 2 = 13: the inverse real FFT keeps only the real part
+    # of that frequency, so the order must be folded onto the grid's longitudes first (the
+    # term-by-term sum of the convention with scipy.special is the reference; see direct_sum)
+    lmax = 13
+    assert grid.nlon == 2 * lmax
+    a, b = potential(lmax, rng), potential(lmax, rng)
+    u, v = direct_sum(a, b, grid)
+    east, north = synthesize_flow(Flow(a, b), grid)
+    err = max(rel_err(east, u), rel_err(north, v))
+    print(f"{grid.kind}: top order at nlon/2: {err:.1e}")
+    assert err < 1e-13  # rounding (measured below 1e-14)
+
+
+@pytest.mark.reference
+def test_flow_on_a_grid_whose_longitudes_start_at_37_degrees():
+    # the tilted solid-body rotation of Williamson et al. 1992 (formulas from memory, as in
+    # test_solid_body_rotation) on a Gauss grid whose first longitude is 37 degrees, not 0:
+    # psi (synthesised by the scalar transform) and the components synthesised from the flow
+    # must be the closed forms at the grid's own longitudes
+    R, alpha = EARTH_RADIUS, 0.7
+    u0 = 2 * math.pi * R / (12 * 86400.0)
+    grid = Grid.from_coords(Grid.gauss(15).lat, 37.0 + 360.0 * np.arange(32) / 32)
+    assert grid.kind == "gauss" and grid.lon0 == 37.0
+    lat, lon = lat_lon(grid)
+    u = u0 * (np.cos(lat) * math.cos(alpha) + np.sin(lat) * np.cos(lon) * math.sin(alpha))
+    v = -u0 * np.sin(lon) * math.sin(alpha) + 0 * lat
+    shape = np.sin(lat) * math.cos(alpha) - np.cos(lon) * np.cos(lat) * math.sin(alpha)
+    flow = analyze_flow(u, v, grid, radius=R)
+    assert rel_err(synthesize(flow.psi, grid), -R * u0 * shape) < 1e-13
+    assert np.max(np.abs(flow.chi.coef)) < 1e-13 * np.max(np.abs(flow.psi.coef))
+    east, north = synthesize_flow(flow, grid)
+    assert np.max(np.abs(east - u)) < 1e-13 * u0 and np.max(np.abs(north - v)) < 1e-13 * u0
+
+
+@pytest.mark.parametrize("top", [True, False], ids=["near-the-largest-double", "tiny"])
+@pytest.mark.reference
+def test_extreme_values_of_one_component_are_rescaled_exactly(rng, top):
+    # multiplying by a power of two is exact in binary floating point (common practice), so a
+    # flow scaled by 2**k analyses and synthesises to 2**k times the unscaled results, bit for
+    # bit, also when one component (or one potential) is zero and only the other is extreme:
+    # near the top of the double range (largest value in [2**1021, 2**1022), where the sums
+    # of the unscaled transform would overflow) and at 2**-1000
+    lmax = 20
+    grid = Grid.gauss(lmax)
+    flow = random_flow(lmax, rng)
+    _, north = synthesize_flow(flow, grid)
+    east = np.zeros_like(north)
+    power = 1022 - math.frexp(np.max(np.abs(north)))[1] if top else -1000
+    plain = analyze_flow(east, north, grid)
+    scaled = analyze_flow(east, np.ldexp(north, power), grid)
+    for part in ("psi", "chi"):
+        got, want = getattr(scaled, part).coef, getattr(plain, part).coef
+        assert np.array_equal(np.ldexp(got.real, -power), want.real)
+        assert np.array_equal(np.ldexp(got.imag, -power), want.imag)
+    zero = Harmonics(np.zeros_like(flow.chi.coef))
+    e1, n1 = synthesize_flow(Flow(zero, flow.chi), grid)
+    power = 1021 - math.frexp(max(np.max(np.abs(e1)), np.max(np.abs(n1))))[1] if top else -1000
+    chi = flow.chi.coef
+    big = Harmonics(np.ldexp(chi.real, power) + 1j * np.ldexp(chi.imag, power))
+    e2, n2 = synthesize_flow(Flow(zero, big), grid)
+    assert np.array_equal(np.ldexp(e2, -power), e1) and np.array_equal(np.ldexp(n2, -power), n1)
 
 
 # --------------------------------------------------------------------------------------

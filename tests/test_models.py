@@ -7,6 +7,7 @@ gravity-field exchange format of the global Earth model centre and the geomagnet
 from __future__ import annotations
 
 import gzip
+import math
 from pathlib import Path
 
 import numpy as np
@@ -134,6 +135,27 @@ def test_gravity_exchange_many_rows_read_in_chunks(tmp_path, monkeypatch, rng):
     sC, sS = m.sigmas.cos_sin()
     for l, mm, c, s, sc, ss in rows:
         assert (C[l, mm], S[l, mm], sC[l, mm], sS[l, mm]) == pytest.approx((c, s, sc, ss), rel=2e-10)
+
+
+@pytest.mark.reference
+def test_gravity_exchange_unnormalized_coefficients(tmp_path):
+    # a file with "norm unnormalized" holds the coefficients of the plain associated Legendre
+    # functions: the fully normalised ones are C / N_lm with
+    # N_lm = sqrt((2 - delta_m0) (2l + 1) (l - m)! / (l + m)!) (common practice, from memory)
+    header = HEADER.replace("norm               fully_normalized", "norm               unnormalized")
+    unnormalized = []
+    for l, m, c, s, sc, ss in GRAVITY_ROWS:
+        n = math.sqrt((2 - (m == 0)) * (2 * l + 1) * math.factorial(l - m) / math.factorial(l + m))
+        unnormalized.append((l, m, c * n, s * n, sc * n, ss * n))
+    path = write(tmp_path, "plain.gfc", gravity_text(unnormalized, header))
+    m = open_model(path)
+    assert m.harmonics.norm == "unnormalized" and m.sigmas.norm == "unnormalized"
+    C, S = m.harmonics.to("full", False).cos_sin()
+    sC, sS = m.sigmas.to("full").cos_sin()
+    for l, mm, c, s, sc, ss in GRAVITY_ROWS:
+        # the file holds 11 significant digits of C N_lm: 5e-11 relative at most
+        got = (C[l, mm], S[l, mm], sC[l, mm], sS[l, mm])
+        assert got == pytest.approx((c, s, sc, ss), rel=1e-10, abs=1e-300)
 
 
 def gravity_error(tmp_path, text: str) -> str:
@@ -264,6 +286,27 @@ def test_shc_epoch_interpolation_by_hand(tmp_path):
     for key, (a, b) in SHC_VALUES.items():
         assert got[key] == pytest.approx(0.7 * a + 0.3 * b, rel=1e-14)
     assert m.epoch == 2021.5
+
+
+@pytest.mark.reference
+def test_shc_interpolation_between_the_right_pair_of_three_epochs(tmp_path):
+    # three epochs: an epoch is interpolated linearly between the two epochs around it
+    # (the format's piecewise-linear reading, from memory), worked out by hand
+    text = ("# three epochs\n1 1 3\n2010.0 2015.0 2020.0\n"
+            "1 0 -29500.0 -29400.0 -29000.0\n1 1 -1600.0 -1500.0 -1480.0\n1 -1 4800.0 4700.0 4720.0\n")
+    path = write(tmp_path, "three.shc", text)
+    early = shc_values_of(open_model(path, epoch=2012.5))
+    # halfway between 2010 and 2015: g10 = -29450, g11 = -1550, h11 = 4750
+    assert early == pytest.approx({(1, 0): -29450.0, (1, 1): -1550.0, (1, -1): 4750.0}, rel=1e-14)
+    late = shc_values_of(open_model(path, epoch=2019.0))
+    # 4/5 of the way from 2015 to 2020: g10 = -29400 + 0.8 * 400 = -29080, g11 = -1484, h11 = 4716
+    assert late == pytest.approx({(1, 0): -29080.0, (1, 1): -1484.0, (1, -1): 4716.0}, rel=1e-14)
+
+
+def shc_values_of(m: PotentialModel) -> dict:
+    """The dipole coefficients g10, g11, h11 of a model as {(n, m): value}, m < 0 for h."""
+    C, S = m.harmonics.cos_sin()
+    return {(1, 0): float(C[1, 0]), (1, 1): float(C[1, 1]), (1, -1): float(S[1, 1])}
 
 
 @pytest.mark.reference
