@@ -15,7 +15,8 @@ temporary folder, then:
    the dask threads spent inside the transforms as a share of the wall time
    times the number of dask threads (1.0: the threads did nothing else), and
    the time in the whole task function (reading excluded; conversion to the
-   cosine/sine form included);
+   cosine/sine form included); the same as CPU time (the threads' own, against
+   the process's), which other programs on a shared machine disturb less;
 3. times the same transforms in memory (blocks of the chunk size from the
    main thread, all cores) on a few chunks and scales them to the series: the
    time the work would take with no reading, writing or scheduling.
@@ -78,33 +79,35 @@ def main() -> None:
     from sphex.xr.streaming import stream_analyze
 
     lock = threading.Lock()
-    spent = {"transform": 0.0, "task": 0.0, "calls": 0}
+    spent = {"transform": 0.0, "task": 0.0, "calls": 0, "transform_cpu": 0.0, "task_cpu": 0.0}
     plain, block = transform.analyze, fields._analyze_block
 
     def timed_analyze(*args, **kwargs):
-        t = time.perf_counter()
+        t, c = time.perf_counter(), time.thread_time()
         try:
             return plain(*args, **kwargs)
         finally:
             with lock:
                 spent["transform"] += time.perf_counter() - t
+                spent["transform_cpu"] += time.thread_time() - c
                 spent["calls"] += 1
 
     def timed_block(*args, **kwargs):
-        t = time.perf_counter()
+        t, c = time.perf_counter(), time.thread_time()
         try:
             return block(*args, **kwargs)
         finally:
             with lock:
                 spent["task"] += time.perf_counter() - t
+                spent["task_cpu"] += time.thread_time() - c
 
     transform.analyze, fields._analyze_block = timed_analyze, timed_block
     threads = dask.config.get("num_workers", None) or os.cpu_count()
     try:
-        t0 = time.perf_counter()
+        t0, c0 = time.perf_counter(), time.process_time()
         r = stream_analyze(src, "field", out, overwrite=True, progress=False,
                            chunks={"time": a.chunks} if a.chunks else None)
-        wall = time.perf_counter() - t0
+        wall, cpu = time.perf_counter() - t0, time.process_time() - c0
     finally:
         transform.analyze, fields._analyze_block = plain, block
     print(f"in process: {r.fields} fields in {r.chunks} chunks of {r.block}, {wall:.1f} s, "
@@ -112,6 +115,9 @@ def main() -> None:
     print(f"  transforms {spent['transform']:.1f} thread-s = "
           f"{spent['transform'] / (wall * threads):.0%} of wall x threads; task functions "
           f"{spent['task']:.1f} thread-s = {spent['task'] / (wall * threads):.0%}")
+    print(f"  CPU: process {cpu:.1f} s, in the transforms {spent['transform_cpu']:.1f} s "
+          f"({spent['transform_cpu'] / cpu:.0%}), in the task functions {spent['task_cpu']:.1f} s "
+          f"({spent['task_cpu'] / cpu:.0%}); load average {os.getloadavg()[0]:.2f}")
 
     # 3. the transforms alone, in memory
     from sphex.grids import Grid
