@@ -317,6 +317,8 @@ def gauss_nodes(n: int) -> tuple[np.ndarray, np.ndarray]:
 
 def equiangular_nodes(nlat: int, layout: str) -> tuple[np.ndarray, np.ndarray]:
     """Colatitudes (ascending, radians) and weights in x for an equiangular layout."""
+    import scipy.fft  # imported where used: Gauss grids and importing this module need no FFT
+
     if layout == "cells":
         n = nlat
         colat = (np.arange(n) + 0.5) * (np.pi / n)
@@ -325,8 +327,6 @@ def equiangular_nodes(nlat: int, layout: str) -> tuple[np.ndarray, np.ndarray]:
         x[0] = 1.0
         k = np.arange(1, (n - 1) // 2 + 1)
         x[2 * k] = -1.0 / (4.0 * k * k - 1.0)
-        import scipy.fft  # imported where used: Gauss grids and importing this module need no FFT
-
         weights = (2.0 / n) * scipy.fft.dct(x, type=3)
         return colat, weights
     if layout in ("poles", "north"):
