@@ -7,7 +7,7 @@ forms of a kernel module (or holds only ones older than its source), and
 writes the notice a command prints before such a call:
 
     sphex analyze: compiling the numeric kernels once for this installation (scalar
-    transforms, about 15 s); later runs load them from the cache and start at once
+    transforms, about 18 s); later runs load them from the cache and start at once
 
 The notice goes to a terminal only, once per process and kernel module: pipes,
 log files, tests and CI see nothing, unless ``SPHEX_COMPILE_NOTICE=1`` asks for
@@ -28,11 +28,12 @@ __all__ = ["KERNEL_MODULES", "kernel_cache_directories", "missing_kernels",
            "kernels_need_preparing", "compile_notice"]
 
 #: Kernel modules by name: what they serve and the seconds their first compilation took
-#: on the two-core development machine (all of its kernels, from an empty cache).
+#: on the two-core development machine (all of its kernels, from an empty cache, measured
+#: by docs/measurements/measure_demo_fresh.py on 2026-12-02; update after kernel changes).
 KERNEL_MODULES: dict[str, tuple[str, float]] = {
-    "scalar": ("scalar transforms", 15.0),
+    "scalar": ("scalar transforms", 18.0),
     "gauss": ("Gauss-Legendre nodes", 1.0),
-    "vector": ("wind and current transforms", 40.0),
+    "vector": ("wind and current transforms", 24.0),
 }
 
 #: Modules whose code the kernels of a module inline (an edit there changes them too).
