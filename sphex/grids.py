@@ -30,7 +30,6 @@ hence ``L = floor((nlat - 1) / 2)``.  In every case also ``L <= (nlon - 1) // 2`
 from __future__ import annotations
 
 import numpy as np
-import scipy.fft
 
 from sphex.limits import check_memory, whole_number
 
@@ -318,6 +317,8 @@ def gauss_nodes(n: int) -> tuple[np.ndarray, np.ndarray]:
 
 def equiangular_nodes(nlat: int, layout: str) -> tuple[np.ndarray, np.ndarray]:
     """Colatitudes (ascending, radians) and weights in x for an equiangular layout."""
+    import scipy.fft  # imported where used: Gauss grids and importing this module need no FFT
+
     if layout == "cells":
         n = nlat
         colat = (np.arange(n) + 0.5) * (np.pi / n)
@@ -360,6 +361,8 @@ def _clenshaw_curtis(nint: int) -> tuple[np.ndarray, np.ndarray]:
     x[0] = 1.0
     k = np.arange(1, N // 2 + 1)
     x[2 * k] = -1.0 / (4.0 * k * k - 1.0)
+    import scipy.fft
+
     y = scipy.fft.dct(x, type=1)
     c = np.full(N + 1, 2.0)
     c[0] = c[N] = 1.0

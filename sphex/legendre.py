@@ -29,7 +29,6 @@ import functools
 
 import numpy as np
 
-from sphex.kernels.recursion import legendre_order
 from sphex.limits import check_memory, whole_number
 
 __all__ = ["for_order", "all_orders", "derivative_for_order", "NORMS", "norm_scale",
@@ -150,6 +149,10 @@ def _check_m_lmax(m, lmax):
 
 
 def _order_values(m, lmax, colat, norm, condon_shortley, want_deriv):
+    # imported here: conventions and scales need no kernels, so importing this module
+    # (and harmonics, the adapters' coefficient layer) does not load numba
+    from sphex.kernels.recursion import legendre_order
+
     check_norm(norm)
     m, lmax = _check_m_lmax(m, lmax)
     x, s = _prepare_colat(colat)

@@ -194,8 +194,9 @@ def test_smooth_progress_advances_on_a_terminal_and_stays_quiet_in_a_pipe(tmp_pa
     assert len(lines) <= 4 and "\r" not in r.stderr
 
 
-def test_first_run_says_it_prepares_the_kernels(tmp_path):
-    # a numba cache directory without the kernels: the run says so once, before the work
+def test_first_run_says_it_compiles_the_kernels(tmp_path):
+    # a numba cache directory without the kernels: the run says so once, before the work,
+    # on a terminal (forced here with SPHEX_COMPILE_NOTICE=1) and never in a pipe
     # (this field holds a missing value, so the run stops before compiling anything)
     grid = sphex.Grid.gauss(10)
     values = random_field_file(tmp_path / "f.nc", 5, grid, np.random.default_rng(2))
@@ -204,15 +205,19 @@ def test_first_run_says_it_prepares_the_kernels(tmp_path):
                coords={"lat": grid.lat, "lon": grid.lon}).to_netcdf(tmp_path / "holes.nc")
     empty = tmp_path / "numba-cache"
     empty.mkdir()
-    r = run("analyze", tmp_path / "holes.nc", "-o", tmp_path / "c.txt",
-            env={"NUMBA_CACHE_DIR": str(empty)})
+    args = ("analyze", tmp_path / "holes.nc", "-o", tmp_path / "c.txt")
+    r = run(*args, env={"NUMBA_CACHE_DIR": str(empty), "SPHEX_COMPILE_NOTICE": "1"})
     assert r.returncode == 2
-    notice = [ln for ln in r.stderr.splitlines() if "preparing the numeric kernels" in ln]
-    assert len(notice) == 1 and "later runs start at once" in notice[0]
+    notice = [ln for ln in r.stderr.splitlines() if "compiling the numeric kernels" in ln]
+    assert len(notice) == 1 and "later runs load them" in notice[0]
+    assert "scalar transforms, about " in notice[0]
+    r = run(*args, env={"NUMBA_CACHE_DIR": str(empty)})           # stderr is a pipe: silent
+    assert r.returncode == 2 and "compiling" not in r.stderr
     # with the kernels in the cache (this process compiled them), nothing is said
     sphex.analyze(np.ones(grid.shape), grid)
-    r = ok(run("analyze", tmp_path / "f.nc", "-o", tmp_path / "c.txt"))
-    assert "preparing" not in r.stderr
+    r = ok(run("analyze", tmp_path / "f.nc", "-o", tmp_path / "c.txt",
+               env={"SPHEX_COMPILE_NOTICE": "1"}))
+    assert "compiling" not in r.stderr
 
 
 # --------------------------------------------------------------------------------------------

@@ -33,7 +33,7 @@ ROOT = Path(__file__).resolve().parent.parent / "sphex"
 
 CORE = {"grids", "legendre", "harmonics", "limits", "rings", "transform", "vector_transform",
         "spectra", "filters", "flow", "models", "normal_field", "potential", "points",
-        "least_squares", "rotation", "concentration", "localize"}
+        "least_squares", "rotation", "concentration", "localize", "compiling"}
 FORBIDDEN_IN_CORE_EXTERNAL = {"xarray", "matplotlib", "dask", "distributed", "netCDF4"}
 FORBIDDEN_IN_CORE_LAYERS = {"xr", "plot", "cli", "report", "demo", "bench"}
 KERNEL_EXTERNAL = {"numpy", "numba", "llvmlite"}

@@ -14,8 +14,11 @@ Two measurements, both ratios taken in one run on this machine:
    command line analysing a generated netCDF file of about 1.3 GB (float64
    fields on the same grid) chunk by chunk, against the file size (target
    <= 0.6).  The file is made in a temporary directory and deleted at the
-   end.  For comparison it measures an idle interpreter with the same
-   imports and, with ``--compare``, loading the whole variable instead.
+   end (``--series-gb`` sets its size).  For comparison it measures an idle
+   interpreter with the same imports and, with ``--compare``, loading the
+   whole variable instead; and it times the transforms of one chunk in memory
+   and scales them to the file: their share of the streamed run's wall time
+   (target >= 0.7; the rest is reading, writing, dask and the process start).
 
 Run ``sphex bench --scale`` or ``python -m sphex.bench.scaleout`` (``--json`` for machines, ``--quick`` for
 a small file).  Timings on a shared machine vary; each throughput figure is
@@ -271,6 +274,7 @@ def memory(nbytes: float = FILE_BYTES, chunk: int | None = None, compare: bool =
         out.unlink()
         res = {"file": made, "streamed": {"how": how, "chunks": chunks or "default", **run,
                                           "output_bytes": out_size}}
+        res["transforms"] = _transform_share(made["fields"], run["seconds"], chunk)
         res["peak_over_file"] = run["peak_rss_bytes"] / made["file_bytes"]
         res["target"] = 0.6
         res["idle"] = _peak_rss([sys.executable, "-c",
@@ -288,15 +292,38 @@ def memory(nbytes: float = FILE_BYTES, chunk: int | None = None, compare: bool =
         shutil.rmtree(tmp, ignore_errors=True)
 
 
+def _transform_share(fields: int, seconds: float, chunk: int | None,
+                     lmax: int = LMAX, repeat: int = 3) -> dict:
+    """The transforms of a streamed run alone: one chunk analysed in memory (all cores,
+    best of ``repeat``), scaled to the series, as a share of the run's wall time."""
+    from sphex import Grid
+    from sphex.transform import analyze
+    from sphex.xr.scaleout import default_block
+
+    grid = Grid.gauss(lmax)
+    block = min(chunk or default_block(8 * grid.nlat * grid.nlon), fields)
+    values = np.random.default_rng(7).standard_normal((block, grid.nlat, grid.nlon))
+    analyze(values, grid)
+    best = math.inf
+    for _ in range(repeat):
+        t0 = time.perf_counter()
+        analyze(values, grid)
+        best = min(best, time.perf_counter() - t0)
+    alone = best * fields / block
+    return {"block": block, "block_seconds": best, "series_seconds": alone,
+            "share_of_wall": alone / seconds, "target": 0.7}
+
+
 # ----------------------------------------------------------------------------
 def run(quick: bool = False, repeat: int = 5, memory_check: bool = True,
-        compare: bool = False, chunk: int | None = None) -> dict:
+        compare: bool = False, chunk: int | None = None,
+        series_bytes: float | None = None) -> dict:
     """Both measurements as one dict (what ``sphex bench --scale`` reports)."""
     res: dict[str, Any] = {"throughput": throughput_child(lmax=127 if quick else LMAX,
                                                           repeat=1 if quick else repeat)}
     if memory_check:
-        res["memory"] = memory(nbytes=1.3e8 if quick else FILE_BYTES, chunk=chunk,
-                               compare=compare)
+        nbytes = series_bytes or (1.3e8 if quick else FILE_BYTES)
+        res["memory"] = memory(nbytes=nbytes, chunk=chunk, compare=compare)
     return res
 
 
@@ -328,6 +355,13 @@ def format_report(res: dict) -> str:
         lines.append(f"  peak RSS {s['peak_rss_bytes'] / 2**20:.0f} MiB = {m['peak_over_file']:.2f} "
                      f"of the file ({ok} the {m['target']} target), {s['seconds']:.1f} s, "
                      f"{m['file']['fields'] / s['seconds']:.0f} fields/s")
+        if "transforms" in m:
+            tr = m["transforms"]
+            ok = "meets" if tr["share_of_wall"] >= tr["target"] else "misses"
+            lines.append(f"  the transforms alone (chunks of {tr['block']} in memory, all cores): "
+                         f"{tr['series_seconds']:.1f} s = {tr['share_of_wall']:.0%} of the wall "
+                         f"time ({ok} the {tr['target']:.0%} target; the rest is reading, "
+                         "writing, dask and the start of the process)")
         lines.append(f"  idle interpreter with the same imports: "
                      f"{m['idle']['peak_rss_bytes'] / 2**20:.0f} MiB")
         if "in_memory" in m:
@@ -348,11 +382,17 @@ def main(argv: list[str] | None = None) -> int:
                    help="also measure loading the whole variable (needs about 6x the file in RAM)")
     p.add_argument("--chunk", type=int, default=None, metavar="N",
                    help="fields per chunk for the streamed run (default: sphex's)")
+    p.add_argument("--series-gb", type=float, default=None, metavar="GB",
+                   help="size of the generated series for the streamed run (default 1.3; "
+                        "e.g. 2 for the long-series figure of docs/long-series.md)")
     p.add_argument("--json", action="store_true", help="print JSON")
     a = p.parse_args(argv)
     if a.repeat < 1 or (a.chunk is not None and a.chunk < 1):
         p.error("--repeat and --chunk must be 1 or more")
-    res = run(a.quick, a.repeat, not a.no_memory, a.compare, a.chunk)
+    if a.series_gb is not None and not 0 < a.series_gb <= 1000:
+        p.error("--series-gb must be above 0 (and at most 1000)")
+    res = run(a.quick, a.repeat, not a.no_memory, a.compare, a.chunk,
+              None if a.series_gb is None else a.series_gb * 1e9)
     print(json.dumps(res, indent=2) if a.json else format_report(res))
     return 0
 

@@ -29,5 +29,5 @@ def register(sub: Any) -> None:
 def run(a: argparse.Namespace) -> int:
     from sphex import demo as demo_job
 
-    announce_kernel_preparation("demo")
+    announce_kernel_preparation("demo", kernels=("scalar", "gauss", "vector"))
     return demo_job.run(a.out, overwrite=a.overwrite, progress=Progress)

@@ -110,8 +110,10 @@ def run(a: argparse.Namespace) -> int:
     from sphex.xr.flow_components import RadiusAssumedWarning
 
     check_paths([a.input], [a.output, a.spectrum, a.plot], a.overwrite)
+    from sphex.cli.progress import announce_kernel_preparation
     from sphex.xr.flow_streaming import stream_flow
 
+    announce_kernel_preparation("flow", kernels=("scalar", "vector"))
     with warnings.catch_warnings():
         warnings.simplefilter("ignore", RadiusAssumedWarning)    # said in the report instead
         r = stream_flow(a.input, a.output, a.east, a.north, lmax=a.lmax,

@@ -75,12 +75,27 @@ class OneLineParser(argparse.ArgumentParser):
 def build_parser() -> OneLineParser:
     """The parser of ``sphex`` with every subcommand registered."""
     p = OneLineParser(prog=PROG, description=MAIN_HELP, formatter_class=CommandListFormatter)
-    p.add_argument("--version", action="version", version=f"%(prog)s {_version()}")
+    p.add_argument("--version", action=_Version)
     add_debug_argument(p)
     sub = p.add_subparsers(dest="command", metavar="COMMAND", parser_class=OneLineParser)
     for module in COMMAND_MODULES:
         module.register(sub)
     return p
+
+
+class _Version(argparse.Action):
+    """``--version``: the installed version, looked up only when asked for (reading the
+    package metadata imports ``importlib.metadata``, a noticeable share of a short call)."""
+
+    def __init__(self, option_strings: Sequence[str], dest: str = argparse.SUPPRESS,
+                 default: Any = argparse.SUPPRESS, help: str = "show program's version number "
+                 "and exit") -> None:
+        super().__init__(option_strings, dest=dest, default=default, nargs=0, help=help)
+
+    def __call__(self, parser: argparse.ArgumentParser, namespace: Any, values: Any,
+                 option_string: str | None = None) -> None:
+        print(f"{parser.prog} {_version()}")
+        parser.exit()
 
 
 def _version() -> str:

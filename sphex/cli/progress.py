@@ -10,29 +10,22 @@ One display for every subcommand (:class:`Progress`):
   three quarters and the end of the work, and only once the run has lasted two
   seconds, so short runs print nothing.
 
-:func:`announce_kernel_preparation` says once, on stderr, that the numeric
-kernels are being prepared when numba's on-disk cache holds no compiled
-transform kernels yet (or only ones older than their source): the first run
-after installing or updating sphex compiles them, later runs load them.
+:func:`announce_kernel_preparation` says once, on a terminal's stderr, that the
+numeric kernels are being compiled when numba's on-disk cache holds no compiled
+kernels of the run yet (or only ones older than their source): the first run
+after installing or updating sphex compiles them, later runs load them
+(:mod:`sphex.compiling`).
 
 Standard library only (imported when the parser is built).
 """
 from __future__ import annotations
 
-import hashlib
-import os
 import sys
 import threading
 import time
-from pathlib import Path
 from typing import TextIO
 
-__all__ = ["Progress", "progress_bar", "announce_kernel_preparation", "kernels_need_preparing",
-           "elapsed_text"]
-
-#: Kernel modules whose compiled forms every transform needs (the recursion is inlined in them).
-TRANSFORM_KERNELS = ("scalar",)
-_KERNEL_SOURCES = ("scalar.py", "recursion.py")
+__all__ = ["Progress", "progress_bar", "announce_kernel_preparation", "elapsed_text"]
 
 
 def elapsed_text(seconds: float) -> str:
@@ -175,51 +168,17 @@ def progress_bar(total: int, command: str) -> Progress:
 
 
 # ---------------------------------------------------------------------------------------
-# the first run's kernel compilation
+# the first run's kernel compilation (the logic lives in sphex.compiling, standard library only)
 # ---------------------------------------------------------------------------------------
-def _kernel_cache_directories(kernels: Path) -> list[Path]:
-    """Where numba keeps the compiled kernels of ``kernels``, in its order of preference.
+def announce_kernel_preparation(command: str, stream: TextIO | None = None,
+                                kernels: tuple[str, ...] = ("scalar",)) -> bool:
+    """Say once on a terminal's stderr that this run compiles the kernels it needs first.
 
-    numba writes beside the source (``__pycache__``) unless ``NUMBA_CACHE_DIR``
-    is set; where the source directory is read-only it uses the user's cache
-    directory.  Outside ``__pycache__`` the subdirectory is the source
-    directory's name and the SHA-1 of its path.
+    ``kernels`` names the kernel modules the run uses (see
+    :data:`sphex.compiling.KERNEL_MODULES`); nothing is said when numba's cache
+    holds them, nor when stderr is not a terminal (unless ``SPHEX_COMPILE_NOTICE=1``).
+    Returns whether the notice was written.
     """
-    source_dir = str(kernels.resolve())
-    subpath = f"{Path(source_dir).name}_{hashlib.sha1(source_dir.encode()).hexdigest()}"
-    chosen = os.environ.get("NUMBA_CACHE_DIR", "")
-    if chosen:
-        return [Path(chosen).resolve() / subpath]
-    user = Path(os.environ.get("XDG_CACHE_HOME") or Path.home() / ".cache") / "numba"
-    return [kernels / "__pycache__", user / subpath]
+    from sphex.compiling import compile_notice
 
-
-def kernels_need_preparing(kernels: Path | None = None) -> bool:
-    """Whether numba's cache lacks the transform kernels, or holds only older ones.
-
-    Cheap: looks for the index files (``scalar.*.nbi``) numba writes when it
-    caches a compiled function, and compares their times with the sources'.
-    """
-    kernels = Path(__file__).resolve().parent.parent / "kernels" if kernels is None else kernels
-    try:
-        newest = max((kernels / name).stat().st_mtime for name in _KERNEL_SOURCES)
-    except OSError:
-        return False
-    for directory in _kernel_cache_directories(kernels):
-        for module in TRANSFORM_KERNELS:
-            index = list(directory.glob(f"{module}.*.nbi"))
-            if index and min(p.stat().st_mtime for p in index) >= newest:
-                return False
-    return True
-
-
-def announce_kernel_preparation(command: str, stream: TextIO | None = None) -> bool:
-    """Say on stderr that this run prepares the numeric kernels, if it does; returns whether."""
-    if not kernels_need_preparing():
-        return False
-    out = sys.stderr if stream is None else stream
-    out.write(f"sphex {command}: preparing the numeric kernels (the first run after installing "
-              "or updating sphex compiles them once, which takes up to a minute; later runs "
-              "start at once)\n")
-    out.flush()
-    return True
+    return compile_notice(f"sphex {command}", kernels, stream)

@@ -38,6 +38,11 @@ Modules
                   :func:`local_correlation`, :func:`rotate`
 ``accessors``     ``da.sphex`` and ``ds.sphex`` (registered on import of this package)
 
+Importing this package registers the accessors and the netCDF model reader;
+the other names are imported on first use (``sphex.xr.analyze`` loads the
+transform, its kernels and numba then), so a program that only reads a file's
+coordinates or coefficients does not pay for what it does not use.
+
 Examples
 --------
 >>> import numpy as np, xarray as xr, sphex, sphex.xr
@@ -52,26 +57,32 @@ True
 """
 from __future__ import annotations
 
-from sphex.xr import accessors  # noqa: F401  (registers da.sphex and ds.sphex)
-from sphex.xr.coefficients import COS, SIN, from_harmonics, is_coefficients, to_harmonics
-from sphex.xr.coords import GridInfo, find_grid, parse_grid
-from sphex.xr.fields import analyze, degree_power, regrid, smooth, synthesize
-from sphex.xr.flow import (
-    analyze_flow, flow_fields, from_flow, kinetic_energy, regrid_flow, smooth_flow, to_flow,
-)
-from sphex.xr.flow_components import EARTH_MEAN_RADIUS_M, RadiusAssumedWarning
+import importlib
 
-from sphex.xr.localize import (
-    local_admittance, local_correlation, local_cross_power, local_power, rotate,
-)
-from sphex.xr.files import open_coefficients, open_harmonics, write_dataset, write_harmonics
-from sphex.xr.models import open_model, read_model, write_model
-from sphex.xr.potential import (
-    degree_variances, error_degree_variances, gravity_fields, magnetic_fields,
-)
-from sphex.xr.output import OutputExistsError, atomic_output, check_output_path
-from sphex.xr.points import evaluate
-from sphex.xr.tables import read_table, write_table
+from sphex.xr import accessors  # noqa: F401  (registers da.sphex and ds.sphex)
+from sphex.xr import models  # noqa: F401  (registers the netCDF model reader with sphex.models)
+
+#: The public names and the modules they come from (imported on first use).
+_NAMES = {
+    "COS": "coefficients", "SIN": "coefficients", "from_harmonics": "coefficients",
+    "is_coefficients": "coefficients", "to_harmonics": "coefficients",
+    "GridInfo": "coords", "find_grid": "coords", "parse_grid": "coords",
+    "analyze": "fields", "degree_power": "fields", "regrid": "fields", "smooth": "fields",
+    "synthesize": "fields",
+    "analyze_flow": "flow", "flow_fields": "flow", "from_flow": "flow",
+    "kinetic_energy": "flow", "regrid_flow": "flow", "smooth_flow": "flow", "to_flow": "flow",
+    "EARTH_MEAN_RADIUS_M": "flow_components", "RadiusAssumedWarning": "flow_components",
+    "local_admittance": "localize", "local_correlation": "localize",
+    "local_cross_power": "localize", "local_power": "localize", "rotate": "localize",
+    "open_coefficients": "files", "open_harmonics": "files", "write_dataset": "files",
+    "write_harmonics": "files",
+    "open_model": "models", "read_model": "models", "write_model": "models",
+    "degree_variances": "potential", "error_degree_variances": "potential",
+    "gravity_fields": "potential", "magnetic_fields": "potential",
+    "OutputExistsError": "output", "atomic_output": "output", "check_output_path": "output",
+    "evaluate": "points",
+    "read_table": "tables", "write_table": "tables",
+}
 
 __all__ = [
     "COS", "SIN", "GridInfo", "find_grid", "parse_grid", "analyze", "synthesize",
@@ -86,3 +97,15 @@ __all__ = [
     "open_model", "read_model", "write_model", "gravity_fields", "magnetic_fields",
     "degree_variances", "error_degree_variances",
 ]
+
+
+def __getattr__(name: str):
+    if name not in _NAMES:
+        raise AttributeError(f"module 'sphex.xr' has no attribute {name!r}")
+    value = getattr(importlib.import_module(f"sphex.xr.{_NAMES[name]}"), name)
+    globals()[name] = value
+    return value
+
+
+def __dir__():
+    return sorted(set(globals()) | set(__all__))

@@ -27,7 +27,7 @@ from sphex.xr import scaleout
 from sphex.xr.coefficients import (
     COS, SIN, as_coefficients, finish_coefficient_dataset, harmonics_from_cos_sin, read_conventions,
 )
-from sphex.xr.coords import GridInfo, check_lmax, find_grid, synthesis_target
+from sphex.xr.coords import GridInfo, analysis_columns, check_lmax, find_grid, synthesis_target
 from sphex.xr.least_squares import analyze_observed, check_missing
 from sphex.xr.radius import EARTH_RADIUS_KM, radius_from_attributes
 from sphex.xr.units import squared_units
@@ -52,7 +52,7 @@ def _analyze_block(values: np.ndarray, pos: np.ndarray | None = None, *, info: G
     """Real-form coefficients (C, S) of a block of gridded fields (one apply_ufunc call)."""
     from sphex.transform import analyze as _analyze
 
-    values = np.asarray(values)[..., list(info.take)]
+    values = analysis_columns(np.asarray(values), info.take)
     batch = values.shape[:-2]
     flat = values.reshape((-1,) + values.shape[-2:])
     n = flat.shape[0]
@@ -348,7 +348,7 @@ def _resynthesize_block(values: np.ndarray, pos: np.ndarray | None = None, *, in
     groups of fields finish."""
     from sphex.transform import analyze as _analyze, synthesize as _synthesize
 
-    v = np.asarray(values)[..., list(info.take)]
+    v = analysis_columns(np.asarray(values), info.take)
     batch = v.shape[:-2]
     flat = v.reshape((-1,) + v.shape[-2:])
     n = flat.shape[0]

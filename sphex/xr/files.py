@@ -82,12 +82,39 @@ def write_netcdf(ds: xr.Dataset, path: str | os.PathLike,
         old = ds.variables[k].encoding
         if "_FillValue" in old and old["_FillValue"] is not None:
             enc.pop(k)
-    own_pool = _is_lazy(ds) and _default_scheduler()
+    lazy = _is_lazy(ds)
+    own_pool = lazy and _default_scheduler()
     try:
+        if not lazy and _write_loaded(ds, path, enc):
+            return
         with thread_pool() if own_pool else contextlib.nullcontext():
             ds.to_netcdf(path, format="NETCDF4", engine="netcdf4", encoding=enc)
     except (RuntimeError, OSError) as exc:
         raise write_failure(target if target is not None else path, exc, source) from None
+
+
+def _write_loaded(ds: xr.Dataset, path: str | os.PathLike, enc: dict) -> bool:
+    """Write a Dataset held in memory through xarray's netCDF4 store; False if this xarray
+    has no such store (the caller then uses ``to_netcdf``).
+
+    ``to_netcdf`` asks dask which scheduler would run the write, and that question imports
+    ``dask.distributed`` (about 0.3 s) even when nothing is to be computed; here the file
+    is opened with the netCDF library's own lock, which is what ``to_netcdf`` uses too
+    for a write outside dask, and the variables are stored the same way.
+    """
+    try:
+        from xarray.backends.netCDF4_ import NETCDF4_PYTHON_LOCK, NetCDF4DataStore
+    except ImportError:  # pragma: no cover - another xarray layout
+        return False
+    unlimited = ds.encoding.get("unlimited_dims") or ()
+    unlimited = [unlimited] if isinstance(unlimited, str) else list(unlimited)
+    store = NetCDF4DataStore.open(str(path), mode="w", format="NETCDF4", lock=NETCDF4_PYTHON_LOCK)
+    try:
+        ds.dump_to_store(store, encoding=enc,
+                         unlimited_dims=[d for d in unlimited if d in ds.dims] or None)
+    finally:
+        store.close()
+    return True
 
 
 def _is_lazy(ds: xr.Dataset) -> bool:

@@ -24,7 +24,6 @@ from typing import Any
 import numpy as np
 import xarray as xr
 
-from sphex.least_squares import fit_masked
 from sphex.xr.coefficients import COS, SIN, finish_coefficient_dataset
 from sphex.xr.coords import GridInfo
 
@@ -121,6 +120,8 @@ def analyze_observed(da: xr.DataArray, info: GridInfo, lmax: int, *, norm: str,
         From :func:`~sphex.least_squares.fit_masked`, when the gaps leave
         combinations of coefficients undetermined.
     """
+    from sphex.least_squares import fit_masked  # scipy.linalg only for fields with gaps
+
     core = (info.lat_dim, info.lon_dim)
     batch_dims = [d for d in da.dims if d not in core]
     values = np.asarray(da.transpose(*batch_dims, *core).values)[..., list(info.take)]

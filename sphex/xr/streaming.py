@@ -397,18 +397,28 @@ def stream_analyze(input: str | os.PathLike, var: str | None, output: str | os.P
             raise ValueError(f"{path}: {exc}") from None
         lmax = check_lmax(lmax, info.grid, False, f"variable {name!r}")
         spec, dim, block = _plan_chunks(da, info, chunks)
-        lazy = da.chunk(spec)
-        n_fields = math.prod(int(lazy.sizes[d]) for d in lazy.dims
-                             if d not in (info.lat_dim, info.lon_dim))
-        n_chunks = math.prod(len(c) for c in lazy.chunks)
-        per_chunk = math.prod(max(c) for c, d in zip(lazy.chunks, lazy.dims)
+        sizes = {d: int(da.sizes[d]) for d in da.dims}
+        blocks = {d: sizes[d] if spec[d] == -1 else int(spec[d]) for d in da.dims}
+        n_fields = math.prod(sizes[d] for d in da.dims if d not in (info.lat_dim, info.lon_dim))
+        n_chunks = math.prod(-(-sizes[d] // blocks[d]) for d in da.dims)
+        per_chunk = math.prod(blocks[d] for d in da.dims
                               if d not in (info.lat_dim, info.lon_dim))
         _check_chunk_memory(info, lmax, per_chunk, n_chunks)
-        ds = analyze(lazy, lmax, norm=norm, condon_shortley=condon_shortley, radius=radius)
+        # a file that is one chunk is analysed in memory: the same numbers, without
+        # loading dask's array and distributed modules (most of a short run's time)
+        whole = n_chunks == 1 and not scheduler
+        ds = analyze(da if whole else da.chunk(spec), lmax, norm=norm,
+                     condon_shortley=condon_shortley, radius=radius)
         ds.attrs["history"] = history or (f"sphex analyze {path} -v {name} --lmax {lmax} "
                                           f"--norm {norm}")
-        write_lazily(ds, output, overwrite, scheduler=scheduler, fields=n_fields,
-                     label="sphex analyze", progress=progress, source=path)
+        if whole:
+            with atomic_output(output, overwrite) as tmp:
+                write_netcdf(ds, tmp, source=path, target=output)
+            if callable(progress):
+                progress(n_fields, n_fields)
+        else:
+            write_lazily(ds, output, overwrite, scheduler=scheduler, fields=n_fields,
+                         label="sphex analyze", progress=progress, source=path)
     finally:
         src.close()
     return StreamResult(Path(output), name, info.describe(), int(lmax), norm,

@@ -1,0 +1,163 @@
+"""What a command-line call imports before it works, and the notice of a first call that
+compiles the kernels.
+
+No timings here (speed lives in the benchmark and docs/performance.md): each check
+runs a fresh interpreter and looks at ``sys.modules`` afterwards, so an import of a
+heavy package where it is not needed (numba for ``sphex --help``, matplotlib or
+dask.distributed for ``sphex analyze``) fails a test instead of silently costing
+every call a few tenths of a second again.
+"""
+from __future__ import annotations
+
+import io
+import os
+import subprocess
+import sys
+from pathlib import Path
+
+import numpy as np
+import pytest
+import xarray as xr
+
+import sphex
+from sphex import compiling
+
+ROOT = Path(__file__).resolve().parent.parent
+HEAVY = ("numpy", "numba", "scipy", "xarray", "netCDF4", "dask", "dask.array", "distributed",
+         "matplotlib", "pandas", "importlib.metadata")
+
+PROBE = """\
+import runpy, sys
+sys.argv = ["sphex"] + sys.argv[1:]
+try:
+    runpy.run_module("sphex", run_name="__main__")
+except SystemExit:
+    pass
+print("@@", " ".join(sorted(m for m in {heavy!r} if m in sys.modules)), file=sys.stderr)
+"""
+
+
+def loaded_by(code: str, *args, cwd=None) -> set[str]:
+    """The heavy packages a fresh interpreter has imported after running ``code``."""
+    env = dict(os.environ, PYTHONPATH=str(ROOT) + os.pathsep + os.environ.get("PYTHONPATH", ""))
+    r = subprocess.run([sys.executable, "-c", code, *map(str, args)], capture_output=True,
+                       text=True, env=env, cwd=cwd, timeout=300)
+    marker = [ln for ln in r.stderr.splitlines() if ln.startswith("@@")]
+    assert marker, r.stderr
+    return set(marker[-1][2:].split())
+
+
+def command_loads(*args, cwd=None) -> set[str]:
+    return loaded_by(PROBE.format(heavy=HEAVY), *args, cwd=cwd)
+
+
+def import_loads(module: str) -> set[str]:
+    return loaded_by(f"import sys, {module}\n"
+                     f"print('@@', ' '.join(m for m in {HEAVY!r} if m in sys.modules), "
+                     "file=sys.stderr)")
+
+
+@pytest.fixture(scope="module")
+def small_file(tmp_path_factory):
+    """A 16 x 32 field on the equiangular cell-centre grid (no Gauss nodes to compute)."""
+    path = tmp_path_factory.mktemp("startup") / "small.nc"
+    g = sphex.Grid.equiangular(16, 32, "cells")
+    xr.Dataset({"t": (("lat", "lon"), np.random.default_rng(3).standard_normal(g.shape))},
+               coords={"lat": g.lat, "lon": g.lon}).to_netcdf(path)
+    return path
+
+
+def test_help_and_the_parser_load_no_numeric_package():
+    # (nor the package metadata: the version is read when --version asks for it)
+    assert command_loads("--help") == set()
+    assert command_loads("analyze", "--help") == set()
+    assert import_loads("sphex.cli.parser") == set()
+    assert import_loads("sphex") == set()
+
+
+def test_the_adapters_and_conventions_load_no_numba_nor_scipy():
+    # registering the accessors and the model reader needs xarray, not the transforms
+    assert not import_loads("sphex.xr") & {"numba", "scipy", "matplotlib", "distributed"}
+    for core in ("sphex.harmonics", "sphex.legendre", "sphex.grids", "sphex.compiling"):
+        assert not import_loads(core) & {"numba", "scipy", "xarray"}, core
+
+
+def test_inspect_loads_no_kernels_plots_or_cluster(small_file):
+    loaded = command_loads("inspect", small_file)
+    assert {"xarray", "netCDF4"} <= loaded                     # it did read the file
+    assert not loaded & {"numba", "matplotlib", "distributed"}
+
+
+def test_analyze_of_a_small_file_loads_no_plots_nor_cluster(small_file, tmp_path):
+    loaded = command_loads("analyze", small_file, "-o", tmp_path / "c.nc")
+    assert (tmp_path / "c.nc").exists() and "numba" in loaded   # it did analyse
+    # (xarray itself imports dask.array when it makes a DataArray, if dask is installed)
+    assert not loaded & {"matplotlib", "distributed"}
+
+
+def test_a_small_file_analysed_in_memory_writes_what_the_streamed_run_writes(small_file,
+                                                                            tmp_path):
+    # one chunk: analysed in memory; the same chunk streamed through dask writes the same file
+    import sphex.xr as sxr
+    from sphex.xr.streaming import stream_analyze, write_lazily
+
+    two = tmp_path / "two.nc"
+    with xr.open_dataset(small_file) as f:
+        xr.concat([f["t"], 2 * f["t"]], dim="time").to_dataset().to_netcdf(two)
+    r = stream_analyze(two, "t", tmp_path / "whole.nc", progress=False, history="h")
+    assert r.chunks == 1 and r.fields == 2
+    with xr.open_dataset(two, chunks={"time": 2}) as f:
+        lazy = sxr.analyze(f["t"])
+        assert lazy["cos_coef"].chunks is not None
+        lazy.attrs["history"] = "h"
+        write_lazily(lazy, tmp_path / "streamed.nc", progress=False)
+    with xr.open_dataset(tmp_path / "whole.nc") as a, \
+            xr.open_dataset(tmp_path / "streamed.nc") as b:
+        assert a.identical(b)
+        np.testing.assert_allclose(a["cos_coef"].isel(time=1), 2 * a["cos_coef"].isel(time=0),
+                                   rtol=0, atol=1e-15)
+
+
+# --------------------------------------------------------------------------------------------
+# the notice of a first call that compiles
+# --------------------------------------------------------------------------------------------
+class Terminal(io.StringIO):
+    def isatty(self) -> bool:
+        return True
+
+
+@pytest.fixture
+def empty_cache(tmp_path, monkeypatch):
+    monkeypatch.setenv("NUMBA_CACHE_DIR", str(tmp_path / "numba"))
+    monkeypatch.delenv("SPHEX_COMPILE_NOTICE", raising=False)
+    monkeypatch.setattr(compiling, "_told", set())
+    return tmp_path / "numba"
+
+
+def test_notice_on_a_terminal_once_per_kernel_module(empty_cache):
+    out = Terminal()
+    assert compiling.missing_kernels(("scalar", "vector")) == ["scalar", "vector"]
+    assert compiling.compile_notice("sphex demo", ("scalar", "vector"), out)
+    text = out.getvalue()
+    assert text.count("\n") == 1 and text.startswith("sphex demo: compiling the numeric kernels")
+    assert "scalar transforms, wind and current transforms, about 42 s" in text
+    assert not compiling.compile_notice("sphex demo", ("scalar",), out)   # said already
+    assert compiling.compile_notice("sphex demo", ("gauss",), out)        # a new module
+
+
+def test_no_notice_off_a_terminal_nor_with_the_kernels_cached(empty_cache, monkeypatch):
+    assert not compiling.compile_notice("sphex analyze", ("scalar",), io.StringIO())
+    monkeypatch.setenv("SPHEX_COMPILE_NOTICE", "0")
+    assert not compiling.compile_notice("sphex analyze", ("scalar",), Terminal())
+    monkeypatch.setenv("SPHEX_COMPILE_NOTICE", "1")
+    forced = io.StringIO()
+    assert compiling.compile_notice("sphex analyze", ("scalar",), forced)
+    assert "scalar transforms, about 18 s" in forced.getvalue()
+    # index files newer than the sources stand for cached kernels; older ones do not
+    (folder,) = compiling.kernel_cache_directories()
+    folder.mkdir(parents=True)
+    index = folder / "scalar.analysis_kernel-30.py311.nbi"
+    index.write_bytes(b"")
+    assert compiling.missing_kernels(("scalar",)) == []
+    os.utime(index, (1.0, 1.0))
+    assert compiling.missing_kernels(("scalar",)) == ["scalar"]
