@@ -12,7 +12,11 @@ kernels apply, and the inverse longitude FFT with folding for coarse targets.
 """
 from __future__ import annotations
 
+import ctypes
 import functools
+import os
+import threading
+from concurrent.futures import ThreadPoolExecutor
 
 import numpy as np
 import scipy.fft
@@ -27,7 +31,8 @@ from sphex.limits import (
 )
 
 __all__ = ["fft_workers", "check_grid", "check_values", "check_lmax", "LatitudePairs",
-           "latitude_pairs", "longitude_phase", "live_pairs", "order_sequence", "BAND_BYTES",
+           "latitude_pairs", "longitude_phase", "live_pairs", "order_sequence", "order_chunks",
+           "run_chunks", "serial_blas", "BAND_BYTES",
            "pair_bands", "PairBand", "ConventionFactor", "convention_factor",
            "batched_coefficients", "fourier_synthesis", "MASKED_ROUTE", "masked_positions",
            "scaled_input", "rescaled_result", "check_analysis_memory", "check_synthesis_memory",
@@ -226,20 +231,21 @@ def live_pairs(grid: Grid, lmax: int, mlo: int, mhi: int, shift: int) -> np.ndar
     """Per order, how many latitude pairs (equator first) carry non-negligible values."""
     pairs = latitude_pairs(grid)
     out = np.empty(mhi - mlo + 1, dtype=np.int64)
-    live_counts(lmax, mlo, mhi, pairs.x, pairs.s, sectoral_table(lmax), shift, out)
+    cm = sectoral_table(lmax)
+    run_chunks(lambda orders: live_counts(lmax, orders, mlo, pairs.x, pairs.s, cm, shift, out),
+               order_chunks(mlo, mhi, fft_workers()))
     out.setflags(write=False)
     return out
 
 
-@functools.lru_cache(maxsize=256)
-def order_sequence(mlo: int, mhi: int, nthreads: int) -> np.ndarray:
-    """Orders mlo..mhi in the sequence the transform kernels take them.
+RUN_PAIRS = 4  # pairs of orders per group of order_chunks: runs of four consecutive orders
 
-    numba splits a parallel loop into equal contiguous chunks, one per thread.
-    Orders are paired cheap with costly (mlo with mhi, mlo+1 with mhi-1, ...)
-    and the pairs are dealt to the chunks in turn, so every thread gets nearly
-    the same work (0.02 % apart at L=1023 on two threads; handing out the
-    pairs in sequence left 5 %)."""
+
+def _thread_groups(mlo: int, mhi: int, nthreads: int, g: int) -> list[list[list[tuple]]]:
+    """Orders mlo..mhi as pairs, cheap with costly (mlo with mhi, mlo+1 with
+    mhi-1, ...), in groups of ``g`` pairs dealt to ``nthreads`` threads in
+    turn: every thread gets nearly the same work (0.02 % apart at L=1023 on
+    two threads; handing out the pairs in sequence left 5 %)."""
     lo, hi = mlo, mhi
     pairs = []
     while lo <= hi:
@@ -247,12 +253,148 @@ def order_sequence(mlo: int, mhi: int, nthreads: int) -> np.ndarray:
         lo += 1
         hi -= 1
     t = max(int(nthreads), 1)
-    g = 4  # pairs dealt four at a time: neighbouring orders share cache lines of the outputs
     groups = [pairs[i:i + g] for i in range(0, len(pairs), g)]
-    seq = [m for k in range(t) for grp in groups[k::t] for p in grp for m in p]
-    out = np.array(seq, dtype=np.int64)
+    return [groups[k::t] for k in range(t)]
+
+
+@functools.lru_cache(maxsize=256)
+def order_sequence(mlo: int, mhi: int, nthreads: int) -> np.ndarray:
+    """Orders mlo..mhi in the sequence the parallel kernels take them: the
+    threads' shares (:func:`_thread_groups`, four pairs a group, neighbouring
+    orders sharing cache lines of the outputs) one after the other (numba splits
+    a parallel loop into equal contiguous chunks, one per thread)."""
+    out = np.array([m for share in _thread_groups(mlo, mhi, nthreads, 4) for grp in share
+                    for p in grp for m in p], dtype=np.int64)
     out.setflags(write=False)
     return out
+
+
+RUN_PAIRS = 8  # pairs of orders per group in order_chunks
+
+
+@functools.lru_cache(maxsize=256)
+def order_chunks(mlo: int, mhi: int, nthreads: int) -> tuple[np.ndarray, ...]:
+    """Orders mlo..mhi as one array per thread, for :func:`run_chunks`.
+
+    Each thread's groups of RUN_PAIRS pairs (:func:`_thread_groups`) give
+    their cheap orders, then their costly ones, both ascending: runs of
+    consecutive orders, whose columns of the FFT arrays the kernels read and
+    write together (one cache line serves several orders)."""
+    out = []
+    for share in _thread_groups(mlo, mhi, nthreads, RUN_PAIRS):
+        seq = []
+        for grp in share:
+            seq += [p[0] for p in grp] + sorted(p[1] for p in grp if len(p) == 2)
+        if seq:
+            a = np.array(seq, dtype=np.int64)
+            a.setflags(write=False)
+            out.append(a)
+    return tuple(out)
+
+
+_POOL: ThreadPoolExecutor | None = None
+_POOL_LOCK = threading.Lock()
+
+
+def _pool() -> ThreadPoolExecutor:
+    global _POOL
+    with _POOL_LOCK:
+        if _POOL is None:
+            _POOL = ThreadPoolExecutor(max_workers=max(os.cpu_count() or 1, 1),
+                                       thread_name_prefix="sphex-orders")
+    return _POOL
+
+
+def run_chunks(work, chunks) -> None:
+    """``work(chunk)`` for every chunk of orders, one per thread, the first in the calling thread.
+
+    The kernels are serial numba functions that release the GIL, so the
+    chunks run at once on a small pool of threads (the pool's workers only
+    run kernels, never a nested :func:`run_chunks`, so nothing waits on
+    itself).  One chunk runs in the calling thread alone (inside dask tasks,
+    where each task gets one numba thread)."""
+    if len(chunks) <= 1:
+        for c in chunks:
+            work(c)
+        return
+    futures = [_pool().submit(work, c) for c in chunks[1:]]
+    try:
+        work(chunks[0])
+    finally:
+        for f in futures:
+            f.result()
+
+
+def _blas_thread_controls() -> list:
+    """(set, get) of the number of threads of each OpenBLAS loaded in this
+    process other than numpy's own: the library behind scipy's BLAS, which
+    numba's ``np.dot`` calls.  Empty when there is none (another BLAS)."""
+    import scipy.linalg.cython_blas  # noqa: F401  (loads the library numba's np.dot calls)
+
+    try:
+        with open("/proc/self/maps") as f:
+            paths = sorted({line.split()[-1] for line in f
+                            if "openblas" in line.lower() and line.split()[-1].startswith("/")})
+    except OSError:
+        return []
+    controls = []
+    for path in paths:
+        if "numpy" in os.path.basename(os.path.dirname(path)):
+            continue
+        try:
+            lib = ctypes.CDLL(path)
+        except OSError:
+            continue
+        for stem, tail in (("scipy_openblas", ""), ("openblas", ""), ("scipy_openblas", "64_"),
+                           ("openblas", "64_")):
+            setter = getattr(lib, f"{stem}_set_num_threads{tail}", None)
+            getter = getattr(lib, f"{stem}_get_num_threads{tail}", None)
+            if setter is not None and getter is not None:
+                setter.argtypes = [ctypes.c_int]
+                setter.restype = None
+                getter.argtypes = []
+                getter.restype = ctypes.c_int
+                controls.append((setter, getter))
+                break
+    return controls
+
+
+_BLAS = {"controls": None, "users": 0, "saved": []}
+_BLAS_LOCK = threading.Lock()
+
+
+class serial_blas:
+    """Context: BLAS runs on one thread while a batch kernel contracts orders
+    on every core (a threaded BLAS inside each thread oversubscribes the cores
+    and is several times slower on small products).  Nested and concurrent
+    uses are counted; the last one out restores the previous thread count.
+    ``serial_blas(False)`` does nothing."""
+
+    def __init__(self, active: bool = True):
+        self.active = bool(active)
+
+    def __enter__(self):
+        if not self.active:
+            return self
+        with _BLAS_LOCK:
+            if _BLAS["controls"] is None:
+                _BLAS["controls"] = _blas_thread_controls()
+            if _BLAS["users"] == 0:
+                _BLAS["saved"] = [get() for _, get in _BLAS["controls"]]
+                for setter, _ in _BLAS["controls"]:
+                    setter(1)
+            _BLAS["users"] += 1
+        return self
+
+    def __exit__(self, *exc):
+        if not self.active:
+            return False
+        with _BLAS_LOCK:
+            _BLAS["users"] -= 1
+            if _BLAS["users"] == 0:
+                for (setter, _), n in zip(_BLAS["controls"], _BLAS["saved"]):
+                    setter(n)
+        return False
 
 
 BAND_BYTES = 1 << 25  # pairs per band: BAND_BYTES / (8 M); see pair_bands

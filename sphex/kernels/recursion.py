@@ -27,6 +27,8 @@ import numba as nb
 import numpy as np
 
 JIT = dict(nogil=True, cache=True)
+#: helpers only called from other kernels: no wrappers for Python or C callers
+INNER = dict(JIT, no_cpython_wrapper=True, no_cfunc_wrapper=True, error_model="numpy")
 FASTMATH = {"contract", "reassoc", "nsz", "arcp"}
 
 SCALE_EXP = 600
@@ -171,15 +173,6 @@ def convention_factor(fl, fm, full, use_full, l, m):
 
 
 @nb.njit(inline="always", **JIT)
-def order_of(i, nm, lo):
-    """Order sequence lo, top, lo+1, top-1, ... (costly and cheap in pairs)."""
-    h = i // 2
-    if i % 2 == 0:
-        return lo + h
-    return lo + nm - 1 - h
-
-
-@nb.njit(inline="always", **JIT)
 def scaled_phase(m, lmax, xj, sj, cmm, shift, a, c):
     """Run one latitude through the scaled range.
 
@@ -299,14 +292,13 @@ def advance4_store(l, n, xl, P, Q, a, c, T):
 # ---------------------------------------------------------------------------
 # Helpers of the drivers
 # ---------------------------------------------------------------------------
-@nb.njit(parallel=True, **JIT)
-def live_counts(lmax, mlo, mhi, x, s, cm, shift, out):
+@nb.njit(**JIT)
+def live_counts(lmax, orders, mlo, x, s, cm, shift, out):
     """out[m - mlo] = number of latitudes (a prefix, equator first) on which
-    order m is not negligible."""
-    nm = mhi - mlo + 1
-    for i in nb.prange(nm):
-        m = order_of(i, nm, mlo)
-        a = np.empty(lmax + 1)
-        c = np.empty(lmax + 1)
+    order m is not negligible, for the orders given (serial; the caller runs
+    chunks of orders on several threads)."""
+    a = np.empty(lmax + 1)
+    c = np.empty(lmax + 1)
+    for m in orders:
         recursion_coeffs(m, lmax, a, c)
         out[m - mlo] = live_count(m, lmax, x, s, cm[m], shift, a, c)
