@@ -31,7 +31,7 @@ __all__ = ["KERNEL_MODULES", "kernel_cache_directories", "missing_kernels",
 #: on the two-core development machine (all of its kernels, from an empty cache, measured
 #: by docs/measurements/measure_demo_fresh.py on 2026-12-02; update after kernel changes).
 KERNEL_MODULES: dict[str, tuple[str, float]] = {
-    "scalar": ("scalar transforms", 18.0),
+    "scalar": ("scalar transforms", 7.0),
     "gauss": ("Gauss-Legendre nodes", 1.0),
     "vector": ("wind and current transforms", 24.0),
 }
