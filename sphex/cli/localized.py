@@ -188,21 +188,12 @@ def _check_pick(obj: Any, chosen: dict[str, int], path: str) -> None:
 
 def _check_windows(a: argparse.Namespace, lmax: int) -> None:
     """Window degree and count in the words of the options (before any long work)."""
-    from sphex.concentration import DEFAULT_MIN_CONCENTRATION, cap_windows
+    from sphex.report.local_section import check_windows
 
-    if a.window_degree > lmax:
-        raise UserError(f"--window-degree {a.window_degree} is above the field's highest degree "
-                        f"{lmax}; use at most {lmax // 2} so that some degrees are reliable "
-                        "(N <= l <= lmax-N)")
-    windows = cap_windows(a.cap, a.window_degree)
-    total = windows.concentration.size
-    if a.windows is not None and not 1 <= a.windows <= total:
-        raise UserError(f"--windows {a.windows}: a window degree of {a.window_degree} gives "
-                        f"{total} windows; choose 1..{total}")
-    if a.windows is None and windows.count_above(DEFAULT_MIN_CONCENTRATION) == 0:
-        raise UserError(f"no window of a {a.cap:g}-degree cap up to degree {a.window_degree} is 99% "
-                        f"concentrated (the best: {windows.concentration[0]:.1%}); raise "
-                        "--window-degree or --cap, or give --windows K")
+    try:
+        check_windows(a.cap, a.window_degree, a.windows, lmax)
+    except ValueError as exc:
+        raise UserError(str(exc)) from None
 
 
 def _rows(local: Any, glob: Any) -> list[tuple[int, float, float, float, float, int]]:

@@ -23,7 +23,7 @@ import numpy as np
 from sphex.harmonics import Harmonics
 from sphex.report.page import Row, _figure_html, _image, _numbers_table
 
-__all__ = ["Region", "check_region", "local_numbers", "local_section"]
+__all__ = ["Region", "check_region", "check_windows", "local_numbers", "local_section"]
 
 
 @dataclass(frozen=True)
@@ -47,23 +47,34 @@ def check_region(r: Region, lmax: int) -> None:
     ------
     ValueError
     """
-    from sphex.concentration import DEFAULT_MIN_CONCENTRATION, cap_windows
-
     if not -90.0 <= r.lat <= 90.0:
         raise ValueError(f"--at: latitude {r.lat:g} is outside -90..90 (write LAT,LON)")
     if not 0.0 < r.cap <= 180.0:
         raise ValueError(f"--cap {r.cap:g} must be in (0, 180] degrees")
-    if r.window_degree > lmax:
-        raise ValueError(f"--window-degree {r.window_degree} is above the field's highest degree "
+    check_windows(r.cap, r.window_degree, r.windows, lmax)
+
+
+def check_windows(cap: float, window_degree: int, chosen: int | None, lmax: int) -> None:
+    """Refuse, in the words of the options, a window degree or count that cannot serve at
+    ``lmax`` (shared by the report and ``sphex local-spectrum``).
+
+    Raises
+    ------
+    ValueError
+    """
+    from sphex.concentration import DEFAULT_MIN_CONCENTRATION, cap_windows
+
+    if window_degree > lmax:
+        raise ValueError(f"--window-degree {window_degree} is above the field's highest degree "
                          f"{lmax}; use at most {lmax // 2} so that some degrees are reliable "
                          "(N <= l <= lmax-N)")
-    windows = cap_windows(r.cap, r.window_degree)
+    windows = cap_windows(cap, window_degree)
     total = windows.concentration.size
-    if r.windows is not None and not 1 <= r.windows <= total:
-        raise ValueError(f"--windows {r.windows}: a window degree of {r.window_degree} gives "
+    if chosen is not None and not 1 <= chosen <= total:
+        raise ValueError(f"--windows {chosen}: a window degree of {window_degree} gives "
                          f"{total} windows; choose 1..{total}")
-    if r.windows is None and windows.count_above(DEFAULT_MIN_CONCENTRATION) == 0:
-        raise ValueError(f"no window of a {r.cap:g}-degree cap up to degree {r.window_degree} is "
+    if chosen is None and windows.count_above(DEFAULT_MIN_CONCENTRATION) == 0:
+        raise ValueError(f"no window of a {cap:g}-degree cap up to degree {window_degree} is "
                          f"99% concentrated (the best: {windows.concentration[0]:.1%}); raise "
                          "--window-degree or --cap, or give --windows K")
 
