@@ -161,3 +161,27 @@ def test_no_notice_off_a_terminal_nor_with_the_kernels_cached(empty_cache, monke
     assert compiling.missing_kernels(("scalar",)) == []
     os.utime(index, (1.0, 1.0))
     assert compiling.missing_kernels(("scalar",)) == ["scalar"]
+
+
+def test_cache_older_than_an_inlined_source_or_partly_stale_counts_as_missing(empty_cache, tmp_path):
+    # numba's cache keys a kernel on its own module only (common practice of numba's
+    # caching): an edit of recursion.py, which the scalar kernels inline, or an index file
+    # left from an earlier version beside fresh ones must still count as not prepared
+    kernels = tmp_path / "kernels"
+    kernels.mkdir()
+    for name in ("scalar.py", "recursion.py"):
+        (kernels / name).write_text("")
+        os.utime(kernels / name, (100.0, 100.0))
+    (folder,) = compiling.kernel_cache_directories(kernels)
+    folder.mkdir(parents=True)
+    fresh = folder / "scalar.synthesis_single-40.py311.nbi"
+    fresh.write_bytes(b"")
+    os.utime(fresh, (200.0, 200.0))
+    assert compiling.missing_kernels(("scalar",), kernels) == []
+    os.utime(kernels / "recursion.py", (300.0, 300.0))      # the inlined source edited later
+    assert compiling.missing_kernels(("scalar",), kernels) == ["scalar"]
+    os.utime(kernels / "recursion.py", (100.0, 100.0))
+    stale = folder / "scalar.analysis_single-30.py311.nbi"   # one index from before the edit
+    stale.write_bytes(b"")
+    os.utime(stale, (50.0, 50.0))
+    assert compiling.missing_kernels(("scalar",), kernels) == ["scalar"]

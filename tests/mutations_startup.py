@@ -1,0 +1,23 @@
+"""Planted bugs in the start-up helpers: the first-run notice of ``sphex.compiling``.
+
+Run with ``python tests/mutations.py --only startup-``.
+"""
+from _mutation import _m
+
+COMPILING = "sphex/compiling.py"
+T_STARTUP = "tests/test_startup.py"
+
+MUTATIONS = [
+    _m("startup-stale-index-counts-as-cached", COMPILING,
+       "min(p.stat().st_mtime for p in index) >= newest",
+       "max(p.stat().st_mtime for p in index) >= newest", T_STARTUP),
+    _m("startup-inlined-sources-ignored", COMPILING,
+       "for name in (f\"{module}.py\",) + _INLINED)",
+       "for name in (f\"{module}.py\",))", T_STARTUP),
+    _m("startup-notice-into-pipes", COMPILING,
+       "return bool(isatty and isatty())", "return True", T_STARTUP),
+    _m("startup-notice-repeated", COMPILING,
+       "    _told.update(todo)\n", "", T_STARTUP),
+    _m("startup-cache-dir-ignores-numba-setting", COMPILING,
+       "    if chosen:\n        return [Path(chosen).resolve() / subpath]\n", "", T_STARTUP),
+]
