@@ -13,19 +13,31 @@ The notice goes to a terminal only, once per process and kernel module: pipes,
 log files, tests and CI see nothing, unless ``SPHEX_COMPILE_NOTICE=1`` asks for
 it anyway (``SPHEX_COMPILE_NOTICE=0`` silences it on a terminal too).
 
+A run that will need several kernels can also have some of them compiled in a
+second process while it works (:func:`compile_beside`): numba compiles one
+function at a time in a process, so on a machine with two cores the demo's
+first run compiles its wind and batch kernels beside its scalar work.  The
+helper process fills the same on-disk cache with the same compiled forms (it
+makes tiny calls through the public functions, which hand the kernels the same
+argument types as every other call); the run waits for a group only when it
+reaches it.
+
 Standard library only, so the command line can ask before it imports numba.
 """
 from __future__ import annotations
 
 import hashlib
 import os
+import subprocess
 import sys
+import threading
 from collections.abc import Iterable
 from pathlib import Path
 from typing import TextIO
 
-__all__ = ["KERNEL_MODULES", "kernel_cache_directories", "missing_kernels",
-           "kernels_need_preparing", "compile_notice"]
+__all__ = ["KERNEL_MODULES", "KERNEL_GROUPS", "kernel_cache_directories", "missing_kernels",
+           "kernels_need_preparing", "compile_notice", "compile_beside", "BesideCompilation",
+           "DEMO_BESIDE"]
 
 #: Kernel modules by name: what they serve and the seconds their first compilation took
 #: on the two-core development machine (all of its kernels, from an empty cache, measured
@@ -33,7 +45,7 @@ __all__ = ["KERNEL_MODULES", "kernel_cache_directories", "missing_kernels",
 KERNEL_MODULES: dict[str, tuple[str, float]] = {
     "scalar": ("scalar transforms", 7.0),
     "gauss": ("Gauss-Legendre nodes", 1.0),
-    "vector": ("wind and current transforms", 24.0),
+    "vector": ("wind and current transforms", 10.0),
 }
 
 #: Modules whose code the kernels of a module inline (an edit there changes them too).
@@ -84,6 +96,20 @@ def missing_kernels(modules: Iterable[str] = ("scalar",), kernels: Path = _KERNE
         if not found:
             missing.append(module)
     return missing
+
+
+def _stale_or_missing(module: str, function: str, kernels: Path = _KERNELS) -> bool:
+    """Whether numba's cache lacks ``module.function`` (index ``module.function-LINE.*.nbi``)
+    or holds only a form older than the module's source or the sources it inlines."""
+    try:
+        newest = max((kernels / name).stat().st_mtime for name in (f"{module}.py",) + _INLINED)
+    except OSError:
+        return False
+    for directory in kernel_cache_directories(kernels):
+        index = list(directory.glob(f"{module}.{function}-*.nbi"))
+        if index and max(p.stat().st_mtime for p in index) >= newest:
+            return False
+    return True
 
 
 def kernels_need_preparing(kernels: Path | None = None) -> bool:
@@ -138,3 +164,136 @@ def compile_notice(command: str, modules: Iterable[str] = ("scalar",),
               f"{about}); later runs load them from the cache and start at once\n")
     out.flush()
     return True
+
+
+# ---------------------------------------------------------------------------
+# compiling beside the run
+# ---------------------------------------------------------------------------
+#: Groups a helper process can compile: the kernel module and its functions.
+KERNEL_GROUPS: dict[str, tuple[str, tuple[str, ...]]] = {
+    "single": ("scalar", ("analysis_single", "synthesis_single")),
+    "batch-synthesis": ("scalar", ("synthesis_batch",)),
+    "batch-analysis": ("scalar", ("analysis_batch",)),
+    "vector": ("vector", ("vector_analysis_kernel", "vector_synthesis_kernel",
+                          "flow_to_sequences", "sequences_to_flow")),
+}
+
+#: What the demo's first run compiles beside its scalar work: the kernels of its wind section.
+DEMO_BESIDE = ("vector", "batch-synthesis")
+
+
+def _group_missing(group: str, kernels: Path = _KERNELS) -> bool:
+    module, functions = KERNEL_GROUPS[group]
+    return any(_stale_or_missing(module, f, kernels) for f in functions)
+
+
+def _compile_group(group: str) -> None:
+    """Compile the kernels of ``group`` by tiny calls of the public functions (in the helper)."""
+    import numpy as np
+
+    from sphex import Grid, Harmonics, analyze, synthesize
+    from sphex.vector_transform import analyze_vector, synthesize_vector
+
+    grid = Grid.equiangular(8, 16)  # no Gauss nodes needed
+    one = np.cos(np.arange(8 * 16, dtype=np.float64).reshape(8, 16))
+    two = np.stack([one, one[::-1]])
+    if group == "single":
+        synthesize(analyze(one, grid, 3), grid)
+    elif group == "batch-synthesis":
+        synthesize(Harmonics(np.ones((2, 4, 4), dtype=np.complex128)), grid)
+    elif group == "batch-analysis":
+        analyze(two, grid, 3)
+    elif group == "vector":
+        synthesize_vector(*analyze_vector(one, one[::-1], grid, 3), grid)
+    else:
+        raise ValueError(f"unknown kernel group {group!r}; one of {', '.join(KERNEL_GROUPS)}")
+
+
+_beside: "BesideCompilation | None" = None  # the helper this process started last
+
+
+class BesideCompilation:
+    """A helper process compiling kernel groups into numba's cache (see :func:`compile_beside`)."""
+
+    def __init__(self, process: subprocess.Popen, groups: tuple[str, ...]):
+        self.process = process
+        self.groups = groups
+        self._done: set[str] = set()
+        self._lock = threading.Lock()
+
+    def wait(self, group: str, timeout: float = 300.0) -> bool:
+        """Block until the helper has compiled ``group`` (or has ended, or ``timeout`` s passed).
+
+        Returns whether the group is in the cache now; when not, the caller
+        simply compiles it itself on first use."""
+        if group not in self.groups:
+            return False
+        timer = threading.Timer(timeout, self.process.kill)
+        timer.start()
+        try:
+            with self._lock:
+                while group not in self._done:
+                    line = self.process.stdout.readline() if self.process.stdout else ""
+                    if not line:
+                        break
+                    if line.startswith("compiled "):
+                        self._done.add(line.split()[1])
+        finally:
+            timer.cancel()
+        return group in self._done
+
+    def close(self) -> None:
+        """Wait for the helper to finish (what it compiles stays useful to later runs)."""
+        for group in self.groups:
+            self.wait(group)
+        self.stop()
+
+    def stop(self) -> None:
+        """End the helper now if it still runs (a cache file it was writing is never left
+        half-written: numba writes a temporary file and renames it)."""
+        if self.process.poll() is None:
+            self.process.kill()
+        self.process.wait()
+        if self.process.stdout:
+            self.process.stdout.close()
+
+
+def compile_beside(groups: Iterable[str]) -> BesideCompilation | None:
+    """Start a process that compiles the kernel groups among ``groups`` the cache lacks.
+
+    Returns ``None`` (nothing to do) when the cache holds them all, when the
+    machine has one core, or when ``SPHEX_COMPILE_BESIDE=0``.  The caller
+    calls :meth:`BesideCompilation.wait` before it first uses a group and
+    :meth:`BesideCompilation.close` at the end.
+    """
+    global _beside
+    groups = tuple(groups)
+    unknown = [g for g in groups if g not in KERNEL_GROUPS]
+    if unknown:
+        raise ValueError(f"unknown kernel group {unknown[0]!r}; one of {', '.join(KERNEL_GROUPS)}")
+    if os.environ.get("SPHEX_COMPILE_BESIDE", "") == "0" or (os.cpu_count() or 1) < 2:
+        return None
+    if (_beside is not None and _beside.process.returncode is None
+            and set(groups) <= set(_beside.groups)):
+        return _beside  # started already for these (the command line starts it early)
+    todo = tuple(g for g in groups if _group_missing(g))
+    if not todo:
+        return None
+    env = dict(os.environ, SPHEX_COMPILE_NOTICE="0")
+    process = subprocess.Popen([sys.executable, "-m", "sphex.compiling", *todo],
+                               stdin=subprocess.DEVNULL, stdout=subprocess.PIPE,
+                               stderr=subprocess.DEVNULL, text=True, env=env)
+    _beside = BesideCompilation(process, todo)
+    return _beside
+
+
+def _main(argv: list[str]) -> int:
+    """``python -m sphex.compiling GROUP ...``: compile the groups, say ``compiled GROUP`` after each."""
+    for group in argv:
+        _compile_group(group)
+        print(f"compiled {group}", flush=True)
+    return 0
+
+
+if __name__ == "__main__":
+    sys.exit(_main(sys.argv[1:]))

@@ -2,7 +2,7 @@
 
 The engine of :mod:`sphex.flow` (which adds the radius and the
 :class:`~sphex.flow.Flow` container): the same latitude pairs, bands and
-order sequences as the scalar transforms (:mod:`sphex.rings`), with the
+chunks of orders as the scalar transforms (:mod:`sphex.rings`), with the
 kernels of :mod:`sphex.kernels.vector`.
 """
 from __future__ import annotations
@@ -20,7 +20,7 @@ from sphex.limits import binary_exponent, peak_magnitude
 from sphex.rings import (
     ConventionFactor, PairBand, batched_coefficients, check_grid, check_lmax, check_values,
     convention_factor, fft_workers, fourier_synthesis, latitude_pairs, live_pairs,
-    longitude_phase, order_sequence, pair_bands, rescaled_result, ANALYSIS_OVERFLOW_FIX,
+    longitude_phase, order_chunks, pair_bands, rescaled_result, run_chunks, ANALYSIS_OVERFLOW_FIX,
     SYNTHESIS_OVERFLOW_FIX, check_analysis_memory, check_synthesis_memory,
 )
 
@@ -83,15 +83,16 @@ def _vector_analysis(east: np.ndarray, north: np.ndarray, grid: Grid, lmax: int,
     Gu = np.zeros((K, lmax + 2, lmax + 2), dtype=np.complex128)
     Gv = np.zeros_like(Gu)
     bands = pair_bands(pairs.n, M)
-    seq = order_sequence(0, M - 1, fft_workers())
+    chunks = order_chunks(0, M - 1, fft_workers())
     for b0, b1 in bands:
         band = PairBand(pairs, b0, b1)
         whole = len(bands) == 1 and band.rows.size == grid.nlat
         Fu, Fv = (scipy.fft.rfft(np.asarray(v if whole else v[:, band.rows, :], dtype=np.float64),
                                  axis=-1, workers=fft_workers()) for v in (east, north))
         nlive = np.clip(live - b0, 0, band.n)
-        vector_analysis_kernel(lmax + 1, seq, band.x, band.s, cm, nlive, Fu, Fv, band.north,
-                               band.south, band.wn, band.ws, scale, Gu, Gv)
+        run_chunks(lambda cols: vector_analysis_kernel(lmax + 1, cols, band.x, band.s, cm, nlive,
+                                                       Fu, Fv, band.north, band.south, band.wn,
+                                                       band.ws, scale, Gu, Gv), chunks)
         del Fu, Fv
     psi = np.empty((K, lmax + 1, lmax + 1), dtype=np.complex128)
     chi = np.empty_like(psi)
@@ -114,7 +115,7 @@ def _vector_synthesis(psi: np.ndarray, chi: np.ndarray, fac: "ConventionFactor",
     phase = longitude_phase(max(W, L1), grid)[:L1] * N
     live = _vector_live(grid, lmax)
     cm = sectoral_table(lmax + 1)
-    seq = order_sequence(0, lmax, fft_workers())
+    chunks = order_chunks(0, lmax, fft_workers())
     bands = pair_bands(pairs.n, L1)
     out = [np.empty((K,) + grid.shape) for _ in range(2)]
     for b0, b1 in bands:
@@ -124,8 +125,9 @@ def _vector_synthesis(psi: np.ndarray, chi: np.ndarray, fac: "ConventionFactor",
         for buffer in X:
             buffer[..., L1:] = 0.0
         nlive = np.clip(live - b0, 0, band.n)
-        vector_synthesis_kernel(lmax + 1, seq, band.x, band.s, cm, nlive, seqs[0], seqs[1],
-                                X[0], X[1], band.north, rs, phase)
+        run_chunks(lambda cols: vector_synthesis_kernel(lmax + 1, cols, band.x, band.s, cm, nlive,
+                                                        seqs[0], seqs[1], X[0], X[1], band.north,
+                                                        rs, phase), chunks)
         for t in range(2):
             values = fourier_synthesis(X[t], N, direct)
             X[t] = None

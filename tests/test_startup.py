@@ -140,7 +140,7 @@ def test_notice_on_a_terminal_once_per_kernel_module(empty_cache):
     assert compiling.compile_notice("sphex demo", ("scalar", "vector"), out)
     text = out.getvalue()
     assert text.count("\n") == 1 and text.startswith("sphex demo: compiling the numeric kernels")
-    assert "scalar transforms, wind and current transforms, about 31 s" in text
+    assert "scalar transforms, wind and current transforms, about 17 s" in text
     assert not compiling.compile_notice("sphex demo", ("scalar",), out)   # said already
     assert compiling.compile_notice("sphex demo", ("gauss",), out)        # a new module
 
@@ -185,3 +185,115 @@ def test_cache_older_than_an_inlined_source_or_partly_stale_counts_as_missing(em
     stale.write_bytes(b"")
     os.utime(stale, (50.0, 50.0))
     assert compiling.missing_kernels(("scalar",), kernels) == ["scalar"]
+
+
+# --------------------------------------------------------------------------------------------
+# compiling kernel groups in a second process
+# --------------------------------------------------------------------------------------------
+HIT_COUNTS = """
+import json
+from sphex.kernels import scalar, vector
+print("@@", json.dumps({{f.py_func.__name__: [sum(f.stats.cache_hits.values()),
+                                              sum(f.stats.cache_misses.values())]
+                        for f in ({kernels})}}))
+"""
+GROUP_KERNELS = ("vector.vector_analysis_kernel, vector.vector_synthesis_kernel, "
+                 "vector.flow_to_sequences, vector.sequences_to_flow, scalar.synthesis_batch")
+
+
+def hit_counts(code: str, env: dict, cwd=None) -> dict[str, list[int]]:
+    """Cache hits and misses of the kernel groups' functions after ``code`` ran in a fresh
+    interpreter (numba's dispatcher statistics)."""
+    r = subprocess.run([sys.executable, "-c", code + HIT_COUNTS.format(kernels=GROUP_KERNELS)],
+                       capture_output=True, text=True, env=env, cwd=cwd, timeout=900)
+    marker = [ln for ln in r.stdout.splitlines() if ln.startswith("@@")]
+    assert r.returncode == 0 and marker, r.stderr[-3000:]
+    import json
+
+    return json.loads(marker[-1][2:])
+
+
+@pytest.fixture(scope="module")
+def groups_compiled_beside(tmp_path_factory):
+    """A numba cache filled only by the helper process (``python -m sphex.compiling``)."""
+    cache = tmp_path_factory.mktemp("beside") / "numba"
+    env = dict(os.environ, NUMBA_CACHE_DIR=str(cache), SPHEX_COMPILE_BESIDE="0",
+               PYTHONPATH=str(ROOT) + os.pathsep + os.environ.get("PYTHONPATH", ""))
+    r = subprocess.run([sys.executable, "-m", "sphex.compiling", "vector", "batch-synthesis"],
+                       capture_output=True, text=True, env=env, timeout=900)
+    assert r.returncode == 0, r.stderr[-3000:]
+    assert r.stdout.splitlines() == ["compiled vector", "compiled batch-synthesis"]
+    return env
+
+
+def test_what_the_helper_compiles_serves_real_calls_on_every_layout(groups_compiled_beside):
+    # numba's cache serves a later process only a form compiled for the same argument
+    # types and target (common practice of numba's caching); the helper's tiny calls on a
+    # small equiangular grid must hand the kernels what real calls on every layout do
+    code = """
+import numpy as np, sphex
+from sphex.vector_transform import analyze_vector, synthesize_vector
+rng = np.random.default_rng(5)
+for g in (sphex.Grid.gauss(21), sphex.Grid.equiangular(41, 80, "poles"),
+          sphex.Grid.equiangular(40, 80, "north"), sphex.Grid.equiangular(40, 80, "cells")):
+    u, v = rng.standard_normal((2, 3) + g.shape)
+    p, c = analyze_vector(u, v, g, 13)
+    synthesize_vector(p, c, g)
+    synthesize_vector(sphex.Harmonics(p.coef[0]), sphex.Harmonics(c.coef[0]), g)
+    h = sphex.Harmonics(np.tril(rng.standard_normal((3, 14, 14))), norm="schmidt")
+    sphex.synthesize(h, g)
+"""
+    counts = hit_counts(code, groups_compiled_beside)
+    for name, (hits, misses) in counts.items():
+        assert misses == 0 and hits >= 1, (name, hits, misses)
+
+
+def test_the_demo_waits_for_its_helper_instead_of_compiling_twice(groups_compiled_beside, tmp_path):
+    # a first demo run: the command line starts the helper, the demo waits for it before
+    # the winds, so its own process loads every kernel of the groups from the cache
+    env = dict(groups_compiled_beside, NUMBA_CACHE_DIR=str(tmp_path / "numba"))
+    env.pop("SPHEX_COMPILE_BESIDE")
+    code = ("import contextlib, io\nfrom sphex.cli import main\n"
+            "with contextlib.redirect_stdout(io.StringIO()):\n"
+            f"    assert main(['demo', '--out', {str(tmp_path / 'out')!r}]) == 0\n")
+    counts = hit_counts(code, env)
+    for name, (hits, misses) in counts.items():
+        assert misses == 0 and hits >= 1, (name, hits, misses)
+
+
+class _Helper:
+    """A stand-in helper process that prints the given lines, then sleeps."""
+
+    def __init__(self, lines: list[str], sleep: float = 0.0):
+        code = f"import sys, time\nfor ln in {lines!r}: print(ln, flush=True)\ntime.sleep({sleep})"
+        self.process = subprocess.Popen([sys.executable, "-c", code], stdout=subprocess.PIPE,
+                                        text=True)
+
+
+def test_waiting_for_groups_of_a_helper_that_ends_or_runs_on():
+    done = compiling.BesideCompilation(_Helper(["compiled vector"]).process, ("vector", "single"))
+    assert done.wait("vector")
+    assert not done.wait("single")            # ended without compiling it: compile it yourself
+    assert not done.wait("batch-analysis")    # never asked of it
+    done.close()
+    assert done.process.returncode == 0
+    slow = compiling.BesideCompilation(_Helper(["compiled single"], 60).process, ("single",))
+    assert slow.wait("single")
+    slow.stop()                                # still sleeping: ended at once
+    assert slow.process.returncode not in (None, 0)
+
+
+def test_no_helper_when_cached_switched_off_or_asked_for_an_unknown_group(empty_cache, monkeypatch):
+    with pytest.raises(ValueError, match="unknown kernel group 'scalars'.*single"):
+        compiling.compile_beside(["scalars"])
+    monkeypatch.setenv("SPHEX_COMPILE_BESIDE", "0")
+    assert compiling.compile_beside(["vector"]) is None
+    monkeypatch.delenv("SPHEX_COMPILE_BESIDE")
+    (folder,) = compiling.kernel_cache_directories()
+    folder.mkdir(parents=True)
+    for name in compiling.KERNEL_GROUPS["vector"][1][:-1]:
+        (folder / f"vector.{name}-10.py311.nbi").write_bytes(b"")
+    assert compiling._group_missing("vector")          # one function of the group lacks
+    (folder / "vector.sequences_to_flow-600.py311.nbi").write_bytes(b"")
+    assert not compiling._group_missing("vector")
+    assert compiling.compile_beside(["vector"]) is None

@@ -30,6 +30,8 @@ JIT = dict(nogil=True, cache=True)
 #: helpers only called from other kernels: no wrappers for Python or C callers
 INNER = dict(JIT, no_cpython_wrapper=True, no_cfunc_wrapper=True, error_model="numpy")
 FASTMATH = {"contract", "reassoc", "nsz", "arcp"}
+#: the kernels Python calls: serial, one chunk of orders per thread (:func:`sphex.rings.run_chunks`)
+SERIAL = dict(JIT, error_model="numpy")
 
 SCALE_EXP = 600
 BIG = 2.0 ** 300
@@ -39,6 +41,19 @@ TINY_EXP = 500
 TINY = 2.0 ** -TINY_EXP
 UNTINY = 2.0 ** TINY_EXP
 CHECK_EVERY = 16  # degrees between range checks of scaled latitudes
+
+
+@nb.njit(inline="always", **JIT)
+def pair_sums(F, kk, rn, rs, wn, ws, sc, j, col):
+    """sc (wn F[north] + ws F[south]) and sc (wn F[north] - ws F[south]) of latitude pair j:
+    the sums that meet the even and the odd degrees of column col of field kk."""
+    vn = 0j
+    vs = 0j
+    if rn[j] >= 0:
+        vn = wn[j] * F[kk, rn[j], col]
+    if rs[j] >= 0:
+        vs = ws[j] * F[kk, rs[j], col]
+    return sc * (vn + vs), sc * (vn - vs)
 
 
 # ---------------------------------------------------------------------------

@@ -43,28 +43,14 @@ import numba as nb
 import numpy as np
 
 from sphex.kernels.recursion import (  # noqa: I001
-    CHECK_EVERY, INNER, FASTMATH, JIT, advance1, advance4_store, convention_factor, order_start, recursion_coeffs,
-    rescale_lane,
+    CHECK_EVERY, INNER, FASTMATH, JIT, SERIAL, advance1, advance4_store, convention_factor, order_start,
+    pair_sums, recursion_coeffs, rescale_lane,
 )
 
-
-SERIAL = dict(JIT, error_model="numpy")
 
 # ---------------------------------------------------------------------------
 # shared pieces
 # ---------------------------------------------------------------------------
-@nb.njit(inline="always", **JIT)
-def _pair_sums(F, kk, rn, rs, wn, ws, sc, j, col):
-    """sc (wn F[north] + ws F[south]) and sc (wn F[north] - ws F[south]) of pair j."""
-    vn = 0j
-    vs = 0j
-    if rn[j] >= 0:
-        vn = wn[j] * F[kk, rn[j], col]
-    if rs[j] >= 0:
-        vs = ws[j] * F[kk, rs[j], col]
-    return sc * (vn + vs), sc * (vn - vs)
-
-
 RUN = 8  # consecutive orders whose columns of the FFT and coefficient arrays are read or written together
 
 
@@ -223,7 +209,7 @@ def _analysis_order_single(m, lmax, n, x, s, cmm, shift, a, c, F, kk, rn, rs, wn
     nscaled = order_start(m, n, x, s, cmm, shift, P, Q, k)
     fe = np.empty((4, n))
     for j in range(n):
-        e, o = _pair_sums(F, kk, rn, rs, wn, ws, sc, j, m)
+        e, o = pair_sums(F, kk, rn, rs, wn, ws, sc, j, m)
         on = 1.0 if k[j] == 0 else 0.0
         fe[0, j] = e.real * on
         fe[1, j] = e.imag * on
@@ -239,7 +225,7 @@ def _analysis_order_single(m, lmax, n, x, s, cmm, shift, a, c, F, kk, rn, rs, wn
             for j in range(n):
                 if rescale_lane(P, Q, k, j):
                     nscaled -= 1
-                    e, o = _pair_sums(F, kk, rn, rs, wn, ws, sc, j, m)
+                    e, o = pair_sums(F, kk, rn, rs, wn, ws, sc, j, m)
                     fe[0, j] = e.real
                     fe[1, j] = e.imag
                     fe[2, j] = o.real
@@ -557,7 +543,7 @@ def analysis_batch(lmax, orders, mlo, x, s, cm, live, F, rn, rs, wn, ws, scale,
         fe = np.empty((K, 4, n))
         for kk in range(K):
             for j in range(n):
-                e, o = _pair_sums(F, kk, rn, rs, wn, ws, sc, j, m)
+                e, o = pair_sums(F, kk, rn, rs, wn, ws, sc, j, m)
                 w = 1.0 if k[j] == 0 else 0.0
                 fe[kk, 0, j] = e.real * w
                 fe[kk, 1, j] = e.imag * w
@@ -580,7 +566,7 @@ def analysis_batch(lmax, orders, mlo, x, s, cm, live, F, rn, rs, wn, ws, scale,
                     if rescale_lane(P, Q, k, j):
                         nscaled -= 1
                         for kk in range(K):
-                            e, o = _pair_sums(F, kk, rn, rs, wn, ws, sc, j, m)
+                            e, o = pair_sums(F, kk, rn, rs, wn, ws, sc, j, m)
                             fe[kk, 0, j] = e.real
                             fe[kk, 1, j] = e.imag
                             fe[kk, 2, j] = o.real

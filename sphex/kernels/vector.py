@@ -35,8 +35,8 @@ import numba as nb
 import numpy as np
 
 from sphex.kernels.recursion import (
-    CHECK_EVERY, FASTMATH, JIT, advance1, advance4_store, convention_factor, order_start,
-    recursion_coeffs, rescale_lane,
+    CHECK_EVERY, FASTMATH, JIT, SERIAL, advance1, advance4_store, convention_factor, order_start,
+    pair_sums, recursion_coeffs, rescale_lane,
 )
 
 
@@ -51,38 +51,27 @@ def column_plan(col, lmax):
 
 
 @nb.njit(inline="always", **JIT)
-def _ring_sums(F, kk, rn, rs, wn, ws, sc, j, col):
-    """sc (wn F[north] + ws F[south]) and sc (wn F[north] - ws F[south]) of pair j."""
-    vn = 0j
-    vs = 0j
-    if rn[j] >= 0:
-        vn = wn[j] * F[kk, rn[j], col]
-    if rs[j] >= 0:
-        vs = ws[j] * F[kk, rs[j], col]
-    return sc * (vn + vs), sc * (vn - vs)
-
-
-@nb.njit(inline="always", **JIT)
 def _load_pair(Fu, Fv, fe, kk, rn, rs, wn, ws, sc, j, col, on):
     """Pair sums of both components into fe[kk, 0:8, j] (u even, u odd, v even, v odd; re, im)."""
-    e, o = _ring_sums(Fu, kk, rn, rs, wn, ws, sc, j, col)
+    e, o = pair_sums(Fu, kk, rn, rs, wn, ws, sc, j, col)
     fe[kk, 0, j] = e.real * on
     fe[kk, 1, j] = e.imag * on
     fe[kk, 2, j] = o.real * on
     fe[kk, 3, j] = o.imag * on
-    e, o = _ring_sums(Fv, kk, rn, rs, wn, ws, sc, j, col)
+    e, o = pair_sums(Fv, kk, rn, rs, wn, ws, sc, j, col)
     fe[kk, 4, j] = e.real * on
     fe[kk, 5, j] = e.imag * on
     fe[kk, 6, j] = o.real * on
     fe[kk, 7, j] = o.imag * on
 
 
-@nb.njit(parallel=True, fastmath=FASTMATH, **JIT)
-def vector_analysis_kernel(lmax, seq, x, s, cm, live, Fu, Fv, rn, rs, wn, ws, scale, Gu, Gv):
+@nb.njit(fastmath=FASTMATH, **SERIAL)
+def vector_analysis_kernel(lmax, cols, x, s, cm, live, Fu, Fv, rn, rs, wn, ws, scale, Gu, Gv):
     """Add the projections G_k = 2 pi sum_j w_j u_m(theta_j) R_k(theta_j) (and of v) to Gu, Gv.
 
-    lmax: top degree of the sequences (L + 1).  seq: the Fourier columns
-    0..L in the order the threads take them.  x, s, rn, rs, wn, ws: latitude
+    lmax: top degree of the sequences (L + 1).  cols: this chunk's Fourier
+    columns (:func:`sphex.rings.order_chunks`; the chunks of one call run at
+    once, one per thread, and write disjoint columns).  x, s, rn, rs, wn, ws: latitude
     pairs as in :func:`sphex.kernels.scalar.analysis_kernel`; Fu, Fv: complex
     (K, rows, nfreq) forward FFTs of the two components; column col of them
     times scale[col] is order col.  live[col]: latitudes (a prefix) on which
@@ -95,8 +84,8 @@ def vector_analysis_kernel(lmax, seq, x, s, cm, live, Fu, Fv, rn, rs, wn, ws, sc
     from north - south.
     """
     K = Fu.shape[0]
-    for i in nb.prange(seq.size):
-        col = seq[i]
+    for i in range(cols.size):
+        col = cols[i]
         mu, shift, top = column_plan(col, lmax)
         n = live[col]
         if n == 0 or top < mu:
@@ -259,8 +248,8 @@ def _analysis_contract4(l, n, T, fe, acc):
         acc[t, l + 4] += s4
 
 
-@nb.njit(parallel=True, fastmath=FASTMATH, **JIT)
-def vector_synthesis_kernel(lmax, seq, x, s, cm, live, CU, CV, Xu, Xv, rn, rs, scale):
+@nb.njit(fastmath=FASTMATH, **SERIAL)
+def vector_synthesis_kernel(lmax, cols, x, s, cm, live, CU, CV, Xu, Xv, rn, rs, scale):
     """Fourier coefficients of both components on the grid rows from the sequences CU, CV.
 
     lmax: top degree of the sequences (L + 1).  CU, CV: complex (K, L+2, L+2)
@@ -268,14 +257,14 @@ def vector_synthesis_kernel(lmax, seq, x, s, cm, live, CU, CV, Xu, Xv, rn, rs, s
     (K, rows, nfreq) buffers of the inverse real FFT; column col of row rn[j]
     (northern ring of pair j) and rs[j] (southern ring; -1 for none) is
     assigned scale[col] * sum_k C_k R_k (zero where the functions are
-    negligible), real part only in column 0.  seq: the columns 0..L in the
-    order the threads take them.  Same loop structure as
+    negligible), real part only in column 0.  cols: this chunk's columns, as
+    in :func:`vector_analysis_kernel`.  Same loop structure as
     :func:`vector_analysis_kernel`.
     """
     K = CU.shape[0]
     J = x.size
-    for i in nb.prange(seq.size):
-        col = seq[i]
+    for i in range(cols.size):
+        col = cols[i]
         mu, shift, top = column_plan(col, lmax)
         n = live[col] if top >= mu else 0
         for j in range(n, J):  # rows where the functions are negligible
@@ -540,7 +529,7 @@ def _ladder(l, m):
     return math.sqrt((lf * lf - mf * mf) / (4.0 * lf * lf - 1.0))
 
 
-@nb.njit(parallel=True, **JIT)
+@nb.njit(**SERIAL)
 def flow_to_sequences(A, B, fl, fm, full, use_full, factor, CU, CV):
     """Sequences of the synthesis kernel from streamfunction and potential coefficients.
 
@@ -557,7 +546,7 @@ def flow_to_sequences(A, B, fl, fm, full, use_full, factor, CU, CV):
     """
     K = A.shape[0]
     L = A.shape[1] - 1
-    for m in nb.prange(L + 2):
+    for m in range(L + 2):
         for kk in range(K):
             for k in range(L + 2):
                 CU[kk, k, m] = 0.0
@@ -598,7 +587,7 @@ def flow_to_sequences(A, B, fl, fm, full, use_full, factor, CU, CV):
                 CV[kk, k, m] = im * a_k - down * b_dn + up * b_up
 
 
-@nb.njit(parallel=True, **JIT)
+@nb.njit(**SERIAL)
 def sequences_to_flow(Gu, Gv, fl, fm, full, use_full, factor, A, B):
     """Streamfunction and potential coefficients from the analysis projections.
 
@@ -613,7 +602,7 @@ def sequences_to_flow(Gu, Gv, fl, fm, full, use_full, factor, A, B):
     """
     K = A.shape[0]
     L = A.shape[1] - 1
-    for m in nb.prange(L + 1):
+    for m in range(L + 1):
         for kk in range(K):
             for l in range(m):
                 A[kk, l, m] = 0.0
