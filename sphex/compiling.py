@@ -72,6 +72,14 @@ def kernel_cache_directories(kernels: Path = _KERNELS) -> list[Path]:
     return [kernels / "__pycache__", user / subpath]
 
 
+def _source_time(module: str, kernels: Path) -> float | None:
+    """Time of the last edit of a kernel module or of a source it inlines (None: not found)."""
+    try:
+        return max((kernels / name).stat().st_mtime for name in (f"{module}.py",) + _INLINED)
+    except OSError:
+        return None
+
+
 def missing_kernels(modules: Iterable[str] = ("scalar",), kernels: Path = _KERNELS) -> list[str]:
     """The kernel modules of ``modules`` whose compiled forms numba's cache lacks.
 
@@ -82,10 +90,8 @@ def missing_kernels(modules: Iterable[str] = ("scalar",), kernels: Path = _KERNE
     """
     missing = []
     for module in modules:
-        try:
-            newest = max((kernels / name).stat().st_mtime
-                         for name in (f"{module}.py",) + _INLINED)
-        except OSError:
+        newest = _source_time(module, kernels)
+        if newest is None:
             continue
         found = False
         for directory in kernel_cache_directories(kernels):
@@ -101,9 +107,8 @@ def missing_kernels(modules: Iterable[str] = ("scalar",), kernels: Path = _KERNE
 def _stale_or_missing(module: str, function: str, kernels: Path = _KERNELS) -> bool:
     """Whether numba's cache lacks ``module.function`` (index ``module.function-LINE.*.nbi``)
     or holds only a form older than the module's source or the sources it inlines."""
-    try:
-        newest = max((kernels / name).stat().st_mtime for name in (f"{module}.py",) + _INLINED)
-    except OSError:
+    newest = _source_time(module, kernels)
+    if newest is None:
         return False
     for directory in kernel_cache_directories(kernels):
         index = list(directory.glob(f"{module}.{function}-*.nbi"))

@@ -295,7 +295,7 @@ MUTATIONS: list[Mutation] = [
     # ------------------------------------------------------- kernels: scalar
     _m("scalar-scaled-lanes-not-masked", SCAL,
        "on = 1.0 if k[j] == 0 else 0.0", "on = 1.0", T_TRANS),
-    _m("scalar-pair-sums-swapped", SCAL,
+    _m("recursion-pair-sums-swapped", REC,
        "return sc * (vn + vs), sc * (vn - vs)", "return sc * (vn - vs), sc * (vn + vs)", T_TRANS),
     _m("scalar-analysis-step-parity-typo", SCAL,
        "s4r += t4 * e_r", "s4r += t4 * o_r", T_TRANS),

@@ -219,6 +219,10 @@ def groups_compiled_beside(tmp_path_factory):
     cache = tmp_path_factory.mktemp("beside") / "numba"
     env = dict(os.environ, NUMBA_CACHE_DIR=str(cache), SPHEX_COMPILE_BESIDE="0",
                PYTHONPATH=str(ROOT) + os.pathsep + os.environ.get("PYTHONPATH", ""))
+    # as on a fresh command line, each process decides numba's target itself (this test
+    # process has decided it already and would hand its choice down)
+    for name in ("NUMBA_CPU_NAME", "NUMBA_CPU_FEATURES"):
+        env.pop(name, None)
     r = subprocess.run([sys.executable, "-m", "sphex.compiling", "vector", "batch-synthesis"],
                        capture_output=True, text=True, env=env, timeout=900)
     assert r.returncode == 0, r.stderr[-3000:]
