@@ -444,18 +444,20 @@ def _make_products(out: Path, names: dict[str, str], overwrite: bool,
         made = " (made now; the repository's data_demo/ was not found)"
     print(f"sphex demo: {MOON}, a fictional icy moon of radius {RADIUS_KM:g} km; all data are "
           f"synthetic\n  input data  {data}{made}")
-    # a first run compiles the wind section's kernels in a second process meanwhile
+    # a first run compiles the kernels of the winds in a second process meanwhile, so
+    # everything that needs no wind kernel comes first
     beside = compile_beside(DEMO_BESIDE)
     try:
         rows, checks = _topography_products(data, out, names, overwrite)
         rows += _temperature_products(data, out, names, overwrite, progress)
+        report = _report_product(data, out, names, overwrite, "topography")
         if beside is not None:
             beside.close()
         rows += _wind_products(data, out, names, overwrite)
     finally:
         if beside is not None:
             beside.stop()
-    rows += _report_product(data, out, names, overwrite)
+    rows += report + _report_product(data, out, names, overwrite, "winds")
     w = max(len(k) for k, _ in rows)
     for k, v in rows:
         print(f"  {k:<{w}}  {v}")
@@ -605,22 +607,23 @@ def _wind_products(data: Path, out: Path, names: dict[str, str],
     ]
 
 
-def _report_product(data: Path, out: Path, names: dict[str, str],
-                    overwrite: bool) -> list[tuple[str, str]]:
-    """The HTML reports of the topography and of the winds (what ``sphex report`` writes); the
-    summary rows."""
+def _report_product(data: Path, out: Path, names: dict[str, str], overwrite: bool,
+                    which: str) -> list[tuple[str, str]]:
+    """The HTML report of the topography or of the winds (``which``; what ``sphex report``
+    writes); its summary row."""
     import shlex
 
     from sphex.report import build_report, write_report
 
     again = ["--overwrite"] if overwrite else []
-    target = out / names["report"]
-    command = shlex.join(["sphex", "report", str(data / TOPO_FILE), "-v", "topography",
-                          "-o", str(target)] + again)
-    write_report(build_report(data / TOPO_FILE, variable="topography", command=command),
-                 target, overwrite)
+    if which == "topography":
+        target = out / names["report"]
+        command = shlex.join(["sphex", "report", str(data / TOPO_FILE), "-v", "topography",
+                              "-o", str(target)] + again)
+        write_report(build_report(data / TOPO_FILE, variable="topography", command=command),
+                     target, overwrite)
+        return [("report", f"{target}  (one self-contained HTML page; open it in a browser)")]
     winds = out / names["wind_report"]
     command = shlex.join(["sphex", "report", str(data / WIND_FILE), "-o", str(winds)] + again)
     write_report(build_report(data / WIND_FILE, command=command), winds, overwrite)
-    return [("report", f"{target}  (one self-contained HTML page; open it in a browser)"),
-            ("wind report", f"{winds}  (kinetic energy, vorticity and divergence of the winds)")]
+    return [("wind report", f"{winds}  (kinetic energy, vorticity and divergence of the winds)")]

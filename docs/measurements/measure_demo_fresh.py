@@ -11,7 +11,10 @@ Compilations nested in another one (a kernel calling another dispatcher)
 are listed indented; only the outermost count towards a stage's total.
 Each time is given as wall time and as CPU time (the process's for a stage, the
 compiling thread's for a kernel): on a shared machine the CPU time is what the
-work costs, the wall time what the other programs made of it.
+work costs, the wall time what the other programs made of it.  The wind kernels
+compile in a helper process beside the run (``sphex.compiling.compile_beside``):
+their compilations are not listed here, and the stage "waiting for the helper"
+is the time the run waited for them.
 """
 from __future__ import annotations
 
@@ -82,6 +85,10 @@ def main() -> None:
     demo._temperature_products = timed("temperature", demo._temperature_products)
     demo._wind_products = timed("winds", demo._wind_products)
     demo._report_product = timed("report", demo._report_product)
+    import sphex.compiling as compiling
+
+    compiling.BesideCompilation.close = timed("waiting for the helper",
+                                              compiling.BesideCompilation.close)
     t0 = time.perf_counter()
     demo.run(out, overwrite=True, progress=Progress)
     total = time.perf_counter() - t_start
@@ -96,7 +103,8 @@ def main() -> None:
     print("\n| stage | wall s | CPU s | numba compiling, wall s | compiling, CPU s |",
           file=sys.stderr)
     print("| --- | --- | --- | --- | --- |", file=sys.stderr)
-    for st in ("imports", "topography", "temperature", "winds", "report"):
+    for st in ("imports", "topography", "temperature", "report", "waiting for the helper",
+               "winds"):
         print(f"| {st} | {stage_time[st]:.1f} | {stage_cpu[st]:.1f} | {outer[st]:.1f} | "
               f"{outer_cpu[st]:.1f} |", file=sys.stderr)
     print("\ncompilations (stage, wall s, CPU s, kernel, signature):", file=sys.stderr)
