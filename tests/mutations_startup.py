@@ -1,4 +1,5 @@
-"""Planted bugs in the start-up helpers: the first-run notice of ``sphex.compiling``.
+"""Planted bugs in the start-up helpers: the first-run notice of ``sphex.compiling``, and what
+a short command-line call loads and does at its end (``sphex.cli.parser``).
 
 Run with ``python tests/mutations.py --only startup-``.
 """
@@ -6,6 +7,7 @@ from _mutation import _m
 
 COMPILING = "sphex/compiling.py"
 T_STARTUP = "tests/test_startup.py"
+PARSER = "sphex/cli/parser.py"
 
 MUTATIONS = [
     _m("startup-stale-index-counts-as-cached", COMPILING,
@@ -20,4 +22,8 @@ MUTATIONS = [
        "    _told.update(todo)\n", "", T_STARTUP),
     _m("startup-cache-dir-ignores-numba-setting", COMPILING,
        "    if chosen:\n        return [Path(chosen).resolve() / subpath]\n", "", T_STARTUP),
+    _m("startup-no-freeze-before-the-process-ends", PARSER,
+       "    if argv is None:\n        gc.freeze()\n", "", T_STARTUP),
+    _m("startup-freeze-in-calls-from-python", PARSER,
+       "    if argv is None:\n        gc.freeze()\n", "    gc.freeze()\n", T_STARTUP),
 ]

@@ -95,6 +95,23 @@ def test_analyze_of_a_small_file_loads_no_plots_nor_cluster(small_file, tmp_path
     assert not loaded & {"matplotlib", "distributed"}
 
 
+def test_the_command_line_process_freezes_its_objects_for_the_collector_at_the_end(small_file):
+    # the process ends right after main() returns (sys.exit(main()) in python -m sphex and the
+    # sphex script): its objects are frozen so that the interpreter's shutdown does not pass the
+    # cyclic collector over xarray's, pandas' and numba's objects (gc.freeze, Python's gc docs);
+    # main() called with arguments from Python leaves the collector alone
+    probe = ("import gc, runpy, sys\n"
+             "sys.argv = ['sphex'] + sys.argv[1:]\n"
+             "try:\n    runpy.run_module('sphex', run_name='__main__')\n"
+             "except SystemExit as exc:\n    assert exc.code == 0, exc.code\n"
+             "print('@@', gc.get_freeze_count(), file=sys.stderr)\n")
+    assert int(min(loaded_by(probe, "inspect", small_file))) > 10000
+    in_python = ("import gc, sys\nfrom sphex.cli import main\n"
+                 "assert main(['inspect', sys.argv[1]]) == 0\n"
+                 "print('@@', gc.get_freeze_count(), file=sys.stderr)\n")
+    assert loaded_by(in_python, small_file) == {"0"}
+
+
 def test_a_small_file_analysed_in_memory_writes_what_the_streamed_run_writes(small_file,
                                                                             tmp_path):
     # one chunk: analysed in memory; the same chunk streamed through dask writes the same file
