@@ -28,7 +28,7 @@ MUTATIONS = [
        "    if argv is None:\n        gc.freeze()\n", "    gc.freeze()\n", T_STARTUP),
     _m("startup-old-generations-never-collected-again", PARSER,
        "            gc.set_threshold(*thresholds)\n", "            pass\n", T_STARTUP),
-    _m("startup-window-never-ends", PARSER,
+    _m("startup-window-ends-at-once", PARSER,
        "if held[0] and time.monotonic() >= until:", "if held[0] and time.monotonic() < until:",
        T_STARTUP),
     _m("startup-collector-untouched", PARSER,
