@@ -8,6 +8,8 @@ from _mutation import _m
 COMPILING = "sphex/compiling.py"
 T_STARTUP = "tests/test_startup.py"
 PARSER = "sphex/cli/parser.py"
+GRIDS = "sphex/grids.py"
+T_GRIDS = "tests/test_grids.py"
 
 MUTATIONS = [
     _m("startup-stale-index-counts-as-cached", COMPILING,
@@ -36,4 +38,13 @@ MUTATIONS = [
     _m("startup-collector-tuned-in-calls-from-python", PARSER,
        "    if argv is None:\n        _collect_young_only_at_start()\n",
        "    _collect_young_only_at_start()\n", T_STARTUP),
+    _m("startup-grid-weights-computed-when-recognised", GRIDS,
+       'return cls("equiangular-" + layout, colat, None, nlon, lon0, north_first)',
+       'return cls("equiangular-" + layout, colat, equiangular_nodes(nlat, layout)[1], nlon, lon0,'
+       ' north_first)', T_STARTUP),
+    _m("startup-weights-on-first-use-not-in-grid-order", GRIDS,
+       "        if not self.north_first:\n            weights = weights[::-1].copy()\n", "",
+       T_GRIDS),
+    _m("startup-weights-on-first-use-writable", GRIDS,
+       "        weights.setflags(write=False)\n", "", T_GRIDS),
 ]

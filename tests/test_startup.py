@@ -92,7 +92,18 @@ def test_the_adapters_and_conventions_load_no_numba_nor_scipy():
 def test_inspect_loads_no_kernels_plots_or_cluster(small_file):
     loaded = command_loads("inspect", small_file)
     assert {"xarray", "netCDF4"} <= loaded                     # it did read the file
-    assert not loaded & {"numba", "matplotlib", "distributed"}
+    # (nor scipy: an equiangular grid is recognised by its latitudes, its weights wait)
+    assert not loaded & {"numba", "scipy", "matplotlib", "distributed"}
+
+
+def test_recognising_an_equiangular_grid_needs_no_fft_its_weights_do():
+    code = ("import sys\nfrom sphex.grids import Grid\n"
+            "g = Grid.equiangular(8, 16, 'poles')\n"
+            "h = Grid.from_coords(g.lat[::-1], g.lon + 11.25)\n"
+            "before = 'scipy' in sys.modules\n"
+            "print('@@', before, round(h.weights.sum(), 12), 'scipy' in sys.modules, "
+            "file=sys.stderr)\n")
+    assert reported_by(code) == ["False", "2.0", "True"]
 
 
 def test_analyze_of_a_small_file_loads_no_plots_nor_cluster(small_file, tmp_path):
