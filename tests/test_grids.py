@@ -149,6 +149,8 @@ def test_weights_on_first_use_are_the_layouts_rule_in_grid_order(layout, nlat):
     assert np.array_equal(flipped.colat, colat[::-1])
     assert np.array_equal(flipped.weights, w[::-1])
     assert not flipped.weights.flags.writeable
+    given = Grid(g.kind, colat, w, 8, north_first=False)   # weights handed to the constructor
+    assert np.array_equal(given.weights, w[::-1]) and np.array_equal(given.colat, colat[::-1])
     fresh = Grid.from_coords(g.lat[::-1], g.lon)
     assert pickle.loads(pickle.dumps(fresh)) == flipped and hash(fresh) == hash(flipped)
     with pytest.raises(AttributeError, match="no attribute 'weight'"):
