@@ -43,7 +43,7 @@ MUTATIONS = [
        'return cls("equiangular-" + layout, colat, equiangular_nodes(nlat, layout)[1], nlon, lon0,'
        ' north_first)', T_STARTUP),
     _m("startup-given-weights-not-in-grid-order", GRIDS,
-       "                weights = weights[::-1].copy()\n", "", T_GRIDS),
+       "                weights = weights[::-1].copy()\n", "                pass\n", T_GRIDS),
     _m("startup-weights-on-first-use-writable", GRIDS,
        "        weights.setflags(write=False)\n", "", T_GRIDS),
 ]
