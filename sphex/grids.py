@@ -53,7 +53,9 @@ class Grid:
     colat : ndarray
         Colatitudes in radians (``pi/2 - lat``), computed directly for accuracy.
     weights : ndarray
-        Latitude quadrature weights in ``x = cos(colat)``; they sum to 2.
+        Latitude quadrature weights in ``x = cos(colat)``; they sum to 2.  An
+        equiangular grid computes them when first asked (with scipy's FFT), so
+        that recognising a grid from its coordinates needs no FFT.
     lmax_exact : int
         Highest degree that analysis on this grid recovers exactly.
     kind : str
@@ -64,15 +66,21 @@ class Grid:
     __slots__ = ("kind", "nlat", "nlon", "lon0", "north_first", "colat", "weights",
                  "lat", "lon", "lmax_exact")
 
-    def __init__(self, kind: str, colat: np.ndarray, weights: np.ndarray, nlon: int,
+    def __init__(self, kind: str, colat: np.ndarray, weights: np.ndarray | None, nlon: int,
                  lon0: float = 0.0, north_first: bool = True):
+        # weights=None (equiangular kinds only): the layout's rule, computed on first use
+        # (scipy's FFT), so that recognising a grid, as ``sphex inspect`` does, needs no FFT
         if kind not in _KINDS:
             raise ValueError(f"unknown grid kind {kind!r}; valid kinds: {', '.join(_KINDS)}")
+        if weights is None and kind == "gauss":
+            raise ValueError("a Gauss grid needs its weights: build it with Grid.gauss")
         colat = np.asarray(colat, dtype=np.float64)
-        weights = np.asarray(weights, dtype=np.float64)
+        if weights is not None:
+            weights = np.asarray(weights, dtype=np.float64)
         if not north_first:
             colat = colat[::-1].copy()
-            weights = weights[::-1].copy()
+            if weights is not None:
+                weights = weights[::-1].copy()
         lat = 90.0 - np.degrees(colat)
         lon = float(lon0) + 360.0 * np.arange(int(nlon)) / int(nlon)
         if kind == "gauss":
@@ -80,12 +88,26 @@ class Grid:
         else:
             lat_limit = (colat.size - 1) // 2
         fields = dict(kind=kind, nlat=int(colat.size), nlon=int(nlon), lon0=float(lon0),
-                      north_first=bool(north_first), colat=colat, weights=weights, lat=lat, lon=lon,
+                      north_first=bool(north_first), colat=colat, lat=lat, lon=lon,
                       lmax_exact=int(min(lat_limit, (int(nlon) - 1) // 2)))
+        if weights is not None:
+            fields["weights"] = weights
         for name, value in fields.items():
             object.__setattr__(self, name, value)
-        for arr in (self.colat, self.weights, self.lat, self.lon):
-            arr.setflags(write=False)
+        for arr in fields.values():
+            if isinstance(arr, np.ndarray):
+                arr.setflags(write=False)
+
+    def __getattr__(self, name: str):
+        # only reached for a slot not yet set: the weights of an equiangular layout
+        if name != "weights" or not self.kind.startswith("equiangular-"):
+            raise AttributeError(f"{type(self).__name__!r} object has no attribute {name!r}")
+        _, weights = equiangular_nodes(self.nlat, self.layout)
+        if not self.north_first:
+            weights = weights[::-1].copy()
+        weights.setflags(write=False)
+        object.__setattr__(self, "weights", weights)
+        return weights
 
     # -- constructors -----------------------------------------------------
     @classmethod
@@ -138,8 +160,7 @@ class Grid:
             raise ValueError(f"unknown layout {layout!r}; valid layouts: {', '.join(LAYOUTS)}")
         _check_grid_memory(nlat, nlon, f"Grid.equiangular({nlat}, {nlon}, {layout!r})",
                            "use fewer latitudes or longitudes")
-        colat, weights = equiangular_nodes(nlat, layout)
-        return cls("equiangular-" + layout, colat, weights, nlon)
+        return cls("equiangular-" + layout, equiangular_colatitudes(nlat, layout), None, nlon)
 
     @classmethod
     def from_coords(cls, lat, lon, *, tol: float = 2e-5) -> "Grid":
@@ -182,10 +203,9 @@ class Grid:
             raise ValueError("latitudes are not monotonic: sort them north to south or south to north")
         lat_ns = lat if north_first else lat[::-1]
         for layout in LAYOUTS:
-            colat, _ = equiangular_nodes(nlat, layout)
+            colat = equiangular_colatitudes(nlat, layout)
             if np.max(np.abs(lat_ns - (90.0 - np.degrees(colat)))) <= tol:
-                colat, weights = equiangular_nodes(nlat, layout)
-                return cls("equiangular-" + layout, colat, weights, nlon, lon0, north_first)
+                return cls("equiangular-" + layout, colat, None, nlon, lon0, north_first)
         colat, weights = gauss_nodes(nlat)
         if np.max(np.abs(lat_ns - (90.0 - np.degrees(colat)))) <= tol:
             return cls("gauss", colat, weights, nlon, lon0, north_first)
@@ -313,6 +333,17 @@ def gauss_nodes(n: int) -> tuple[np.ndarray, np.ndarray]:
     from sphex.kernels.gauss import gauss_legendre
 
     return gauss_legendre(int(n))
+
+
+def equiangular_colatitudes(nlat: int, layout: str) -> np.ndarray:
+    """Colatitudes (ascending, radians) of an equiangular layout: those of
+    :func:`equiangular_nodes` without the weights (no FFT)."""
+    if layout == "cells":
+        return (np.arange(nlat) + 0.5) * (np.pi / nlat)
+    if layout in ("poles", "north"):
+        nint = nlat - 1 if layout == "poles" else nlat
+        return (np.arange(nint + 1) * (np.pi / nint))[:nlat]
+    raise ValueError(f"unknown layout {layout!r}; valid layouts: {', '.join(LAYOUTS)}")
 
 
 def equiangular_nodes(nlat: int, layout: str) -> tuple[np.ndarray, np.ndarray]:

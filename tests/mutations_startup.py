@@ -1,5 +1,6 @@
-"""Planted bugs in the start-up helpers of ``sphex.compiling``: the first-run notice and the
-helper process that compiles kernel groups beside a run.
+"""Planted bugs in the start-up helpers: the first-run notice and the helper process that
+compiles kernel groups beside a run (``sphex.compiling``), and what a short command-line
+call loads and does at its end (``sphex.cli.parser``, ``sphex.grids``).
 
 Run with ``python tests/mutations.py --only startup-``.
 """
@@ -7,6 +8,9 @@ from _mutation import _m
 
 COMPILING = "sphex/compiling.py"
 T_STARTUP = "tests/test_startup.py"
+PARSER = "sphex/cli/parser.py"
+GRIDS = "sphex/grids.py"
+T_GRIDS = "tests/test_grids.py"
 
 MUTATIONS = [
     _m("startup-stale-index-counts-as-cached", COMPILING,
@@ -32,4 +36,26 @@ MUTATIONS = [
        '        print(f"compiled {group}", flush=True)\n        _compile_group(group)\n', T_STARTUP),
     _m("startup-beside-stop-lets-the-helper-run", COMPILING,
        "        if self.process.poll() is None:\n            self.process.kill()\n", "", T_STARTUP),
+    _m("startup-no-freeze-before-the-process-ends", PARSER,
+       "    if argv is None:\n        gc.freeze()\n", "", T_STARTUP),
+    _m("startup-freeze-in-calls-from-python", PARSER,
+       "    if argv is None:\n        gc.freeze()\n", "    gc.freeze()\n", T_STARTUP),
+    _m("startup-old-generations-never-collected-again", PARSER,
+       "            gc.set_threshold(*thresholds)\n", "            pass\n", T_STARTUP),
+    _m("startup-window-ends-at-once", PARSER,
+       "if held[0] and time.monotonic() >= until:", "if held[0] and time.monotonic() < until:",
+       T_STARTUP),
+    _m("startup-collector-untouched", PARSER,
+       "    gc.set_threshold(thresholds[0], 1 << 30, 1 << 30)\n", "", T_STARTUP),
+    _m("startup-collector-tuned-in-calls-from-python", PARSER,
+       "    if argv is None:\n        _collect_young_only_at_start()\n",
+       "    _collect_young_only_at_start()\n", T_STARTUP),
+    _m("startup-grid-weights-computed-when-recognised", GRIDS,
+       'return cls("equiangular-" + layout, colat, None, nlon, lon0, north_first)',
+       'return cls("equiangular-" + layout, colat, equiangular_nodes(nlat, layout)[1], nlon, lon0,'
+       ' north_first)', T_STARTUP),
+    _m("startup-given-weights-not-in-grid-order", GRIDS,
+       "                weights = weights[::-1].copy()\n", "                pass\n", T_GRIDS),
+    _m("startup-weights-on-first-use-writable", GRIDS,
+       "        weights.setflags(write=False)\n", "", T_GRIDS),
 ]

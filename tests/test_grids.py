@@ -14,7 +14,7 @@ from _reference import (
     mp_gauss_colatitude,
     mp_gauss_node_weight,
 )
-from sphex.grids import Grid
+from sphex.grids import Grid, equiangular_nodes
 
 LAYOUTS = ("poles", "cells", "north")
 
@@ -133,6 +133,30 @@ def test_equiangular_nodes_and_limit(layout, nlat):
     np.testing.assert_allclose(g.lat, equiangular_lat(nlat, layout), rtol=0, atol=1e-12)
     np.testing.assert_allclose(g.lon, 360.0 * np.arange(nlon) / nlon, rtol=0, atol=1e-12)
     assert g.lmax_exact == (nlat - 1) // 2
+
+
+@pytest.mark.parametrize("layout", LAYOUTS)
+@pytest.mark.parametrize("nlat", [2, 3, 16, 33, 181])
+def test_weights_on_first_use_are_the_layouts_rule_in_grid_order(layout, nlat):
+    # an equiangular grid computes its weights when first asked (recognising a grid needs
+    # none): the same numbers as equiangular_nodes, bit for bit, in the grid's latitude
+    # order, read-only, and part of its identity and its pickle
+    colat, w = equiangular_nodes(nlat, layout)
+    g = Grid.equiangular(nlat, 2 * nlat + 1, layout)
+    assert np.array_equal(g.colat, colat) and np.array_equal(g.weights, w)
+    flipped = Grid.from_coords(g.lat[::-1], g.lon)
+    assert not flipped.north_first
+    assert np.array_equal(flipped.colat, colat[::-1])
+    assert np.array_equal(flipped.weights, w[::-1])
+    assert not flipped.weights.flags.writeable
+    given = Grid(g.kind, colat, w, 8, north_first=False)   # weights handed to the constructor
+    assert np.array_equal(given.weights, w[::-1]) and np.array_equal(given.colat, colat[::-1])
+    fresh = Grid.from_coords(g.lat[::-1], g.lon)
+    assert pickle.loads(pickle.dumps(fresh)) == flipped and hash(fresh) == hash(flipped)
+    with pytest.raises(AttributeError, match="no attribute 'weight'"):
+        g.weight
+    with pytest.raises(ValueError, match="Grid.gauss"):
+        Grid("gauss", colat, None, 8)
 
 
 def test_lmax_exact_limited_by_longitudes():

@@ -9,10 +9,12 @@ every call a few tenths of a second again.
 """
 from __future__ import annotations
 
+import gc
 import io
 import os
 import subprocess
 import sys
+import time
 from pathlib import Path
 
 import numpy as np
@@ -37,14 +39,19 @@ print("@@", " ".join(sorted(m for m in {heavy!r} if m in sys.modules)), file=sys
 """
 
 
-def loaded_by(code: str, *args, cwd=None) -> set[str]:
-    """The heavy packages a fresh interpreter has imported after running ``code``."""
+def reported_by(code: str, *args, cwd=None) -> list[str]:
+    """The words a fresh interpreter running ``code`` printed after ``@@`` on stderr."""
     env = dict(os.environ, PYTHONPATH=str(ROOT) + os.pathsep + os.environ.get("PYTHONPATH", ""))
     r = subprocess.run([sys.executable, "-c", code, *map(str, args)], capture_output=True,
                        text=True, env=env, cwd=cwd, timeout=300)
     marker = [ln for ln in r.stderr.splitlines() if ln.startswith("@@")]
     assert marker, r.stderr
-    return set(marker[-1][2:].split())
+    return marker[-1][2:].split()
+
+
+def loaded_by(code: str, *args, cwd=None) -> set[str]:
+    """The heavy packages a fresh interpreter has imported after running ``code``."""
+    return set(reported_by(code, *args, cwd=cwd))
 
 
 def command_loads(*args, cwd=None) -> set[str]:
@@ -85,7 +92,18 @@ def test_the_adapters_and_conventions_load_no_numba_nor_scipy():
 def test_inspect_loads_no_kernels_plots_or_cluster(small_file):
     loaded = command_loads("inspect", small_file)
     assert {"xarray", "netCDF4"} <= loaded                     # it did read the file
-    assert not loaded & {"numba", "matplotlib", "distributed"}
+    # (nor scipy: an equiangular grid is recognised by its latitudes, its weights wait)
+    assert not loaded & {"numba", "scipy", "matplotlib", "distributed"}
+
+
+def test_recognising_an_equiangular_grid_needs_no_fft_its_weights_do():
+    code = ("import sys\nfrom sphex.grids import Grid\n"
+            "g = Grid.equiangular(8, 16, 'poles')\n"
+            "h = Grid.from_coords(g.lat[::-1], g.lon + 11.25)\n"
+            "before = 'scipy' in sys.modules\n"
+            "print('@@', before, round(h.weights.sum(), 12), 'scipy' in sys.modules, "
+            "file=sys.stderr)\n")
+    assert reported_by(code) == ["False", "2.0", "True"]
 
 
 def test_analyze_of_a_small_file_loads_no_plots_nor_cluster(small_file, tmp_path):
@@ -93,6 +111,48 @@ def test_analyze_of_a_small_file_loads_no_plots_nor_cluster(small_file, tmp_path
     assert (tmp_path / "c.nc").exists() and "numba" in loaded   # it did analyse
     # (xarray itself imports dask.array when it makes a DataArray, if dask is installed)
     assert not loaded & {"matplotlib", "distributed"}
+
+
+def test_the_command_line_process_tunes_the_collector_and_freezes_at_the_end(small_file):
+    # the process ends right after main() returns (sys.exit(main()) in python -m sphex and the
+    # sphex script): its objects are frozen so that the interpreter's shutdown does not pass the
+    # cyclic collector over xarray's, pandas' and numba's objects (gc.freeze, Python's gc docs),
+    # and its start-up collects the young generation only (a callback ends that); main() called
+    # with arguments from Python leaves the collector alone
+    probe = ("import gc, runpy, sys\n"
+             "sys.argv = ['sphex'] + sys.argv[1:]\n"
+             "try:\n    runpy.run_module('sphex', run_name='__main__')\n"
+             "except SystemExit as exc:\n    assert exc.code == 0, exc.code\n"
+             "ours = [c for c in gc.callbacks if c.__module__ == 'sphex.cli.parser']\n"
+             "print('@@', 'frozen', gc.get_freeze_count(), 'callbacks', len(ours), "
+             "file=sys.stderr)\n")
+    words = reported_by(probe, "inspect", small_file)
+    assert words[0::2] == ["frozen", "callbacks"]
+    assert int(words[1]) > 10000 and words[3] == "1"
+    in_python = ("import gc, sys\nfrom sphex.cli import main\n"
+                 "assert main(['inspect', sys.argv[1]]) == 0\n"
+                 "ours = [c for c in gc.callbacks if c.__module__ == 'sphex.cli.parser']\n"
+                 "print('@@', 'frozen', gc.get_freeze_count(), 'callbacks', len(ours), "
+                 "file=sys.stderr)\n")
+    assert reported_by(in_python, small_file) == ["frozen", "0", "callbacks", "0"]
+
+
+def test_start_up_collects_the_young_generation_only_then_as_before():
+    from sphex.cli import parser
+
+    before, callbacks = gc.get_threshold(), list(gc.callbacks)
+    try:
+        parser._collect_young_only_at_start(0.5)
+        held = (before[0], 1 << 30, 1 << 30)
+        assert gc.get_threshold() == held
+        gc.collect(0)                       # within the window: still held
+        assert gc.get_threshold() == held
+        time.sleep(0.6)
+        gc.collect(0)                       # the first collection after it restores the thresholds
+        assert gc.get_threshold() == before
+    finally:
+        gc.set_threshold(*before)
+        gc.callbacks[:] = callbacks
 
 
 def test_a_small_file_analysed_in_memory_writes_what_the_streamed_run_writes(small_file,

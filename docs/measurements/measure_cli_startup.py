@@ -1,6 +1,7 @@
 """Warm command-line calls, end to end (run by hand; not part of the tests).
 
     PYTHONPATH=. python docs/measurements/measure_cli_startup.py [--repeat 5] [--nlat 64]
+        [--before OTHER_CHECKOUT]
 
 Writes a 64 x 128 (``--nlat`` x 2 ``--nlat``) field on the equiangular cell-centre
 grid to a temporary folder, runs ``python -m sphex --help``, ``inspect``,
@@ -8,7 +9,10 @@ grid to a temporary folder, runs ``python -m sphex --help``, ``inspect``,
 fresh processes (after one untimed call that fills numba's cache), and prints
 the best and the median wall time and the best CPU time (user + system) of
 each.  On a shared machine the CPU time is the steadier figure.  It also lists
-which heavy packages each command imported.
+which heavy packages each command imported.  With ``--before`` the same
+commands of another checkout of sphex (an older commit unpacked beside this
+one) run too, alternating with this one's call by call, so that both see the
+same load.
 """
 from __future__ import annotations
 
@@ -25,9 +29,11 @@ HEAVY = ("numba", "scipy.fft", "scipy.special", "scipy.linalg", "xarray", "netCD
          "dask.array", "distributed", "matplotlib", "pandas")
 
 
-def run_once(cmd: list[str], env: dict) -> tuple[float, float]:
+def run_once(cmd: list[str], env: dict, folder: str) -> tuple[float, float]:
+    # run in the temporary folder: python -m puts the working directory first on the path
     t0 = time.perf_counter()
-    p = subprocess.Popen(cmd, env=env, stdout=subprocess.DEVNULL, stderr=subprocess.PIPE)
+    p = subprocess.Popen(cmd, env=env, cwd=folder, stdout=subprocess.DEVNULL,
+                         stderr=subprocess.PIPE)
     _, status, usage = os.wait4(p.pid, 0)
     wall = time.perf_counter() - t0
     p.returncode = os.waitstatus_to_exitcode(status)
@@ -52,6 +58,8 @@ def main() -> None:
     ap = argparse.ArgumentParser(description=__doc__.splitlines()[0])
     ap.add_argument("--repeat", type=int, default=5)
     ap.add_argument("--nlat", type=int, default=64)
+    ap.add_argument("--before", metavar="DIR",
+                    help="another checkout of sphex to time alternately with this one")
     a = ap.parse_args()
     import numpy as np
     import xarray as xr
@@ -67,9 +75,13 @@ def main() -> None:
     da.lon.attrs.update(units="degrees_east")
     small = str(Path(folder) / "small.nc")
     da.to_dataset().to_netcdf(small)
-    env = dict(os.environ)
-    root = str(Path(__file__).resolve().parents[2])
-    env["PYTHONPATH"] = root + os.pathsep + env.get("PYTHONPATH", "")
+    trees = {"this": str(Path(__file__).resolve().parents[2])}
+    if a.before:
+        trees = {"before": str(Path(a.before).resolve()), "after": trees["this"]}
+    envs = {}
+    for label, root in trees.items():
+        envs[label] = dict(os.environ)
+        envs[label]["PYTHONPATH"] = root + os.pathsep + os.environ.get("PYTHONPATH", "")
     out = str(Path(folder) / "coef.nc")
     cases = {
         "python -c pass": [sys.executable, "-c", "pass"],
@@ -78,15 +90,23 @@ def main() -> None:
         "sphex analyze": [sys.executable, "-m", "sphex", "analyze", small, "-o", out,
                           "--overwrite"],
     }
-    run_once(cases["sphex analyze"], env)  # fills numba's cache if it is empty
+    for env in envs.values():
+        run_once(cases["sphex analyze"], env, folder)  # fills numba's cache if it is empty
     print(f"load average before: {os.getloadavg()[0]:.2f}")
-    print("| command | best wall s | median wall s | best CPU s | heavy packages imported |")
-    print("| --- | --- | --- | --- | --- |")
+    print("| command | code | best wall s | median wall s | best CPU s | median CPU s "
+          "| heavy packages imported |")
+    print("| --- | --- | --- | --- | --- | --- | --- |")
     for label, cmd in cases.items():
-        walls, cpus = zip(*(run_once(cmd, env) for _ in range(a.repeat)))
-        mods = imported(cmd[3:], env, folder) if cmd[1:3] == ["-m", "sphex"] else []
-        print(f"| {label} | {min(walls):.2f} | {statistics.median(walls):.2f} | "
-              f"{min(cpus):.2f} | {', '.join(mods) or '-'} |")
+        times: dict[str, list] = {t: [] for t in envs}
+        for _ in range(a.repeat):
+            for t, env in envs.items():
+                times[t].append(run_once(cmd, env, folder))
+        for t, env in envs.items():
+            walls, cpus = zip(*times[t])
+            mods = imported(cmd[3:], env, folder) if cmd[1:3] == ["-m", "sphex"] else []
+            print(f"| {label} | {t} | {min(walls):.2f} | {statistics.median(walls):.2f} | "
+                  f"{min(cpus):.2f} | {statistics.median(cpus):.2f} | "
+                  f"{', '.join(mods) or '-'} |")
     print(f"load average after: {os.getloadavg()[0]:.2f}")
 
 
