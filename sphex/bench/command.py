@@ -37,7 +37,8 @@ def main(argv: Sequence[str] | None = None) -> int:
                         help="also one analysis and synthesis at this degree in a fresh process "
                              "(default 10800: 1.9 GB of input, several minutes)")
     parser.add_argument("--cold", action="store_true",
-                        help="also time the first call with an empty numba cache and a warm CLI call")
+                        help="also time first calls with an empty numba cache (analyze + "
+                             "synthesize at L=255, the demo) and warm CLI calls (about a minute)")
     parser.add_argument("--no-rotation", action="store_true",
                         help="skip rotation (L=1023, 2047) and the localised spectrum (L=1023, "
                              "20 windows)")
