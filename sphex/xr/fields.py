@@ -61,14 +61,21 @@ def _analyze_block(values: np.ndarray, pos: np.ndarray | None = None, *, info: G
     c_out = np.empty((n, lmax + 1, lmax + 1))
     s_out = np.empty((n, lmax + 1, lmax + 1))
     step = _progress_step(n) if progress else max(n, 1)
+    kw = {"allow_aliasing": True} if allow_aliasing else {}
     for i in range(0, n, step):
         block = np.ascontiguousarray(flat[i:i + step], dtype=np.float64)
-        kw = {"allow_aliasing": True} if allow_aliasing else {}
-        refuse_missing_in_block(block, i, pos, batch, where)
-        h = _analyze(block, info.grid, lmax=lmax, norm=norm, condon_shortley=cs, **kw)
-        c, s = h.cos_sin()
-        c_out[i:i + step] = c
-        s_out[i:i + step] = s
+        try:
+            h = _analyze(block, info.grid, lmax=lmax, norm=norm, condon_shortley=cs, **kw)
+        except ValueError as exc:
+            failed: ValueError | None = exc
+        else:
+            failed = None
+        if failed is not None:
+            # the transform refuses NaN and inf in the passes it makes over the values
+            # anyway; only then are the fields that hold them found and named
+            refuse_missing_in_block(block, i, pos, batch, where)
+            raise failed
+        h.cos_sin(out=(c_out[i:i + step], s_out[i:i + step]))  # straight into the block's output
         if progress:
             progress(min(i + step, n), n)
     shape = batch + (lmax + 1, lmax + 1)
