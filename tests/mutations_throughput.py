@@ -28,7 +28,8 @@ MUTATIONS = [
        "h.cos_sin(out=(s_out[i:i + step], c_out[i:i + step]))", T_STREAM),
     _m("thru-task-cos-sin-into-the-first-block", FIELDS,
        "h.cos_sin(out=(c_out[i:i + step], s_out[i:i + step]))",
-       "h.cos_sin(out=(c_out[:step], s_out[:step]))", T_FIELDS, T_STREAM),
+       "h.cos_sin(out=(c_out[:step], s_out[:step]))",
+       "tests/test_xr_fields.py::test_analysis_reported_in_steps_fills_every_step_of_its_output"),
     _m("thru-lazy-cos-and-sin-swapped", FIELDS,
        "    return (xr.DataArray(both[0], dims=dims, coords=coords),\n"
        "            xr.DataArray(both[1], dims=dims, coords=coords))",
@@ -56,5 +57,6 @@ MUTATIONS = [
        T_HOSTILE),
     _m("thru-check-lets-inf-through", RINGS,
        "if peak is not None and not np.isfinite(peak):",
-       "if peak is not None and np.isnan(peak):", T_HOSTILE, T_TRANS),
+       "if peak is not None and np.isnan(peak):",
+       "tests/test_transform.py::test_nan_and_inf_are_named_with_their_place_before_any_work"),
 ]
