@@ -155,6 +155,8 @@ def main() -> None:
     out.unlink(missing_ok=True)
     if not a.file and not a.keep:
         src.unlink()
+    if not any(folder.iterdir()):
+        folder.rmdir()
 
 
 def _timed(fn) -> float:
