@@ -26,7 +26,7 @@ import numbers
 import numpy as np
 
 from sphex.legendre import check_norm, norm_scale
-from sphex.limits import check_memory, peak_magnitude, refuse_overflow, whole_number
+from sphex.limits import all_finite, check_memory, peak_magnitude, refuse_overflow, whole_number
 
 __all__ = ["Harmonics", "convert_factor"]
 
@@ -208,16 +208,22 @@ class Harmonics:
         return self._derived(coef, f"the conversion to {norm!r}",
                              norm=norm, condon_shortley=cs)
 
-    def cos_sin(self) -> tuple[np.ndarray, np.ndarray]:
-        """Real-form coefficients ``(C, S)``, each ``(..., lmax+1, lmax+1)`` indexed [l, m]."""
+    def cos_sin(self, out: tuple[np.ndarray, np.ndarray] | None = None
+                ) -> tuple[np.ndarray, np.ndarray]:
+        """Real-form coefficients ``(C, S)``, each ``(..., lmax+1, lmax+1)`` indexed [l, m].
+
+        ``out``: two float64 arrays of that shape to write ``C`` and ``S`` into (and
+        return), instead of new ones; the values are the same to the bit.
+        """
         r = _real_form_factor(self.lmax, self.norm)
         scale = np.where(np.arange(self.lmax + 1) == 0, 1.0, 2.0 / r)
+        C, S = (None, None) if out is None else out
         with np.errstate(over="ignore"):
-            C = self.coef.real * scale
-            S = -self.coef.imag * scale
+            C = np.multiply(self.coef.real, scale, out=C)
+            S = np.negative(self.coef.imag, out=S)
+            S *= scale
         S[..., :, 0] = 0.0
-        if not (np.isfinite(peak_magnitude(C)) and np.isfinite(peak_magnitude(S))) \
-                and np.isfinite(peak_magnitude(self.coef)):
+        if not (all_finite(C) and all_finite(S)) and np.isfinite(peak_magnitude(self.coef)):
             refuse_overflow(np.stack([C, S]), f"the real-form (cosine/sine) coefficients, "
                             f"sqrt(2) times the complex ones up to {peak_magnitude(self.coef):.3g},",
                             "divide the coefficients by a power of ten (larger units) first")

@@ -30,7 +30,7 @@ from sphex.limits import (
     binary_exponent, check_memory, peak_magnitude, refuse_overflow, whole_number,
 )
 
-__all__ = ["fft_workers", "check_grid", "check_values", "check_lmax", "LatitudePairs",
+__all__ = ["fft_workers", "check_grid", "check_values", "checked_values", "check_lmax", "LatitudePairs",
            "latitude_pairs", "longitude_phase", "live_pairs", "order_sequence", "order_chunks",
            "run_chunks", "serial_blas", "BAND_BYTES",
            "pair_bands", "PairBand", "ConventionFactor", "convention_factor",
@@ -81,6 +81,19 @@ def check_values(values, grid: Grid) -> np.ndarray:
     Raises
     ------
     ValueError
+        As :func:`checked_values`.
+    """
+    return checked_values(values, grid)[0]
+
+
+def checked_values(values, grid: Grid) -> tuple[np.ndarray, float | None]:
+    """The values of a transform as a plain real array on ``grid``, after the checks,
+    and their largest magnitude (None for integer values): :func:`check_values` and the
+    peak that :func:`scaled_input` needs, from the same passes over the values.
+
+    Raises
+    ------
+    ValueError
         Complex or non-numeric values, a shape that is not ``(..., nlat, nlon)``
         of the grid, masked elements of a ``numpy.ma`` array (such as a netCDF4
         variable with fill values), NaN or inf; each message says where and
@@ -109,23 +122,27 @@ def check_values(values, grid: Grid) -> np.ndarray:
                              f"first, or {MASKED_ROUTE}")
         arr = np.ma.getdata(arr)
     arr = np.asarray(arr)
-    if arr.dtype.kind == "f" and not np.isfinite(peak_magnitude(arr)):
+    peak = peak_magnitude(arr) if arr.dtype.kind == "f" else None
+    if peak is not None and not np.isfinite(peak):
         finite = np.isfinite(arr)
         bad = int(np.size(arr) - np.count_nonzero(finite))
         raise ValueError(f"values contain {bad} NaN or inf entries (at "
                          f"{masked_positions(~finite, grid)}): fill or mask them first (a "
                          "spherical-harmonic analysis needs every grid point), or "
                          f"{MASKED_ROUTE}")
-    return arr
+    return arr, peak
 
 
-def scaled_input(arr: np.ndarray) -> tuple[np.ndarray, int, float]:
+def scaled_input(arr: np.ndarray, peak: float | None = None) -> tuple[np.ndarray, int, float]:
     """``(arr * 2**-e, e, peak)``: input whose largest magnitude ``peak`` is beyond
     2**+-600 brought near 1 by a power of two (exact), so that no intermediate sum of a
-    transform overflows or loses bits to underflow; ``(arr, 0, peak)`` otherwise (no copy)."""
+    transform overflows or loses bits to underflow; ``(arr, 0, peak)`` otherwise (no copy).
+    ``peak``: the largest magnitude of ``arr`` when the caller has it already
+    (:func:`checked_values`)."""
     if arr.dtype.kind not in "fc":
         return arr, 0, 0.0
-    peak = peak_magnitude(arr)
+    if peak is None:
+        peak = peak_magnitude(arr)
     e = binary_exponent(peak)
     if e == 0:
         return arr, 0, peak

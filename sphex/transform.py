@@ -32,7 +32,7 @@ from sphex.limits import check_memory, whole_number
 from sphex.rings import (
     ANALYSIS_OVERFLOW_FIX, SYNTHESIS_OVERFLOW_FIX, ConventionFactor, PairBand,
     batched_coefficients, check_analysis_memory, check_grid, check_lmax, check_synthesis_memory,
-    check_values, convention_factor, fft_workers, fourier_synthesis, latitude_pairs, live_pairs,
+    checked_values, convention_factor, fft_workers, fourier_synthesis, latitude_pairs, live_pairs,
     longitude_phase, order_chunks, order_sequence, pair_bands, rescaled_result, run_chunks,
     scaled_input, serial_blas,
 )
@@ -200,12 +200,12 @@ def analyze(values, grid: Grid, lmax: int | None = None, norm: str = "orthonorma
     """
     grid = check_grid(grid)
     check_norm(norm)
-    arr = check_values(values, grid)
+    arr, peak = checked_values(values, grid)
     lmax = check_lmax(lmax, grid, allow_aliasing)
     batch = arr.shape[:-2]
     check_analysis_memory(int(np.prod(batch)), grid, lmax)
     fac = convention_factor(lmax, "orthonormal", False, norm, condon_shortley)
-    arr, e, peak = scaled_input(arr)
+    arr, e, peak = scaled_input(arr, peak)
     coef = _analysis(arr.reshape((-1,) + grid.shape), grid, lmax, fac)
     coef = rescaled_result(coef, e, f"the {norm} coefficients of a field reaching {peak:.3g}",
                            ANALYSIS_OVERFLOW_FIX)

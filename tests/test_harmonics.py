@@ -185,6 +185,20 @@ def test_cos_sin_of_a_batch(rng):
     np.testing.assert_allclose(back.coef, coef, rtol=1e-15, atol=0)
 
 
+@pytest.mark.parametrize("norm", ["orthonormal", "unnormalized"])
+def test_cos_sin_into_given_arrays_is_the_same_to_the_bit(rng, norm):
+    # internal consistency: the streamed analysis writes the real form straight into its
+    # output block; it must hold exactly what cos_sin() returns, zeros of S_l0 included
+    coef = random_coef(9, rng, batch=(3,))
+    coef[0, 4, 2] = -0.0 + 0.0j
+    h = Harmonics(coef, norm=norm)
+    C, S = h.cos_sin()
+    Cb, Sb = np.full((3, 10, 10), np.nan), np.full((3, 10, 10), np.nan)
+    got = h.cos_sin(out=(Cb, Sb))
+    assert got[0] is Cb and got[1] is Sb
+    assert Cb.tobytes() == C.tobytes() and Sb.tobytes() == S.tobytes()
+
+
 @pytest.mark.reference
 def test_known_real_form_of_y11():
     # sin(theta) cos(phi) (common practice): orthonormal with the phase, a_11 = -sqrt(2 pi/3), so

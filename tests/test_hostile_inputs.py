@@ -188,6 +188,51 @@ def test_results_beyond_the_double_range_are_refused(grid):
 
 
 @pytest.mark.reference
+def test_real_form_beyond_the_double_range_is_refused(grid):
+    # the cosine/sine form of a_lm (m > 0) is sqrt(2) times it (common practice), so complex
+    # coefficients of 1.5e308 are in range and their real form is not, in C as in S
+    for a11 in (1.5e308, -1.5e308j):
+        coef = np.zeros((3, 3), complex)
+        coef[1, 1] = a11
+        h = sphex.Harmonics(coef)
+        with pytest.raises(ValueError, match=r"real-form \(cosine/sine\) coefficients.*overflow"):
+            h.cos_sin()
+        with pytest.raises(ValueError, match=r"real-form \(cosine/sine\) coefficients.*overflow"):
+            h.cos_sin(out=(np.empty((3, 3)), np.empty((3, 3))))
+    # f = c sin(theta) cos(phi) has a_11 = -c sqrt(2 pi / 3) (common practice): 1.74e308 for
+    # c = 1.2e308, in range; its C_11 = -c sqrt(4 pi / 3) is not, and the adapter says so
+    # (numpy- and dask-backed input both go through the block function of the tasks)
+    values = 1.2e308 * np.sin(grid.colat)[:, None] * np.cos(np.radians(grid.lon))[None, :]
+    assert abs(sphex.analyze(values, grid)[1, 1] + 1.2e308 * math.sqrt(2 * math.pi / 3)) \
+        < 1e-13 * 1.74e308
+    two = dataarray(grid, values)
+    da = xr.concat([two / 1e300, two], dim="time")
+    for obj in (da, da.chunk({"time": 1})):
+        with pytest.raises(ValueError, match=r"real-form \(cosine/sine\) coefficients.*overflow"):
+            sxr.analyze(obj).load()
+
+
+def test_finiteness_is_tested_exactly_when_the_sum_overflows():
+    # limits.all_finite adds the elements first: a finite array whose sum overflows must
+    # still count as finite, and one inf or NaN anywhere (real or imaginary part) must not
+    from sphex.limits import all_finite, refuse_overflow
+
+    big = np.full(8, 1e308)
+    assert all_finite(big) and all_finite(-big) and all_finite(big + 1e308j)
+    refuse_overflow(big, "x", "y")  # finite: no error although the sum is inf
+    for bad in (np.inf, -np.inf, np.nan):
+        a = np.ones(1000)
+        a[617] = bad
+        assert not all_finite(a)
+        in_imag = np.zeros(1000, complex)
+        in_imag.imag = a
+        assert not all_finite(in_imag) and not all_finite(a + 0j)
+        with pytest.raises(ValueError, match="x overflow the double range"):
+            refuse_overflow(a, "x", "y")
+    assert all_finite(np.zeros(0)) and all_finite(np.arange(5))
+
+
+@pytest.mark.reference
 def test_overflow_through_the_xarray_layer_and_the_command_line(tmp_path, capsys, grid, files):
     da = dataarray(grid, np.full(grid.shape, 1e308))
     with pytest.raises(ValueError, match="overflow"):

@@ -520,6 +520,18 @@ def test_nan_and_inf_rejected():
             analyze(v, grid)
 
 
+def test_nan_and_inf_are_named_with_their_place_before_any_work():
+    # refused by the check on the values, with the count and the place, not later as
+    # coefficients beyond the double range
+    grid = Grid.gauss(10)
+    for bad in (np.nan, np.inf, -np.inf):
+        v = np.ones((2,) + grid.shape)
+        v[1, 3, 4] = bad
+        with pytest.raises(ValueError, match=r"values contain 1 NaN or inf entries \(at latitude "
+                                             r".*\(row 3, column 4 of field 1\)\)"):
+            analyze(v, grid)
+
+
 def test_shape_mismatch_rejected():
     grid = Grid.gauss(10)
     for shape in [(grid.nlat + 1, grid.nlon), (grid.nlon, grid.nlat), (grid.nlat * grid.nlon,)]:

@@ -265,6 +265,21 @@ def test_smooth_reads_the_radius_attribute_and_otherwise_assumes_earth_and_says_
                                atol=1e-13)
 
 
+def test_analysis_reported_in_steps_fills_every_step_of_its_output(rng):
+    # with progress, a block is analysed a few fields at a time, each step written into
+    # its own rows of the output: the same numbers, to the bit, as in one step
+    grid = sphex.Grid.gauss(12)
+    h = random_harmonics(rng, 12, batch=(24,))
+    da = xr.DataArray(sphex.synthesize(h, grid), dims=("time", "lat", "lon"),
+                      coords={"lat": grid.lat, "lon": grid.lon}, name="g")
+    calls = []
+    stepped = sxr.analyze(da, progress=lambda d, t: calls.append((d, t)))
+    assert [d for d, _ in calls] == list(range(2, 25, 2))
+    whole = sxr.analyze(da)
+    for v in (sxr.COS, sxr.SIN):
+        assert stepped[v].values.tobytes() == whole[v].values.tobytes()
+
+
 def test_smooth_and_synthesize_report_progress_field_by_field(rng):
     grid = sphex.Grid.gauss(12)
     h = random_harmonics(rng, 12, batch=(24,))

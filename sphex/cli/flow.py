@@ -60,7 +60,7 @@ def register(sub: Any) -> None:
     q.add_argument("--spectrum", metavar="CSV", help="write the kinetic-energy spectrum as CSV")
     q.add_argument("--plot", metavar="PNG", help="draw the kinetic-energy spectrum (log-log)")
     q.add_argument("--chunks", type=chunk_spec, metavar="DIM=N",
-                   help="fields per chunk when streaming a long series (default: about 8 MiB of a "
+                   help="fields per chunk when streaming a long series (default: about 16 MiB of a "
                         "component per chunk along time)")
     q.add_argument("--scheduler", metavar="ADDRESS",
                    help="run on this dask.distributed scheduler instead of threads in this process")

@@ -58,7 +58,7 @@ def register(sub: Any) -> None:
                    help="leave out the Condon-Shortley phase (-1)^m")
     add_radius_option(q, "reference radius to record with the coefficients")
     q.add_argument("--chunks", type=chunk_spec, metavar="DIM=N",
-                   help="fields per chunk when streaming a long series (default: about 8 MiB of "
+                   help="fields per chunk when streaming a long series (default: about 16 MiB of "
                         "input per chunk along time)")
     q.add_argument("--scheduler", metavar="ADDRESS",
                    help="run on this dask.distributed scheduler (e.g. tcp://10.0.0.5:8786) instead "

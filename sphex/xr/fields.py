@@ -48,8 +48,11 @@ def _progress_step(total: int) -> int:
 def _analyze_block(values: np.ndarray, pos: np.ndarray | None = None, *, info: GridInfo,
                    lmax: int, norm: str, cs: bool, allow_aliasing: bool,
                    progress: Callable[[int, int], None] | None,
-                   where: FieldNames | None = None) -> tuple[np.ndarray, np.ndarray]:
-    """Real-form coefficients (C, S) of a block of gridded fields (one apply_ufunc call)."""
+                   where: FieldNames | None = None, stacked: bool = False
+                   ) -> tuple[np.ndarray, np.ndarray] | np.ndarray:
+    """Real-form coefficients (C, S) of a block of gridded fields (one apply_ufunc call);
+    ``stacked``: as one array ``(2, *batch, lmax+1, lmax+1)`` holding C then S (one dask
+    block of :func:`_analyze_chunk`)."""
     from sphex.transform import analyze as _analyze
 
     values = analysis_columns(np.asarray(values), info.take)
@@ -58,21 +61,71 @@ def _analyze_block(values: np.ndarray, pos: np.ndarray | None = None, *, info: G
     n = flat.shape[0]
     check_memory(16.0 * n * (lmax + 1) ** 2, f"the coefficients of {n} field{'s' if n != 1 else ''} "
                  f"to degree {lmax}", "use a lower lmax, or stream the fields in chunks")
-    c_out = np.empty((n, lmax + 1, lmax + 1))
-    s_out = np.empty((n, lmax + 1, lmax + 1))
+    both = np.empty((2, n, lmax + 1, lmax + 1))
+    c_out, s_out = both[0], both[1]
     step = _progress_step(n) if progress else max(n, 1)
+    kw = {"allow_aliasing": True} if allow_aliasing else {}
     for i in range(0, n, step):
         block = np.ascontiguousarray(flat[i:i + step], dtype=np.float64)
-        kw = {"allow_aliasing": True} if allow_aliasing else {}
-        refuse_missing_in_block(block, i, pos, batch, where)
-        h = _analyze(block, info.grid, lmax=lmax, norm=norm, condon_shortley=cs, **kw)
-        c, s = h.cos_sin()
-        c_out[i:i + step] = c
-        s_out[i:i + step] = s
+        try:
+            h = _analyze(block, info.grid, lmax=lmax, norm=norm, condon_shortley=cs, **kw)
+        except ValueError as exc:
+            failed: ValueError | None = exc
+        else:
+            failed = None
+        if failed is not None:
+            # the transform refuses NaN and inf in the passes it makes over the values
+            # anyway; only then are the fields that hold them found and named
+            refuse_missing_in_block(block, i, pos, batch, where)
+            raise failed
+        h.cos_sin(out=(c_out[i:i + step], s_out[i:i + step]))  # straight into the block's output
         if progress:
             progress(min(i + step, n), n)
     shape = batch + (lmax + 1, lmax + 1)
+    if stacked:
+        return both.reshape((2,) + shape)
     return c_out.reshape(shape), s_out.reshape(shape)
+
+
+def _analyze_chunk(values: np.ndarray, pos: np.ndarray | None = None, **kwargs: Any
+                   ) -> np.ndarray:
+    """One dask task of :func:`_analyze_lazily`: C and S of a chunk, stacked."""
+    return _analyze_block(values, pos, stacked=True, progress=None, **kwargs)
+
+
+def _analyze_lazily(da: xr.DataArray, pos: xr.DataArray, info: GridInfo, lmax: int,
+                    **kwargs: Any) -> tuple[xr.DataArray, xr.DataArray]:
+    """C and S of dask-backed fields: one task per chunk, which gets the chunk as read.
+
+    ``apply_ufunc`` (dask's ``apply_gufunc``) would copy every chunk first: dask
+    concatenates the blocks of the core dimensions a function consumes, even a single
+    block, into a new array.  Here latitude and longitude become degree and order in
+    place (the same block index), so nothing is concatenated, and C and S travel as the
+    two halves of one block."""
+    import dask.array as dsa
+
+    core = (info.lat_dim, info.lon_dim)
+    da = da.transpose(..., *core)
+    others = tuple(da.dims[:-2])
+    letters = "abcdefghijklmnopqrst"
+    if len(others) > len(letters):
+        raise ValueError(f"{da.name!r} has {len(others)} non-spatial dimensions; at most "
+                         f"{len(letters)} are supported")
+    batch = letters[:len(others)]
+    args: list[Any] = [da.data, batch + "uv"]
+    if others:
+        args += [pos.transpose(*others).data, batch]
+    else:
+        args += [np.asarray(pos.values), None]
+    n = lmax + 1
+    both = dsa.blockwise(scaleout.in_tasks(_analyze_chunk), "w" + batch + "uv", *args,
+                         new_axes={"w": 2}, adjust_chunks={"u": n, "v": n}, dtype=np.float64,
+                         meta=np.empty((0,) * (len(others) + 3)), info=info, lmax=lmax,
+                         **kwargs)
+    coords = {k: v for k, v in da.coords.items() if not set(v.dims) & set(core)}
+    dims = others + ("degree", "order")
+    return (xr.DataArray(both[0], dims=dims, coords=coords),
+            xr.DataArray(both[1], dims=dims, coords=coords))
 
 
 def _single_dataarray(da: Any) -> xr.DataArray:
@@ -195,17 +248,18 @@ def analyze(da: xr.DataArray, lmax: int | None = None, *, norm: str = "orthonorm
                                 radius=radius, damping=damping, prior=prior, progress=progress)
     da, pos, names = _prepare_fields(da, info)
     n = lmax + 1
-    c, s = xr.apply_ufunc(
-        scaleout.task_function(_analyze_block, da), da, pos,
-        input_core_dims=[[info.lat_dim, info.lon_dim], []],
-        output_core_dims=[["degree", "order"], ["degree", "order"]],
-        kwargs={"info": info, "lmax": lmax, "norm": norm, "cs": bool(condon_shortley),
-                "allow_aliasing": allow_aliasing, "where": names,
-                "progress": progress if isinstance(da.data, np.ndarray) else None},
-        dask="parallelized", output_dtypes=[np.float64, np.float64],
-        dask_gufunc_kwargs={"output_sizes": {"degree": n, "order": n}},
-        keep_attrs=False,
-    )
+    opts = {"norm": norm, "cs": bool(condon_shortley), "allow_aliasing": allow_aliasing,
+            "where": names}
+    if da.chunks is None:
+        c, s = xr.apply_ufunc(
+            _analyze_block, da, pos,
+            input_core_dims=[[info.lat_dim, info.lon_dim], []],
+            output_core_dims=[["degree", "order"], ["degree", "order"]],
+            kwargs={"info": info, "lmax": lmax, "progress": progress, **opts},
+            keep_attrs=False,
+        )
+    else:
+        c, s = _analyze_lazily(da, pos, info, lmax, **opts)
     units = da.attrs.get("units")
     label = str(da.name) if da.name is not None else "field"
     var_attrs = {"units": str(units)} if units is not None else {}

@@ -114,7 +114,7 @@ def stream_flow(input: str | os.PathLike, output: str | os.PathLike, east: str |
         Rotation rate in rad s-1: adds ``absolute_vorticity``.
     chunks : mapping or str, optional
         Fields per chunk along a dimension (``"time=32"``); default about
-        8 MiB of a component per chunk along ``time``.
+        16 MiB of a component per chunk along ``time``.
     scheduler : str, optional
         Address of a ``dask.distributed`` scheduler; default dask's threads here.
     overwrite, progress : bool

@@ -67,7 +67,7 @@ __all__ = [
 #: Largest merged chunk (bytes) that :func:`whole_fields` makes by itself.
 MERGE_LIMIT = 512 * 2**20
 #: Input bytes per block that :func:`default_block` aims at.
-BLOCK_BYTES = 8 * 2**20
+BLOCK_BYTES = 16 * 2**20
 
 
 # ----------------------------------------------------------------------------

@@ -348,7 +348,7 @@ def stream_analyze(input: str | os.PathLike, var: str | None, output: str | os.P
     norm : {"orthonormal", "full", "schmidt", "unnormalized"}
     chunks : mapping or str, optional
         Fields per chunk along a dimension, e.g. ``{"time": 64}`` or
-        ``"time=64"``; default about 8 MiB of float64 input per chunk along
+        ``"time=64"``; default about 16 MiB of float64 input per chunk along
         ``time`` (or the longest non-spatial dimension).
     scheduler : str, optional
         Address of a running ``dask.distributed`` scheduler
