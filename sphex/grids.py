@@ -66,12 +66,21 @@ class Grid:
     __slots__ = ("kind", "nlat", "nlon", "lon0", "north_first", "colat", "weights",
                  "lat", "lon", "lmax_exact")
 
-    def __init__(self, kind: str, colat: np.ndarray, weights: np.ndarray | None, nlon: int,
-                 lon0: float = 0.0, north_first: bool = True):
+    def __init__(self, kind: str, colat: np.ndarray | None, weights: np.ndarray | None,
+                 nlon: int, lon0: float = 0.0, north_first: bool = True, *,
+                 nlat: int | None = None):
         # weights=None (equiangular kinds only): the layout's rule, computed on first use
-        # (scipy's FFT), so that recognising a grid, as ``sphex inspect`` does, needs no FFT
+        # (scipy's FFT), so that recognising a grid, as ``sphex inspect`` does, needs no FFT;
+        # colat=None with nlat (Gauss only, from Grid.from_coords): the nodes and weights
+        # are computed on first use (the numba kernel), for the same reason
         if kind not in _KINDS:
             raise ValueError(f"unknown grid kind {kind!r}; valid kinds: {', '.join(_KINDS)}")
+        if colat is None:
+            if kind != "gauss" or nlat is None or weights is not None:
+                raise ValueError("only a Gauss grid may leave its nodes for later: give "
+                                 "colat, or kind='gauss' with nlat and no weights")
+            self._set_fields(kind, None, None, int(nlat), nlon, lon0, north_first)
+            return
         if weights is None and kind == "gauss":
             raise ValueError("a Gauss grid needs its weights: build it with Grid.gauss")
         colat = np.asarray(colat, dtype=np.float64)
@@ -81,15 +90,19 @@ class Grid:
             colat = colat[::-1].copy()
             if weights is not None:
                 weights = weights[::-1].copy()
-        lat = 90.0 - np.degrees(colat)
+        self._set_fields(kind, colat, weights, int(colat.size), nlon, lon0, north_first)
+
+    def _set_fields(self, kind, colat, weights, nlat, nlon, lon0, north_first) -> None:
         lon = float(lon0) + 360.0 * np.arange(int(nlon)) / int(nlon)
         if kind == "gauss":
-            lat_limit = colat.size - 1
+            lat_limit = nlat - 1
         else:
-            lat_limit = (colat.size - 1) // 2
-        fields = dict(kind=kind, nlat=int(colat.size), nlon=int(nlon), lon0=float(lon0),
-                      north_first=bool(north_first), colat=colat, lat=lat, lon=lon,
+            lat_limit = (nlat - 1) // 2
+        fields = dict(kind=kind, nlat=nlat, nlon=int(nlon), lon0=float(lon0),
+                      north_first=bool(north_first), lon=lon,
                       lmax_exact=int(min(lat_limit, (int(nlon) - 1) // 2)))
+        if colat is not None:
+            fields.update(colat=colat, lat=90.0 - np.degrees(colat))
         if weights is not None:
             fields["weights"] = weights
         for name, value in fields.items():
@@ -99,15 +112,26 @@ class Grid:
                 arr.setflags(write=False)
 
     def __getattr__(self, name: str):
-        # only reached for a slot not yet set: the weights of an equiangular layout
-        if name != "weights" or not self.kind.startswith("equiangular-"):
-            raise AttributeError(f"{type(self).__name__!r} object has no attribute {name!r}")
-        _, weights = equiangular_nodes(self.nlat, self.layout)
-        if not self.north_first:
-            weights = weights[::-1].copy()
-        weights.setflags(write=False)
-        object.__setattr__(self, "weights", weights)
-        return weights
+        # only reached for a slot not yet set: the weights of an equiangular layout, or the
+        # nodes, latitudes and weights of a Gauss grid recognised from its coordinates
+        if name == "weights" and self.kind.startswith("equiangular-"):
+            _, weights = equiangular_nodes(self.nlat, self.layout)
+            if not self.north_first:
+                weights = weights[::-1].copy()
+            weights.setflags(write=False)
+            object.__setattr__(self, "weights", weights)
+            return weights
+        if name in ("colat", "lat", "weights") and self.kind == "gauss":
+            colat, weights = gauss_nodes(self.nlat)
+            if not self.north_first:
+                colat = colat[::-1].copy()
+                weights = weights[::-1].copy()
+            values = dict(colat=colat, lat=90.0 - np.degrees(colat), weights=weights)
+            for key, arr in values.items():
+                arr.setflags(write=False)
+                object.__setattr__(self, key, arr)
+            return values[name]
+        raise AttributeError(f"{type(self).__name__!r} object has no attribute {name!r}")
 
     # -- constructors -----------------------------------------------------
     @classmethod
@@ -206,9 +230,14 @@ class Grid:
             colat = equiangular_colatitudes(nlat, layout)
             if np.max(np.abs(lat_ns - (90.0 - np.degrees(colat)))) <= tol:
                 return cls("equiangular-" + layout, colat, None, nlon, lon0, north_first)
-        colat, weights = gauss_nodes(nlat)
-        if np.max(np.abs(lat_ns - (90.0 - np.degrees(colat)))) <= tol:
-            return cls("gauss", colat, weights, nlon, lon0, north_first)
+        if nlat <= GAUSS_ESTIMATE_MAX:  # close enough to tell, without the numba kernel
+            colat = gauss_colatitudes_estimate(nlat)
+            if np.max(np.abs(lat_ns - (90.0 - np.degrees(colat)))) <= tol:
+                return cls("gauss", None, None, nlon, lon0, north_first, nlat=nlat)
+        else:
+            colat, weights = gauss_nodes(nlat)
+            if np.max(np.abs(lat_ns - (90.0 - np.degrees(colat)))) <= tol:
+                return cls("gauss", colat, weights, nlon, lon0, north_first)
         # Explain what does not fit.
         spacing = np.abs(d)
         if lat_ns[0] < 90 - 180.0 / nlat - tol or lat_ns[-1] > -90 + 180.0 / nlat + tol:
@@ -333,6 +362,33 @@ def gauss_nodes(n: int) -> tuple[np.ndarray, np.ndarray]:
     from sphex.kernels.gauss import gauss_legendre
 
     return gauss_legendre(int(n))
+
+
+#: Up to this many latitudes :meth:`Grid.from_coords` tells a Gauss grid by
+#: :func:`gauss_colatitudes_estimate` (numpy, O(n^2)) and leaves the exact nodes for
+#: their first use; above, the numba kernel's nodes are quicker.
+GAUSS_ESTIMATE_MAX = 600
+
+
+def gauss_colatitudes_estimate(n: int) -> np.ndarray:
+    """Gauss-Legendre colatitudes (ascending, radians) to about 1e-13, with numpy only.
+
+    Tricomi's estimate of the zeros of P_n, then three Newton steps in x on P_n
+    from the three-term recurrence (common practice).  Good enough to recognise
+    a grid's latitudes (tolerances of 1e-5 degrees); the nodes of a grid come
+    from :func:`gauss_nodes`.
+    """
+    k = np.arange(1, n + 1, dtype=np.float64)
+    x = (1.0 - 1.0 / (8.0 * n * n) + 1.0 / (8.0 * n ** 3)) * np.cos(np.pi * (4.0 * k - 1.0)
+                                                                     / (4.0 * n + 2.0))
+    for _ in range(3):
+        p_prev = np.ones_like(x)
+        p = x.copy()
+        for j in range(2, n + 1):
+            p_prev, p = p, ((2.0 * j - 1.0) * x * p - (j - 1.0) * p_prev) / j
+        dp = n * (x * p - p_prev) / (x * x - 1.0)
+        x = x - p / dp
+    return np.arccos(np.clip(x, -1.0, 1.0))
 
 
 def equiangular_colatitudes(nlat: int, layout: str) -> np.ndarray:

@@ -54,8 +54,19 @@ MUTATIONS = [
        'return cls("equiangular-" + layout, colat, None, nlon, lon0, north_first)',
        'return cls("equiangular-" + layout, colat, equiangular_nodes(nlat, layout)[1], nlon, lon0,'
        ' north_first)', T_STARTUP),
+    _m("startup-gauss-estimate-without-newton-steps", GRIDS,
+       "    for _ in range(3):\n        p_prev = np.ones_like(x)",
+       "    for _ in range(0):\n        p_prev = np.ones_like(x)", T_GRIDS),
+    _m("startup-gauss-nodes-on-first-use-not-flipped", GRIDS,
+       "            if not self.north_first:\n                colat = colat[::-1].copy()\n"
+       "                weights = weights[::-1].copy()\n",
+       "", T_GRIDS),
+    _m("startup-gauss-grid-recognised-with-the-kernel", GRIDS,
+       "if nlat <= GAUSS_ESTIMATE_MAX:", "if nlat < 0:",
+       T_STARTUP + "::test_inspect_loads_no_kernels_plots_or_cluster"),
     _m("startup-given-weights-not-in-grid-order", GRIDS,
-       "                weights = weights[::-1].copy()\n", "                pass\n", T_GRIDS),
+       "            if weights is not None:\n                weights = weights[::-1].copy()\n",
+       "            if weights is not None:\n                pass\n", T_GRIDS),
     _m("startup-weights-on-first-use-writable", GRIDS,
        "        weights.setflags(write=False)\n", "", T_GRIDS),
 ]

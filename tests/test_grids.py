@@ -14,7 +14,9 @@ from _reference import (
     mp_gauss_colatitude,
     mp_gauss_node_weight,
 )
-from sphex.grids import Grid, equiangular_nodes
+from sphex.grids import (
+    GAUSS_ESTIMATE_MAX, Grid, equiangular_nodes, gauss_colatitudes_estimate, gauss_nodes,
+)
 
 LAYOUTS = ("poles", "cells", "north")
 
@@ -157,6 +159,36 @@ def test_weights_on_first_use_are_the_layouts_rule_in_grid_order(layout, nlat):
         g.weight
     with pytest.raises(ValueError, match="Grid.gauss"):
         Grid("gauss", colat, None, 8)
+
+
+@pytest.mark.parametrize("nlat", [2, 3, 16, 64, 181, 600])
+def test_gauss_grid_from_coordinates_computes_its_nodes_on_first_use(nlat):
+    # recognising a Gauss grid uses a numpy estimate of its latitudes; the grid's nodes
+    # and weights are then those of Grid.gauss, bit for bit, computed when first asked, in
+    # the grid's latitude order, read-only, and part of its identity and its pickle
+    exact, w = gauss_nodes(nlat)
+    assert np.max(np.abs(np.degrees(gauss_colatitudes_estimate(nlat) - exact))) < 1e-11
+    g = Grid.gauss(nlat - 1, max(2 * nlat, 4))
+    for north_first, lat in ((True, g.lat), (False, g.lat[::-1])):
+        found = Grid.from_coords(lat, g.lon)
+        assert found.kind == "gauss" and found.north_first is north_first
+        assert found.nlat == nlat and found.lmax_exact == g.lmax_exact
+        assert pickle.loads(pickle.dumps(found)) == found
+        order = slice(None) if north_first else slice(None, None, -1)
+        assert np.array_equal(found.lat, lat)
+        assert np.array_equal(found.colat, exact[order]) and np.array_equal(found.weights, w[order])
+        assert not (found.colat.flags.writeable or found.lat.flags.writeable
+                    or found.weights.flags.writeable)
+        assert (found == g) is north_first
+    with pytest.raises(ValueError, match="only a Gauss grid may leave its nodes"):
+        Grid("equiangular-cells", None, None, 8, nlat=4)
+
+
+def test_large_gauss_grid_recognised_from_the_kernels_nodes():
+    # above GAUSS_ESTIMATE_MAX latitudes the kernel's nodes are computed at once
+    g = Grid.gauss(GAUSS_ESTIMATE_MAX + 40)
+    found = Grid.from_coords(g.lat, g.lon)
+    assert found == g and np.array_equal(found.weights, g.weights)
 
 
 def test_lmax_exact_limited_by_longitudes():

@@ -89,11 +89,18 @@ def test_the_adapters_and_conventions_load_no_numba_nor_scipy():
         assert not import_loads(core) & {"numba", "scipy", "xarray"}, core
 
 
-def test_inspect_loads_no_kernels_plots_or_cluster(small_file):
+def test_inspect_loads_no_kernels_plots_or_cluster(small_file, tmp_path):
     loaded = command_loads("inspect", small_file)
     assert {"xarray", "netCDF4"} <= loaded                     # it did read the file
     # (nor scipy: an equiangular grid is recognised by its latitudes, its weights wait)
     assert not loaded & {"numba", "scipy", "matplotlib", "distributed"}
+    # a Gauss grid too: recognised from a numpy estimate, its nodes wait for a transform
+    g = sphex.Grid.gauss(31)
+    path = tmp_path / "gauss.nc"
+    xr.Dataset({"t": (("lat", "lon"), np.ones(g.shape))},
+               coords={"lat": g.lat[::-1], "lon": g.lon}).to_netcdf(path)
+    loaded = command_loads("inspect", path)
+    assert "xarray" in loaded and not loaded & {"numba", "scipy", "matplotlib", "distributed"}
 
 
 def test_recognising_an_equiangular_grid_needs_no_fft_its_weights_do():

@@ -64,8 +64,7 @@ class GridInfo:
     def describe(self) -> str:
         """One line: kind, size, exact degree limit, order and longitude origin."""
         g = self.grid
-        lat = np.asarray(g.lat)
-        order = "north to south" if lat[0] > lat[-1] else "south to north"
+        order = "north to south" if g.north_first else "south to north"
         seam = ", repeated seam column dropped" if self.seam else ""
         return (f"{g.nlat} x {g.nlon} {g.kind} grid ({order}, longitudes from "
                 f"{float(g.lon[0]):g} deg{seam}), exact to degree {g.lmax_exact}")
