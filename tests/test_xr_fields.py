@@ -265,13 +265,18 @@ def test_smooth_reads_the_radius_attribute_and_otherwise_assumes_earth_and_says_
                                atol=1e-13)
 
 
+def _series_of_24(rng) -> xr.DataArray:
+    """24 random band-limited fields of degree 12 on their Gauss grid."""
+    grid = sphex.Grid.gauss(12)
+    h = random_harmonics(rng, 12, batch=(24,))
+    return xr.DataArray(sphex.synthesize(h, grid), dims=("time", "lat", "lon"),
+                        coords={"lat": grid.lat, "lon": grid.lon}, name="g")
+
+
 def test_analysis_reported_in_steps_fills_every_step_of_its_output(rng):
     # with progress, a block is analysed a few fields at a time, each step written into
     # its own rows of the output: the same numbers, to the bit, as in one step
-    grid = sphex.Grid.gauss(12)
-    h = random_harmonics(rng, 12, batch=(24,))
-    da = xr.DataArray(sphex.synthesize(h, grid), dims=("time", "lat", "lon"),
-                      coords={"lat": grid.lat, "lon": grid.lon}, name="g")
+    da = _series_of_24(rng)
     calls = []
     stepped = sxr.analyze(da, progress=lambda d, t: calls.append((d, t)))
     assert [d for d, _ in calls] == list(range(2, 25, 2))
@@ -281,10 +286,7 @@ def test_analysis_reported_in_steps_fills_every_step_of_its_output(rng):
 
 
 def test_smooth_and_synthesize_report_progress_field_by_field(rng):
-    grid = sphex.Grid.gauss(12)
-    h = random_harmonics(rng, 12, batch=(24,))
-    da = xr.DataArray(sphex.synthesize(h, grid), dims=("time", "lat", "lon"),
-                      coords={"lat": grid.lat, "lon": grid.lon}, name="g")
+    da = _series_of_24(rng)
     calls = []
     out = sxr.smooth(da, band=(6, 10), progress=lambda d, t: calls.append((d, t)))
     assert [d for d, _ in calls] == list(range(2, 25, 2)) and {t for _, t in calls} == {24}
