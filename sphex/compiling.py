@@ -41,7 +41,8 @@ __all__ = ["KERNEL_MODULES", "KERNEL_GROUPS", "kernel_cache_directories", "missi
 
 #: Kernel modules by name: what they serve and the seconds their first compilation took
 #: on the two-core development machine (all of its kernels, from an empty cache, measured
-#: by docs/measurements/measure_demo_fresh.py on 2026-12-02; update after kernel changes).
+#: by docs/measurements/measure_demo_fresh.py on 2026-12-02, the vector kernels by
+#: docs/measurements/measure_vector_kernels.py on 2026-12-03; update after kernel changes).
 KERNEL_MODULES: dict[str, tuple[str, float]] = {
     "scalar": ("scalar transforms", 7.0),
     "gauss": ("Gauss-Legendre nodes", 1.0),
