@@ -221,9 +221,11 @@ _beside: "BesideCompilation | None" = None  # the helper this process started la
 class BesideCompilation:
     """A helper process compiling kernel groups into numba's cache (see :func:`compile_beside`)."""
 
-    def __init__(self, process: subprocess.Popen, groups: tuple[str, ...]):
+    def __init__(self, process: subprocess.Popen, groups: tuple[str, ...],
+                 asked: Iterable[str] | None = None):
         self.process = process
-        self.groups = groups
+        self.groups = groups  # what it compiles
+        self.asked = frozenset(groups if asked is None else asked)  # what it was started for
         self._done: set[str] = set()
         self._lock = threading.Lock()
 
@@ -280,7 +282,7 @@ def compile_beside(groups: Iterable[str]) -> BesideCompilation | None:
     if os.environ.get("SPHEX_COMPILE_BESIDE", "") == "0" or (os.cpu_count() or 1) < 2:
         return None
     if (_beside is not None and _beside.process.returncode is None
-            and set(groups) <= set(_beside.groups)):
+            and set(groups) <= _beside.asked):
         return _beside  # started already for these (the command line starts it early)
     todo = tuple(g for g in groups if _group_missing(g))
     if not todo:
@@ -289,7 +291,7 @@ def compile_beside(groups: Iterable[str]) -> BesideCompilation | None:
     process = subprocess.Popen([sys.executable, "-m", "sphex.compiling", *todo],
                                stdin=subprocess.DEVNULL, stdout=subprocess.PIPE,
                                stderr=subprocess.DEVNULL, text=True, env=env)
-    _beside = BesideCompilation(process, todo)
+    _beside = BesideCompilation(process, todo, groups)
     return _beside
 
 

@@ -368,3 +368,28 @@ def test_no_helper_when_cached_switched_off_or_asked_for_an_unknown_group(empty_
     (folder / "vector.sequences_to_flow-600.py311.nbi").write_bytes(b"")
     assert not compiling._group_missing("vector")
     assert compiling.compile_beside(["vector"]) is None
+
+
+def test_a_run_asking_again_for_its_groups_gets_the_helper_already_started(empty_cache,
+                                                                          monkeypatch):
+    # the command line starts the helper for the demo's groups, the demo asks again: one
+    # helper only, also when one of the groups was cached and so left out of its work
+    started = []
+    real_popen = subprocess.Popen
+
+    def fake_popen(args, **kwargs):
+        started.append(args[3:])
+        code = f"import time\nfor g in {args[3:]!r}: print('compiled', g, flush=True)\ntime.sleep(30)"
+        return real_popen([sys.executable, "-c", code], stdout=subprocess.PIPE, text=True)
+
+    monkeypatch.setattr(compiling.subprocess, "Popen", fake_popen)
+    monkeypatch.setattr(compiling, "_beside", None)
+    monkeypatch.setattr(compiling, "_group_missing", lambda g: g == "vector")
+    first = compiling.compile_beside(("vector", "batch-synthesis"))
+    again = compiling.compile_beside(("vector", "batch-synthesis"))
+    assert again is first and started == [["vector"]]
+    assert first.wait("vector") and not first.wait("batch-synthesis")
+    first.stop()
+    third = compiling.compile_beside(("vector",))          # that helper has ended: a new one
+    assert third is not first and started == [["vector"], ["vector"]]
+    third.stop()
