@@ -42,6 +42,9 @@ MUTATIONS = [
        "    dw = (np.diff(lon_a) + 180.0) % 360.0 - 180.0\n", "    dw = np.diff(lon_a)\n", T_COORDS),
     _m("adapt-coords-seam-column-gets-last-column", COORDS,
        "put[int(p)] = c if c < n_a else 0", "put[int(p)] = c if c < n_a else n_a - 1", T_COORDS),
+    _m("adapt-coords-description-order-inverted", COORDS,
+       'order = "north to south" if g.north_first else "south to north"',
+       'order = "south to north" if g.north_first else "north to south"', T_COORDS),
     _m("adapt-coords-descending-longitudes-not-reversed", COORDS,
        "reverse = bool(np.median(dw) < 0)", "reverse = False", T_COORDS),
     # ---------------------------------------------------------- conventions

@@ -155,3 +155,15 @@ def test_the_only_unusable_variable_gives_its_own_reason():
         choose_variable(ds, None, "f.nc")
     with pytest.raises(ValueError, match=r"f.nc has no variable 'q' \(variables: z, lat_bnds, step, w\)"):
         choose_variable(ds, "q", "f.nc")
+
+
+@pytest.mark.parametrize("kind", ["gauss", "cells"])
+def test_description_states_the_files_latitude_order(kind):
+    # the one-line description (sphex inspect, the logs) reads the order from the grid as
+    # recognised, without computing a Gauss grid's nodes
+    g = sphex.Grid.gauss(15) if kind == "gauss" else sphex.Grid.equiangular(16, 32, "cells")
+    for lat, order in ((g.lat, "north to south"), (g.lat[::-1], "south to north")):
+        da = xr.DataArray(np.zeros(g.shape), dims=("lat", "lon"), coords={"lat": lat, "lon": g.lon})
+        text = sxr.find_grid(da).describe()
+        assert text.startswith(f"16 x 32 {g.kind} grid ({order}, longitudes from 0 deg)")
+        assert text.endswith(f"exact to degree {g.lmax_exact}")
